@@ -1,0 +1,55 @@
+"""The Python API, for notebooks: the same jobs as the command line.
+
+>>> import seqlang
+>>> seq = seqlang.load("programs/rabi_ramsey.seq")       # doctest: +SKIP
+>>> seq.timeline.events[0].duration_s                     # doctest: +SKIP
+"""
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+from .compile.hardware import HardwarePlan
+from .compile.pipeline import Checked, check
+from .compile.timeline import Timeline
+from .lang.diagnostics import Diagnostic
+from .program.model import Program
+
+
+@dataclass(frozen=True)
+class Sequence:
+    """A loaded, checked sequence file."""
+
+    path: str
+    checked: Checked
+
+    @property
+    def program(self) -> Program:
+        return self.checked.program
+
+    @property
+    def timeline(self) -> Timeline:
+        """The drive-level timeline as written (before tick rounding)."""
+        return self.checked.timeline
+
+    @property
+    def played(self) -> Timeline:
+        """The timeline after tick quantization and latency shift: what the atoms see."""
+        return self.checked.quantized
+
+    @property
+    def warnings(self) -> tuple[Diagnostic, ...]:
+        return self.checked.warnings
+
+    def compile(self) -> HardwarePlan:
+        """The hardware plan (per-port tick tables); write it with :func:`write_tables`."""
+        return self.checked.plan
+
+    def write_tables(self, directory: str) -> list[str]:
+        """Write timing.csv, timing.json and waveforms.npz into `directory`."""
+        from .emit import write_all
+        return write_all(self.checked, directory)
+
+
+def load(path: str) -> Sequence:
+    """Parse, resolve and check `path`; raises SeqlangError listing every problem."""
+    return Sequence(path, check(path))

@@ -1,0 +1,1 @@
+"""Program to timeline to hardware plan."""

@@ -1,0 +1,140 @@
+"""The hardware plan: per sequencer output, events in integer ticks.
+
+Each output's events are issued early by its latency so that they happen at
+their physical time; when that reaches before tick 0 the whole sequence shifts
+later and the shift is reported. Rydberg and Raman pulses with a TTL gate get
+the gate opened ``gate_lead`` before and closed ``gate_lag`` after the pulse;
+overlapping gate windows on one line merge (the gate stays open).
+"""
+from __future__ import annotations
+
+from collections import defaultdict
+from dataclasses import dataclass, replace
+
+from ..program.model import Program
+from .quantize import QuantizeReport
+from .timeline import IMAGE, PULSE, Event, Timeline
+
+GATE = "gate"
+
+
+@dataclass(frozen=True)
+class PortEvent:
+    """One entry of an output's table: issue tick, length in ticks, what to play."""
+
+    port: str
+    tick: int
+    ticks: int
+    kind: str
+    event: int  # index of the timeline event, -1 for gate windows
+    source: str  # "file:line"
+    drive: str = ""
+    rabi_hz: float = 0.0
+    amplitude: float = 0.0  # fraction of the drive's maximum, as the DAC code sets it
+    detuning_hz: float = 0.0
+    phase_rad: float = 0.0
+    shape: str = ""
+    targets: tuple[str, ...] = ()
+    value: float = 0.0
+
+
+@dataclass(frozen=True)
+class HardwarePlan:
+    """Everything the sequencer plays, and what compiling had to do to get there."""
+
+    tick_s: float
+    shift_ticks: int
+    ports: dict[str, tuple[PortEvent, ...]]
+    timeline: Timeline  # quantized and shifted: the physical times the atoms see
+    report: QuantizeReport
+    latency_ticks: dict[str, int]
+
+    @property
+    def shift_s(self) -> float:
+        return self.shift_ticks * self.tick_s
+
+    def rows(self) -> list[PortEvent]:
+        """All port events in issue order (tick, then port, then kind)."""
+        every = [e for events in self.ports.values() for e in events]
+        return sorted(every, key=lambda e: (e.tick, e.port, e.kind, e.event))
+
+
+def plan(program: Program, timeline: Timeline, report: QuantizeReport) -> HardwarePlan:
+    """Build the per-port tables from a quantized timeline."""
+    tick = program.rig.tick_s
+    latencies = _latencies(program)
+    raw: list[PortEvent] = []
+    for event in timeline.events:
+        raw += _port_events(program, event, tick, latencies)
+    raw = _merge_gates(raw)
+    shift = max(0, -min((e.tick for e in raw), default=0))
+    ports: dict[str, list[PortEvent]] = defaultdict(list)
+    for entry in raw:
+        ports[entry.port].append(replace(entry, tick=entry.tick + shift))
+    ordered = {p: tuple(sorted(es, key=lambda e: (e.tick, e.kind, e.event))) for p, es in sorted(ports.items())}
+    shifted = _shift_timeline(timeline, shift * tick)
+    return HardwarePlan(tick, shift, ordered, shifted, report, latencies)
+
+
+def _ticks(seconds: float, tick: float) -> int:
+    return round(seconds / tick)
+
+
+def _latencies(program: Program) -> dict[str, int]:
+    """Latency in ticks of every output the rig names."""
+    rig, tick = program.rig, program.rig.tick_s
+    out: dict[str, int] = {}
+    for port in rig.ports.values():
+        out[port.channel] = _ticks(port.latency_s, tick)
+    for drive in rig.drives.values():
+        out[drive.port] = _ticks(drive.latency_s, tick)
+        if drive.gate is not None:
+            out.setdefault(drive.gate, 0)
+    for imaging in rig.imaging.values():
+        out[imaging.port] = _ticks(imaging.latency_s, tick)
+    return out
+
+
+def _source(event: Event) -> str:
+    return f"{event.span.file}:{event.span.line}"
+
+
+def _port_events(program: Program, event: Event, tick: float, latency: dict[str, int]) -> list[PortEvent]:
+    start, length = _ticks(event.start_s, tick), _ticks(event.duration_s, tick)
+    if event.kind == PULSE:
+        drive = program.rig.drives[event.drive]
+        amplitude = event.rabi_hz / drive.max_rabi_hz
+        out = [PortEvent(drive.port, start - latency[drive.port], length, PULSE, event.index, _source(event),
+                         drive.name, event.rabi_hz, amplitude, event.detuning_hz, event.phase_rad,
+                         event.shape.kind, event.targets)]
+        if drive.gate is not None:
+            lead, lag = _ticks(drive.gate_lead_s, tick), _ticks(drive.gate_lag_s, tick)
+            out.append(PortEvent(drive.gate, start - lead - latency[drive.gate], length + lead + lag, GATE,
+                                 event.index, _source(event), drive.name))
+        return out
+    if event.kind == IMAGE:
+        return [PortEvent(event.port, start - latency[event.port], length, IMAGE, event.index, _source(event),
+                          targets=event.targets)]
+    return [PortEvent(event.port, start - latency.get(event.port, 0), length, event.kind, event.index,
+                      _source(event), value=event.value)]
+
+
+def _merge_gates(entries: list[PortEvent]) -> list[PortEvent]:
+    """Overlapping or touching gate windows on one line become one window."""
+    gates = sorted((e for e in entries if e.kind == GATE), key=lambda e: (e.port, e.tick))
+    merged: list[PortEvent] = []
+    for gate in gates:
+        last = merged[-1] if merged else None
+        if last is not None and last.port == gate.port and gate.tick <= last.tick + last.ticks:
+            end = max(last.tick + last.ticks, gate.tick + gate.ticks)
+            merged[-1] = replace(last, ticks=end - last.tick)
+        else:
+            merged.append(gate)
+    return [e for e in entries if e.kind != GATE] + merged
+
+
+def _shift_timeline(timeline: Timeline, shift_s: float) -> Timeline:
+    if shift_s == 0:
+        return timeline
+    events = tuple(replace(e, start_s=e.start_s + shift_s) for e in timeline.events)
+    return replace(timeline, events=events, duration_s=timeline.duration_s + shift_s, shift_s=shift_s)

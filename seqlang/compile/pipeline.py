@@ -1,0 +1,40 @@
+"""The passes in order, so that tools and tests can run any prefix of them.
+
+parse → resolve/check → lower → timing checks → quantize → hardware plan
+"""
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+from ..lang.diagnostics import ERROR, Diagnostic, SeqlangError
+from ..program.model import Program
+from ..program.resolve import resolve
+from .checks import check_timeline
+from .hardware import HardwarePlan, plan
+from .lower import lower
+from .quantize import quantize
+from .timeline import Timeline
+
+
+@dataclass(frozen=True)
+class Checked:
+    """A program that passed every check, its timeline, and the warnings."""
+
+    program: Program
+    timeline: Timeline
+    quantized: Timeline
+    plan: HardwarePlan
+    warnings: tuple[Diagnostic, ...]
+
+
+def check(path: str) -> Checked:
+    """Run every pass; raise :class:`SeqlangError` with all errors found."""
+    program, diags = resolve(path)
+    timeline = lower(program)
+    diags = diags + check_timeline(program, timeline)
+    quantized, report, quant_diags = quantize(program, timeline)
+    diags += quant_diags + [d for d in check_timeline(program, quantized) if d.span not in {x.span for x in diags}]
+    if any(d.severity == ERROR for d in diags):
+        raise SeqlangError(diags)
+    hardware = plan(program, quantized, report)
+    return Checked(program, timeline, hardware.timeline, hardware, tuple(diags))

@@ -1,0 +1,87 @@
+"""Tick quantization that keeps each pulse's area.
+
+Start and end of every event are rounded to the tick (so neighbours stay
+neighbours); a pulse whose duration changed gets its Rabi frequency rescaled
+to keep its area, then rounded to the drive's amplitude resolution. What is
+left of the area error after that is reported per pulse.
+"""
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass, replace
+
+from ..lang import units
+from ..lang.diagnostics import Diagnostic, error
+from ..program.model import Drive, Program
+from . import envelopes
+from .timeline import PULSE, Event, Timeline
+
+
+@dataclass(frozen=True)
+class QuantizeReport:
+    """What rounding did: residual area errors and timing shifts."""
+
+    area_errors_rad: tuple[tuple[int, float], ...]  # (event index, played − wanted)
+    max_area_error_rad: float
+    max_timing_error_s: float
+    stretched: int  # pulses lengthened by a tick to stay under the drive's maximum
+
+
+def quantize(program: Program, timeline: Timeline) -> tuple[Timeline, QuantizeReport, list[Diagnostic]]:
+    """The timeline the hardware will play, with a report and any errors."""
+    tick, limit = program.rig.tick_s, 2 ** program.rig.counter_bits - 1
+    events, errors, diags, worst_time, stretched = [], [], [], 0.0, 0
+    for event in timeline.events:
+        start, end = round(event.start_s / tick), round(event.end_s / tick)
+        if not _representable(event, end - start, limit, tick, diags):
+            continue
+        worst_time = max(worst_time, abs(start * tick - event.start_s), abs(end * tick - event.end_s))
+        if event.kind == PULSE:
+            event, error_rad, grew = _pulse(program.rig.drives[event.drive], event, start, end, tick)
+            errors.append((event.index, error_rad))
+            stretched += grew
+        else:
+            event = replace(event, start_s=start * tick, duration_s=(end - start) * tick)
+        events.append(event)
+    total = math.ceil(round(timeline.duration_s / tick, 6)) * tick
+    total = max([total] + [e.end_s for e in events])
+    report = QuantizeReport(tuple(errors), max((abs(e) for _, e in errors), default=0.0), worst_time, stretched)
+    return Timeline(tuple(events), total, tick, quantized=True), report, diags
+
+
+def _representable(event: Event, ticks: int, limit: int, tick: float, diags: list[Diagnostic]) -> bool:
+    if event.duration_s > 0 and ticks == 0:
+        diags.append(error(f"a {units.format_quantity(event.duration_s, units.DURATION)} {event.kind} is "
+                           f"shorter than one tick ({units.format_quantity(tick, units.DURATION)}); "
+                           "the sequencer cannot represent it", event.span))
+        return False
+    if ticks > limit:
+        diags.append(error(f"{ticks:,} ticks do not fit the sequencer's duration counter (at most {limit:,})",
+                           event.span, "split it into shorter pieces"))
+        return False
+    return True
+
+
+def _pulse(drive: Drive, event: Event, start: int, end: int, tick: float) -> tuple[Event, float, int]:
+    """Rescale amplitude to keep the area; lengthen by one tick if that would exceed the maximum."""
+    grew = 0
+    rabi = _rabi_for_area(event, (end - start) * tick)
+    if rabi > drive.max_rabi_hz * (1 + 1e-12):
+        end, grew = end + 1, 1
+        rabi = _rabi_for_area(event, (end - start) * tick)
+    played = _amplitude_rounded(rabi, drive)
+    duration = (end - start) * tick
+    area = envelopes.pulse_area(event.shape, duration, played)
+    quantized = replace(event, start_s=start * tick, duration_s=duration, rabi_hz=played, area_rad=area)
+    return quantized, area - event.area_rad, grew
+
+
+def _rabi_for_area(event: Event, duration: float) -> float:
+    return event.area_rad / (2 * math.pi * envelopes.area_factor(event.shape, duration))
+
+
+def _amplitude_rounded(rabi: float, drive: Drive) -> float:
+    """The Rabi frequency the drive's DAC can actually set (amplitude_bits steps up to the maximum)."""
+    steps = 2 ** drive.amplitude_bits - 1
+    code = min(steps, round(rabi / drive.max_rabi_hz * steps))
+    return code / steps * drive.max_rabi_hz

@@ -1,0 +1,53 @@
+"""The timeline: drive-level events in physical units, the shared form.
+
+The simulator reads the *quantized* timeline (after :func:`seqlang.compile.
+quantize.quantize`), which holds what the hardware will play.
+"""
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+from ..lang.diagnostics import Span
+from ..program.model import Shape
+
+PULSE, IMAGE, SWITCH, SET, TRIGGER = "pulse", "image", "switch", "set", "trigger"
+
+
+@dataclass(frozen=True)
+class Event:
+    """One drive-level event: a pulse, an imaging, or a plain port action."""
+
+    index: int
+    kind: str
+    start_s: float
+    duration_s: float
+    port: str
+    span: Span
+    drive: str | None = None
+    targets: tuple[str, ...] = ()
+    species: str | None = None
+    rabi_hz: float = 0.0
+    detuning_hz: float = 0.0
+    phase_rad: float = 0.0
+    area_rad: float = 0.0
+    shape: Shape = Shape("square")
+    record: str | None = None
+    value: float = 0.0
+
+    @property
+    def end_s(self) -> float:
+        return self.start_s + self.duration_s
+
+
+@dataclass(frozen=True)
+class Timeline:
+    """All events in start order, the total duration, and whether ticks apply."""
+
+    events: tuple[Event, ...]
+    duration_s: float
+    tick_s: float
+    quantized: bool = False
+    shift_s: float = 0.0
+
+    def pulses(self) -> tuple[Event, ...]:
+        return tuple(e for e in self.events if e.kind == PULSE)

@@ -1,0 +1,1 @@
+"""Front end: source text to syntax tree, with units and diagnostics."""

@@ -1,0 +1,382 @@
+"""Syntax tree: what the user wrote, one frozen dataclass per construct.
+
+Every node carries its :class:`~seqlang.lang.diagnostics.Span`. Nothing here is
+checked yet: names, units and kinds of values are the resolver's job.
+"""
+from __future__ import annotations
+
+from dataclasses import dataclass
+from typing import Union
+
+from .diagnostics import Span
+
+
+@dataclass(frozen=True)
+class Ident:
+    """A name as written, with where it was written."""
+
+    name: str
+    span: Span
+
+
+# ---- expressions ----------------------------------------------------------
+@dataclass(frozen=True)
+class Number:
+    """A literal number."""
+
+    value: float
+    span: Span
+
+
+@dataclass(frozen=True)
+class UnitRef:
+    """A bare unit used as a value, e.g. ``pi`` in ``pi/2``."""
+
+    unit: str
+    span: Span
+
+
+@dataclass(frozen=True)
+class NameRef:
+    """A reference to a constant, parameter or keyword value (``all``, ``clock``)."""
+
+    name: str
+    span: Span
+
+
+@dataclass(frozen=True)
+class WithUnit:
+    """An expression followed by a unit: ``22 kHz``, ``(0, 5) um``."""
+
+    operand: "Expr"
+    unit: str
+    span: Span
+    unit_span: Span
+
+
+@dataclass(frozen=True)
+class BinOp:
+    """``left op right`` for op in + - * / ^."""
+
+    op: str
+    left: "Expr"
+    right: "Expr"
+    span: Span
+
+
+@dataclass(frozen=True)
+class Neg:
+    """Unary minus."""
+
+    operand: "Expr"
+    span: Span
+
+
+@dataclass(frozen=True)
+class Arg:
+    """A call or ``do`` argument, positional (name None) or by keyword."""
+
+    name: Ident | None
+    value: "Expr"
+    span: Span
+
+
+@dataclass(frozen=True)
+class Call:
+    """``name(args)``: a function such as ``sqrt`` or an envelope such as ``gaussian``."""
+
+    func: Ident
+    args: tuple[Arg, ...]
+    span: Span
+
+
+@dataclass(frozen=True)
+class TupleExpr:
+    """``(a, b, c)``, for coordinates."""
+
+    items: tuple["Expr", ...]
+    span: Span
+
+
+@dataclass(frozen=True)
+class RangeExpr:
+    """``lo .. hi``."""
+
+    low: "Expr"
+    high: "Expr"
+    span: Span
+
+
+@dataclass(frozen=True)
+class LevelExpr:
+    """A Rydberg level written as ``58S1/2``."""
+
+    text: str
+    span: Span
+
+
+@dataclass(frozen=True)
+class ChannelExpr:
+    """A sequencer output written as ``awg1.2`` or ``ttl.4``."""
+
+    text: str
+    span: Span
+
+
+@dataclass(frozen=True)
+class StatePair:
+    """``(F=1, mF=0) <-> (F=2, mF=0)``: an explicit hyperfine qubit."""
+
+    lower: tuple[tuple[Ident, "Expr"], ...]
+    upper: tuple[tuple[Ident, "Expr"], ...]
+    span: Span
+
+
+Expr = Union[Number, UnitRef, NameRef, WithUnit, BinOp, Neg, Call, TupleExpr,
+             RangeExpr, LevelExpr, ChannelExpr, StatePair]
+
+
+@dataclass(frozen=True)
+class Prop:
+    """``key value`` inside braces or after a statement."""
+
+    key: Ident
+    value: Expr
+    span: Span
+
+
+# ---- the rig --------------------------------------------------------------
+@dataclass(frozen=True)
+class SpeciesDecl:
+    """``species na = Na23 { ... }``."""
+
+    name: Ident
+    isotope: Ident
+    props: tuple[Prop, ...]
+    span: Span
+
+
+@dataclass(frozen=True)
+class DriveDecl:
+    """``drive ryd_na rydberg na { ... }``."""
+
+    name: Ident
+    kind: Ident
+    species: Ident
+    props: tuple[Prop, ...]
+    span: Span
+
+
+@dataclass(frozen=True)
+class ImageDecl:
+    """``image cs { ... }``: the imaging of one species."""
+
+    species: Ident
+    props: tuple[Prop, ...]
+    span: Span
+
+
+@dataclass(frozen=True)
+class PortDecl:
+    """``port shutter = ttl.7 { ... }``: a plain lab output."""
+
+    name: Ident
+    channel: ChannelExpr
+    props: tuple[Prop, ...]
+    span: Span
+
+
+@dataclass(frozen=True)
+class LetStmt:
+    """``let name = expr``."""
+
+    name: Ident
+    value: Expr
+    span: Span
+
+
+@dataclass(frozen=True)
+class RigDef:
+    """``rig name { ... }``; settings are the bare ``key value`` lines."""
+
+    name: Ident
+    settings: tuple[Prop, ...]
+    species: tuple[SpeciesDecl, ...]
+    drives: tuple[DriveDecl, ...]
+    images: tuple[ImageDecl, ...]
+    ports: tuple[PortDecl, ...]
+    lets: tuple[LetStmt, ...]
+    span: Span
+
+
+# ---- the array and the sequence -------------------------------------------
+@dataclass(frozen=True)
+class SiteStmt:
+    """``site d = na at (0, 0) um``."""
+
+    name: Ident
+    species: Ident
+    position: Expr
+    span: Span
+
+
+@dataclass(frozen=True)
+class GroupStmt:
+    """``group pair = d, h``."""
+
+    name: Ident
+    members: tuple[Ident, ...]
+    span: Span
+
+
+@dataclass(frozen=True)
+class PulseStmt:
+    """``pulse drive [on targets] key value ...``."""
+
+    drive: Ident
+    targets: tuple[Ident, ...]
+    props: tuple[Prop, ...]
+    span: Span
+
+
+@dataclass(frozen=True)
+class WaitStmt:
+    """``wait duration``."""
+
+    duration: Expr
+    span: Span
+
+
+@dataclass(frozen=True)
+class TogetherStmt:
+    """``together [align start|end|center] { ... }``."""
+
+    align: Ident | None
+    body: tuple["Stmt", ...]
+    span: Span
+
+
+@dataclass(frozen=True)
+class RepeatStmt:
+    """``repeat count { ... }``."""
+
+    count: Expr
+    body: tuple["Stmt", ...]
+    span: Span
+
+
+@dataclass(frozen=True)
+class DoStmt:
+    """``do block(args)``."""
+
+    block: Ident
+    args: tuple[Arg, ...]
+    span: Span
+
+
+@dataclass(frozen=True)
+class ImageStmt:
+    """``image species -> record``."""
+
+    species: Ident
+    record: Ident
+    props: tuple[Prop, ...]
+    span: Span
+
+
+@dataclass(frozen=True)
+class SwitchStmt:
+    """``switch port on|off``."""
+
+    port: Ident
+    on: bool
+    span: Span
+
+
+@dataclass(frozen=True)
+class SetStmt:
+    """``set port value``."""
+
+    port: Ident
+    value: Expr
+    span: Span
+
+
+@dataclass(frozen=True)
+class TriggerStmt:
+    """``trigger port [width ...]``: a short digital pulse."""
+
+    port: Ident
+    props: tuple[Prop, ...]
+    span: Span
+
+
+Stmt = Union[PulseStmt, WaitStmt, TogetherStmt, RepeatStmt, DoStmt, ImageStmt,
+             SwitchStmt, SetStmt, TriggerStmt, LetStmt]
+
+
+@dataclass(frozen=True)
+class Param:
+    """A block parameter with an optional default."""
+
+    name: Ident
+    default: Expr | None
+    span: Span
+
+
+@dataclass(frozen=True)
+class BlockDef:
+    """``block name(params) { ... }``."""
+
+    name: Ident
+    params: tuple[Param, ...]
+    body: tuple[Stmt, ...]
+    span: Span
+
+
+@dataclass(frozen=True)
+class SequenceDef:
+    """``sequence name { ... }``."""
+
+    name: Ident
+    body: tuple[Stmt, ...]
+    span: Span
+
+
+@dataclass(frozen=True)
+class ExpectStmt:
+    """``expect d, h as phi_plus`` or ``expect d, h as |01>``."""
+
+    sites: tuple[Ident, ...]
+    state: Ident
+    is_ket: bool
+    span: Span
+
+
+@dataclass(frozen=True)
+class UseStmt:
+    """``use "file.rig"``."""
+
+    path: str
+    span: Span
+
+
+@dataclass(frozen=True)
+class ImportStmt:
+    """``import "file.seq"``: blocks and constants of another file."""
+
+    path: str
+    span: Span
+
+
+Item = Union[UseStmt, ImportStmt, RigDef, LetStmt, SiteStmt, GroupStmt, BlockDef,
+             SequenceDef, ExpectStmt]
+
+
+@dataclass(frozen=True)
+class SourceFile:
+    """One parsed file: its path, text and top-level items in order."""
+
+    path: str
+    text: str
+    items: tuple[Item, ...]

@@ -1,0 +1,1 @@
+"""Resolve names, species, sites and drives; check; build the program."""

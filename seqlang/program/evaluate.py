@@ -1,0 +1,201 @@
+"""Evaluate expressions to :class:`Quantity` values, checking units as it goes.
+
+>>> from seqlang.lang.parser import parse_text
+>>> let = parse_text("let t = 1 / (2 * 1 MHz)", "x.seq").items[0]
+>>> evaluate(let.value, Scope()).value
+5e-07
+"""
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass, field
+from typing import Callable
+
+from ..lang import syntax as ast
+from ..lang import units
+from ..lang.diagnostics import Diagnostic, Span, did_you_mean, error
+from ..lang.units import DIMENSIONLESS, Quantity
+
+
+class EvalError(Exception):
+    """An expression cannot be evaluated; carries the diagnostic."""
+
+    def __init__(self, diagnostic: Diagnostic):
+        super().__init__(diagnostic.message)
+        self.diagnostic = diagnostic
+
+
+@dataclass(frozen=True)
+class SiteRef:
+    """A block argument that names sites (a site or a group), not a number."""
+
+    sites: tuple[str, ...]
+    span: Span
+
+
+@dataclass
+class Scope:
+    """Names visible to an expression; inner scopes shadow outer ones."""
+
+    values: dict[str, object] = field(default_factory=dict)
+    parent: "Scope | None" = None
+
+    def lookup(self, name: str) -> object | None:
+        scope: Scope | None = self
+        while scope is not None:
+            if name in scope.values:
+                return scope.values[name]
+            scope = scope.parent
+        return None
+
+    def names(self) -> set[str]:
+        own = set(self.values)
+        return own | (self.parent.names() if self.parent else set())
+
+    def child(self) -> "Scope":
+        return Scope({}, self)
+
+
+def _unary(fn: Callable[[float], float], angle_in: bool = False):
+    def apply(q: Quantity, span: Span) -> Quantity:
+        allowed = (DIMENSIONLESS, units.ANGLE) if angle_in else (DIMENSIONLESS,)
+        if q.dim not in allowed:
+            raise EvalError(error(f"expected a plain number, got {q.kind}", span))
+        return Quantity(fn(q.value))
+    return apply
+
+
+def _sqrt(q: Quantity, span: Span) -> Quantity:
+    if any(e % 2 for e in q.dim):
+        raise EvalError(error(f"cannot take the square root of {q.kind}", span))
+    if q.value < 0:
+        raise EvalError(error("cannot take the square root of a negative value", span))
+    return Quantity(math.sqrt(q.value), tuple(e // 2 for e in q.dim))
+
+
+FUNCTIONS = {
+    "sqrt": _sqrt,
+    "sin": _unary(math.sin, True), "cos": _unary(math.cos, True), "tan": _unary(math.tan, True),
+    "exp": _unary(math.exp), "log": _unary(math.log),
+    "abs": lambda q, span: Quantity(abs(q.value), q.dim),
+}
+
+
+def evaluate(expr: ast.Expr, scope: Scope) -> Quantity:
+    """Evaluate to a Quantity; raise :class:`EvalError` with a diagnostic."""
+    value = evaluate_any(expr, scope)
+    if not isinstance(value, Quantity):
+        raise EvalError(error(f"expected a number, got {_what(value)}", expr.span))
+    return value
+
+
+def evaluate_any(expr: ast.Expr, scope: Scope) -> object:
+    """Evaluate to a Quantity, a tuple of Quantities, or a SiteRef."""
+    handler = _HANDLERS.get(type(expr))
+    if handler is None:
+        raise EvalError(error("this is not a value that can be computed", expr.span))
+    return handler(expr, scope)
+
+
+def _number(expr: ast.Number, scope: Scope) -> Quantity:
+    return Quantity(expr.value)
+
+
+def _unit(expr: ast.UnitRef, scope: Scope) -> Quantity:
+    factor, dim = units.UNITS[expr.unit]
+    return Quantity(factor, dim)
+
+
+def _name(expr: ast.NameRef, scope: Scope) -> object:
+    value = scope.lookup(expr.name)
+    if value is None:
+        raise EvalError(error(f"unknown name `{expr.name}`", expr.span,
+                              did_you_mean(expr.name, scope.names())))
+    return value
+
+
+def _with_unit(expr: ast.WithUnit, scope: Scope) -> object:
+    factor, dim = units.UNITS[expr.unit]
+    operand = evaluate_any(expr.operand, scope)
+    if isinstance(operand, tuple):
+        return tuple(q * Quantity(factor, dim) for q in operand)
+    if not isinstance(operand, Quantity):
+        raise EvalError(error(f"a unit cannot follow {_what(operand)}", expr.span))
+    if operand.dim != DIMENSIONLESS:
+        raise EvalError(error(f"`{expr.unit}` follows a value that already has units", expr.unit_span))
+    return operand * Quantity(factor, dim)
+
+
+def _binop(expr: ast.BinOp, scope: Scope) -> Quantity:
+    left, right = evaluate(expr.left, scope), evaluate(expr.right, scope)
+    if expr.op in "+-":
+        if left.dim != right.dim:
+            raise EvalError(error(f"cannot {'add' if expr.op == '+' else 'subtract'} "
+                                  f"{right.kind} and {left.kind}", expr.span))
+        return left + right if expr.op == "+" else left - right
+    if expr.op == "*":
+        return left * right
+    if expr.op == "/":
+        if right.value == 0:
+            raise EvalError(error("division by zero", expr.right.span))
+        return left / right
+    return _power(left, right, expr)
+
+
+def _power(base: Quantity, exponent: Quantity, expr: ast.BinOp) -> Quantity:
+    if exponent.dim != DIMENSIONLESS:
+        raise EvalError(error(f"an exponent must be a plain number, got {exponent.kind}", expr.right.span))
+    try:
+        return base.power(exponent.value)
+    except (ValueError, OverflowError) as exc:
+        raise EvalError(error(str(exc), expr.span)) from None
+
+
+def _neg(expr: ast.Neg, scope: Scope) -> Quantity:
+    return -evaluate(expr.operand, scope)
+
+
+def _call(expr: ast.Call, scope: Scope) -> Quantity:
+    fn = FUNCTIONS.get(expr.func.name)
+    if fn is None:
+        raise EvalError(error(f"unknown function `{expr.func.name}`", expr.func.span,
+                              did_you_mean(expr.func.name, FUNCTIONS)))
+    if len(expr.args) != 1 or expr.args[0].name is not None:
+        raise EvalError(error(f"`{expr.func.name}` takes one value", expr.span))
+    return fn(evaluate(expr.args[0].value, scope), expr.span)
+
+
+def _tuple(expr: ast.TupleExpr, scope: Scope) -> tuple:
+    return tuple(evaluate(item, scope) for item in expr.items)
+
+
+def _what(value: object) -> str:
+    if isinstance(value, tuple):
+        return "a list of values"
+    if isinstance(value, SiteRef):
+        return "a site name"
+    return "something else"
+
+
+_HANDLERS = {
+    ast.Number: _number, ast.UnitRef: _unit, ast.NameRef: _name, ast.WithUnit: _with_unit,
+    ast.BinOp: _binop, ast.Neg: _neg, ast.Call: _call, ast.TupleExpr: _tuple,
+}
+
+
+# ---- kind checks -------------------------------------------------------------
+def expect_kind(q: Quantity, dim: tuple[int, ...], span: Span) -> float:
+    """The SI value of q if it has the wanted dimension, else an EvalError.
+
+    A plain number is accepted as an angle in radians (common practice).
+    """
+    if q.dim == dim or (dim == units.ANGLE and q.dim == DIMENSIONLESS):
+        return q.value
+    hint = None
+    if q.dim == DIMENSIONLESS and dim in units.PREFERRED_UNIT:
+        hint = f"add a unit, e.g. `{_example(q.value)} {units.PREFERRED_UNIT[dim]}`"
+    raise EvalError(error(f"expected {units.kind_name(dim)}, got {q.kind}", span, hint))
+
+
+def _example(value: float) -> str:
+    return f"{value:g}"

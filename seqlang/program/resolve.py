@@ -1,0 +1,261 @@
+"""Resolve a sequence file (with its rig and imports) into a checked Program.
+
+Every unknown name, wrong species, unit mismatch and limit violation found
+here is collected; :func:`resolve` raises one :class:`SeqlangError` carrying
+them all. Warnings are returned beside the program.
+"""
+from __future__ import annotations
+
+import hashlib
+import math
+import os
+from dataclasses import dataclass, field
+
+from ..lang import syntax as ast
+from ..lang import units
+from ..lang.diagnostics import ERROR, Diagnostic, SeqlangError, Span, did_you_mean, error, warning
+from ..lang.parser import parse_file
+from . import props as p
+from .evaluate import EvalError, Scope, SiteRef, evaluate, evaluate_any, expect_kind
+from .model import Expectation, Program, Rig, SerialOp, Site
+from .sequence import SequenceResolver
+
+BELL_STATES = ("phi_plus", "phi_minus", "psi_plus", "psi_minus")
+MAX_IMPORT_DEPTH = 20
+
+
+@dataclass
+class Loaded:
+    """Parsed files of one program: the main file, its rig file and imports."""
+
+    main: ast.SourceFile
+    rig: ast.RigDef | None = None
+    rig_path: str | None = None
+    imports: list[ast.SourceFile] = field(default_factory=list)
+    hashes: dict[str, str] = field(default_factory=dict)
+
+
+def resolve(path: str) -> tuple[Program, list[Diagnostic]]:
+    """Parse, resolve and check the sequence file at `path` (warnings returned)."""
+    diags: list[Diagnostic] = []
+    loaded = _load(path, diags)
+    program = _resolve_loaded(loaded, diags)
+    errors = [d for d in diags if d.severity == ERROR]
+    if errors or program is None:
+        raise SeqlangError(diags)
+    return program, diags
+
+
+def _read(path: str, span: Span | None, hashes: dict[str, str], diags: list[Diagnostic]) -> ast.SourceFile | None:
+    try:
+        with open(path, "rb") as handle:
+            raw = handle.read()
+    except OSError as exc:
+        where = span or Span(path, 1, 1, 1, 1)
+        diags.append(error(f"cannot read `{path}`: {exc.strerror or exc}", where))
+        return None
+    hashes[path] = hashlib.sha256(raw).hexdigest()
+    try:
+        from ..lang.parser import parse_text
+        return parse_text(raw.decode("utf-8"), path)
+    except UnicodeDecodeError:
+        diags.append(error(f"`{path}` is not UTF-8 text", span or Span(path, 1, 1, 1, 1)))
+    except SeqlangError as exc:
+        diags.extend(exc.diagnostics)
+    return None
+
+
+def _load(path: str, diags: list[Diagnostic]) -> Loaded | None:
+    hashes: dict[str, str] = {}
+    main = _read(path, None, hashes, diags)
+    if main is None:
+        raise SeqlangError(diags)
+    loaded = Loaded(main, hashes=hashes)
+    _load_rig(loaded, diags)
+    _load_imports(main, loaded, set(), 0, diags)
+    if any(d.severity == ERROR for d in diags):
+        raise SeqlangError(diags)
+    return loaded
+
+
+def _relative(base: str, target: str) -> str:
+    return os.path.normpath(os.path.join(os.path.dirname(base), target))
+
+
+def _load_rig(loaded: Loaded, diags: list[Diagnostic]) -> None:
+    local = [i for i in loaded.main.items if isinstance(i, ast.RigDef)]
+    uses = [i for i in loaded.main.items if isinstance(i, ast.UseStmt)]
+    for extra in uses[1:]:
+        diags.append(error("a sequence uses one rig; this is a second `use`", extra.span))
+    if uses:
+        rig_path = _relative(loaded.main.path, uses[0].path)
+        rig_file = _read(rig_path, uses[0].span, loaded.hashes, diags)
+        local += [i for i in rig_file.items if isinstance(i, ast.RigDef)] if rig_file else []
+        if rig_file is not None and not any(isinstance(i, ast.RigDef) for i in rig_file.items):
+            diags.append(error(f"`{uses[0].path}` holds no `rig` declaration", uses[0].span))
+        loaded.rig_path = rig_path
+    if len(local) > 1:
+        diags.append(error("more than one rig is declared", local[1].span))
+    if local:
+        loaded.rig = local[0]
+        loaded.rig_path = loaded.rig_path or loaded.main.path
+
+
+def _load_imports(source: ast.SourceFile, loaded: Loaded, seen: set[str], depth: int,
+                  diags: list[Diagnostic]) -> None:
+    for stmt in (i for i in source.items if isinstance(i, ast.ImportStmt)):
+        target = _relative(source.path, stmt.path)
+        if target in seen or target == loaded.main.path:
+            continue
+        if depth > MAX_IMPORT_DEPTH:
+            diags.append(error("imports nest too deeply (a cycle?)", stmt.span))
+            return
+        seen.add(target)
+        imported = _read(target, stmt.span, loaded.hashes, diags)
+        if imported is not None:
+            loaded.imports.append(imported)
+            _load_imports(imported, loaded, seen, depth + 1, diags)
+
+
+def _resolve_loaded(loaded: Loaded, diags: list[Diagnostic]) -> Program | None:
+    from .rig import resolve_rig
+    scope = Scope()
+    if loaded.rig is None:
+        diags.append(error("no rig: add `use \"lab.rig\"` at the top of the file",
+                           Span(loaded.main.path, 1, 1, 1, 1)))
+        return None
+    rig = resolve_rig(loaded.rig, loaded.rig_path, scope, diags)
+    files = loaded.imports + [loaded.main]
+    _bind_lets(files, scope, diags)
+    sites = _sites(loaded.main, rig, scope, diags)
+    groups = _groups(loaded.main, sites, diags)
+    blocks = _blocks(files, diags)
+    sequences = [i for i in loaded.main.items if isinstance(i, ast.SequenceDef)]
+    if len(sequences) > 1:
+        diags.append(error("a file holds one `sequence`; this is a second", sequences[1].name.span))
+    name = sequences[0].name.name if sequences else os.path.splitext(os.path.basename(loaded.main.path))[0]
+    resolver = SequenceResolver(rig, sites, groups, blocks, diags)
+    body = resolver.resolve_body(sequences[0].body, scope, sequences[0].span) if sequences \
+        else SerialOp((), Span(loaded.main.path, 1, 1, 1, 1))
+    expects = _expects(loaded.main, sites, groups, diags)
+    return Program(name, loaded.main.path, rig, sites, groups, body, expects,
+                   dict(sorted(loaded.hashes.items())), dict(scope.values))
+
+
+def _bind_lets(files, scope: Scope, diags: list[Diagnostic]) -> None:
+    for source in files:
+        for let in (i for i in source.items if isinstance(i, ast.LetStmt)):
+            if let.name.name in units.UNITS:
+                diags.append(error(f"`{let.name.name}` is a unit and cannot be a constant's name", let.name.span))
+                continue
+            try:
+                scope.values[let.name.name] = evaluate(let.value, scope)
+            except EvalError as exc:
+                diags.append(exc.diagnostic)
+
+
+def _sites(source: ast.SourceFile, rig: Rig, scope: Scope, diags: list[Diagnostic]) -> dict[str, Site]:
+    sites: dict[str, Site] = {}
+    for stmt in (i for i in source.items if isinstance(i, ast.SiteStmt)):
+        if stmt.name.name in sites:
+            diags.append(error(f"site `{stmt.name.name}` is declared twice", stmt.name.span))
+            continue
+        if stmt.species.name not in rig.species:
+            diags.append(error(f"unknown species `{stmt.species.name}`", stmt.species.span,
+                               did_you_mean(stmt.species.name, rig.species)))
+            continue
+        position = _position(stmt.position, scope, diags)
+        if position is not None:
+            sites[stmt.name.name] = Site(stmt.name.name, stmt.species.name, position, stmt.span)
+    _check_distinct_positions(sites, diags)
+    return sites
+
+
+def _position(expr: ast.Expr, scope: Scope, diags: list[Diagnostic]):
+    try:
+        value = evaluate_any(expr, scope)
+    except EvalError as exc:
+        diags.append(exc.diagnostic)
+        return None
+    if not isinstance(value, tuple) or len(value) not in (2, 3):
+        diags.append(error("expected coordinates such as `(0, 5.2) um` or `(0, 0, 1) um`", expr.span))
+        return None
+    try:
+        coords = [expect_kind(q, units.LENGTH, expr.span) for q in value]
+    except EvalError as exc:
+        diags.append(exc.diagnostic)
+        return None
+    return tuple(coords + [0.0] * (3 - len(coords)))
+
+
+def _check_distinct_positions(sites: dict[str, Site], diags: list[Diagnostic]) -> None:
+    seen: dict[tuple, str] = {}
+    for site in sites.values():
+        key = tuple(round(c, 12) for c in site.position_m)
+        if key in seen:
+            diags.append(error(f"site `{site.name}` is at the same place as `{seen[key]}`", site.span))
+        seen[key] = site.name
+
+
+def _groups(source: ast.SourceFile, sites: dict[str, Site], diags: list[Diagnostic]) -> dict[str, tuple[str, ...]]:
+    groups: dict[str, tuple[str, ...]] = {}
+    for stmt in (i for i in source.items if isinstance(i, ast.GroupStmt)):
+        name = stmt.name.name
+        if name in groups or name in sites:
+            diags.append(error(f"`{name}` is already a site or group name", stmt.name.span))
+            continue
+        members: list[str] = []
+        for ident in stmt.members:
+            found = sites.get(ident.name) and (ident.name,) or groups.get(ident.name)
+            if not found:
+                diags.append(error(f"unknown site `{ident.name}`", ident.span,
+                                   did_you_mean(ident.name, list(sites) + list(groups))))
+                continue
+            members += [m for m in found if m not in members]
+        groups[name] = tuple(members)
+    return groups
+
+
+def _blocks(files, diags: list[Diagnostic]) -> dict[str, ast.BlockDef]:
+    blocks: dict[str, ast.BlockDef] = {}
+    for source in files:
+        for block in (i for i in source.items if isinstance(i, ast.BlockDef)):
+            if block.name.name in blocks:
+                diags.append(error(f"block `{block.name.name}` is defined twice", block.name.span))
+            blocks[block.name.name] = block
+    return blocks
+
+
+def _expects(source: ast.SourceFile, sites, groups, diags: list[Diagnostic]) -> tuple[Expectation, ...]:
+    out = []
+    for stmt in (i for i in source.items if isinstance(i, ast.ExpectStmt)):
+        names = []
+        for ident in stmt.sites:
+            if ident.name in sites:
+                names.append(ident.name)
+            elif ident.name in groups:
+                names.extend(groups[ident.name])
+            else:
+                diags.append(error(f"unknown site `{ident.name}`", ident.span,
+                                   did_you_mean(ident.name, list(sites) + list(groups))))
+        state = _expected_state(stmt, len(names), diags)
+        if state is not None and len(names) == len(stmt.sites) or (state and len(names) > 0):
+            out.append(Expectation(tuple(names), state, stmt.is_ket, stmt.span))
+    return tuple(out)
+
+
+def _expected_state(stmt: ast.ExpectStmt, count: int, diags: list[Diagnostic]) -> str | None:
+    if stmt.is_ket:
+        bits = stmt.state.name[1:-1]
+        if len(bits) != count:
+            diags.append(error(f"the ket has {len(bits)} qubits but {count} sites are named", stmt.state.span))
+            return None
+        return bits
+    if stmt.state.name not in BELL_STATES:
+        diags.append(error(f"unknown state `{stmt.state.name}`", stmt.state.span,
+                           did_you_mean(stmt.state.name, BELL_STATES) or f"known: {', '.join(BELL_STATES)}"))
+        return None
+    if count != 2:
+        diags.append(error(f"a Bell state needs two sites, got {count}", stmt.span))
+        return None
+    return stmt.state.name

@@ -1,0 +1,235 @@
+"""Resolve a ``rig`` declaration into a :class:`~seqlang.program.model.Rig`.
+
+>>> # see tests/test_rig.py for full examples
+"""
+from __future__ import annotations
+
+import math
+
+from ..atoms import species as species_table
+from ..lang import syntax as ast
+from ..lang import units
+from ..lang.diagnostics import Diagnostic, did_you_mean, error
+from . import props as p
+from .evaluate import EvalError, Scope, evaluate
+from .model import DRIVE_KINDS, Drive, Imaging, Legs, Port, Rig, Species
+
+RIG_SETTINGS = {
+    "tick": p.Key(p.positive(p.duration, "tick"), required=True, doc="the sequencer clock period, e.g. 2 ns"),
+    "counter_bits": p.Key(p.integer(8, 64), 32, doc="width of the sequencer's duration counter"),
+}
+
+SPECIES_KEYS = {
+    "qubit": p.Key(lambda e, s: e, None, doc="`clock` or `(F=1, mF=0) <-> (F=2, mF=0)`"),
+    "rydberg": p.Key(lambda e, s: e, None, doc="the Rydberg level, e.g. 58S1/2"),
+    "temperature": p.Key(p.non_negative(p.temperature, "temperature"), 0.0),
+    # Noise and preparation data read by the simulator (see docs/language.md).
+    "trap_radial": p.Key(p.non_negative(p.frequency), 0.0),
+    "trap_axial": p.Key(p.non_negative(p.frequency), 0.0),
+    "prep_error": p.Key(p.fraction, 0.0),
+    "t2_star": p.Key(p.non_negative(p.duration), 0.0),
+    "field_noise": p.Key(p.non_negative(p.frequency), 0.0),
+    "field_noise_freq": p.Key(p.non_negative(p.frequency), 0.0),
+}
+
+_COMMON_DRIVE_KEYS = {
+    "rabi": p.Key(p.positive(p.frequency, "maximum Rabi frequency"), required=True,
+                  doc="the maximum Rabi frequency Ω/2π"),
+    "detuning": p.Key(p.frequency_range, p.UNBOUNDED),
+    "reach": p.Key(p.choice("all", "each"), "all"),
+    "port": p.Key(p.channel, required=True, doc="the sequencer output, e.g. awg0.1"),
+    "gate": p.Key(p.channel, None),
+    "gate_lead": p.Key(p.non_negative(p.duration), 0.0),
+    "gate_lag": p.Key(p.non_negative(p.duration), 0.0),
+    "latency": p.Key(p.non_negative(p.duration), 0.0),
+    "rise": p.Key(p.non_negative(p.duration), 0.0),
+    "sample_rate": p.Key(p.positive(p.frequency, "sample rate"), None),
+    "amplitude_bits": p.Key(p.integer(1, 32), 16),
+    # Noise data read by the simulator.
+    "linewidth": p.Key(p.non_negative(p.frequency), 0.0),
+    "intensity_noise": p.Key(p.fraction, 0.0),
+    "detuning_error": p.Key(p.frequency, 0.0),
+    "waist": p.Key(p.non_negative(p.length), 0.0),
+    "servo_bump": p.Key(p.non_negative(p.frequency), 0.0),
+    "servo_width": p.Key(p.non_negative(p.frequency), 0.0),
+    "servo_height": p.Key(p.non_negative(p.quantity(units.DIMENSIONLESS)), 0.0),
+}
+
+_RYDBERG_KEYS = {
+    "lower_wavelength": p.Key(p.positive(p.length, "wavelength"), None),
+    "upper_wavelength": p.Key(p.positive(p.length, "wavelength"), None),
+    "intermediate": p.Key(p.frequency, None, doc="the intermediate-state detuning Δ/2π"),
+    "lower_rabi": p.Key(p.positive(p.frequency), None),
+    "upper_rabi": p.Key(p.positive(p.frequency), None),
+    "geometry": p.Key(p.choice("counter", "co"), "counter"),
+}
+
+IMAGE_KEYS = {
+    "port": p.Key(p.channel, required=True, doc="the camera or light output, e.g. ttl.9"),
+    "duration": p.Key(p.positive(p.duration, "imaging time"), required=True),
+    "fidelity": p.Key(p.fraction, 1.0),
+    "loss": p.Key(p.fraction, 0.0),
+    "latency": p.Key(p.non_negative(p.duration), 0.0),
+    "false_positive": p.Key(p.fraction, 0.0),
+    "false_negative": p.Key(p.fraction, 0.0),
+}
+
+PORT_KEYS = {
+    "kind": p.Key(p.choice("digital", "analog"), "digital"),
+    "latency": p.Key(p.non_negative(p.duration), 0.0),
+    "width": p.Key(p.positive(p.duration, "trigger width"), 1e-6),
+    "range": p.Key(p.any_range, None),
+}
+
+
+def drive_keys(kind: str) -> dict[str, p.Key]:
+    """The properties a drive of this kind accepts."""
+    return {**_COMMON_DRIVE_KEYS, **(_RYDBERG_KEYS if kind == "rydberg" else {})}
+
+
+def resolve_rig(rig: ast.RigDef, path: str, scope: Scope, diags: list[Diagnostic]) -> Rig:
+    """Build the Rig; every problem found is appended to `diags`."""
+    _bind_lets(rig.lets, scope, diags)
+    settings = p.read_props(rig.settings, RIG_SETTINGS, scope, f"rig `{rig.name.name}`", rig.name.span, diags)
+    species = _unique(rig.species, lambda d: d.name, "species", diags)
+    species_map = {name: _species(decl, scope, diags) for name, decl in species.items()}
+    drives = _unique(rig.drives, lambda d: d.name, "drive", diags)
+    drive_map = {name: _drive(decl, species_map, scope, settings["tick"], diags) for name, decl in drives.items()}
+    images = _unique(rig.images, lambda d: d.species, "imaging", diags)
+    image_map = {name: _imaging(decl, species_map, scope, diags) for name, decl in images.items()}
+    ports = _unique(rig.ports, lambda d: d.name, "port", diags)
+    port_map = {name: _port(decl, scope, diags) for name, decl in ports.items()}
+    return Rig(rig.name.name, path, settings["tick"] or 1e-9, settings["counter_bits"],
+               {k: v for k, v in species_map.items() if v is not None},
+               {k: v for k, v in drive_map.items() if v is not None},
+               {k: v for k, v in image_map.items() if v is not None}, port_map, rig.span)
+
+
+def _bind_lets(lets, scope: Scope, diags: list[Diagnostic]) -> None:
+    for let in lets:
+        try:
+            scope.values[let.name.name] = evaluate(let.value, scope)
+        except EvalError as exc:
+            diags.append(exc.diagnostic)
+
+
+def _unique(decls, name_of, what: str, diags: list[Diagnostic]) -> dict:
+    out: dict = {}
+    for decl in decls:
+        ident = name_of(decl)
+        if ident.name in out:
+            diags.append(error(f"{what} `{ident.name}` is declared twice", ident.span))
+        else:
+            out[ident.name] = decl
+    return out
+
+
+def _species(decl: ast.SpeciesDecl, scope: Scope, diags: list[Diagnostic]) -> Species | None:
+    isotope = decl.isotope.name
+    try:
+        data = species_table.lookup(isotope)
+    except KeyError:
+        diags.append(error(f"unknown isotope `{isotope}`", decl.isotope.span,
+                           did_you_mean(isotope, species_table.names())
+                           or f"known: {', '.join(species_table.names())}"))
+        return None
+    values = p.read_props(decl.props, SPECIES_KEYS, scope, f"species `{decl.name.name}`", decl.name.span, diags)
+    qubit = _qubit(values["qubit"], data, diags)
+    level = _level(values["rydberg"], data, diags)
+    extra = {k: v for k, v in values.items() if k not in ("qubit", "rydberg", "temperature", "__spans__")}
+    return Species(decl.name.name, data, qubit, level, values["temperature"] or 0.0, extra, decl.span)
+
+
+def _qubit(expr, data, diags: list[Diagnostic]):
+    clock = species_table.clock_states(data)
+    if expr is None or (isinstance(expr, ast.NameRef) and expr.name == "clock"):
+        return clock
+    if not isinstance(expr, ast.StatePair):
+        diags.append(error("expected `clock` or `(F=…, mF=…) <-> (F=…, mF=…)`", expr.span))
+        return clock
+    try:
+        states = (_hf_state(expr.lower, expr.span), _hf_state(expr.upper, expr.span))
+        species_table.qubit_frequency_hz(data, *states)
+        return states
+    except (EvalError, ValueError) as exc:
+        diags.append(exc.diagnostic if isinstance(exc, EvalError) else error(str(exc), expr.span))
+        return clock
+
+
+def _hf_state(items, span):
+    values = {}
+    for ident, expr in items:
+        if ident.name not in ("F", "mF"):
+            raise EvalError(error(f"expected `F` or `mF`, got `{ident.name}`", ident.span))
+        values[ident.name] = p.quantity(units.DIMENSIONLESS)(expr, Scope())
+    if set(values) != {"F", "mF"}:
+        raise EvalError(error("a hyperfine state needs both `F` and `mF`", span))
+    return species_table.QubitState(values["F"], values["mF"])
+
+
+def _level(expr, data, diags: list[Diagnostic]):
+    if expr is None:
+        return None
+    if not isinstance(expr, ast.LevelExpr):
+        diags.append(error("expected a Rydberg level such as `58S1/2`", expr.span))
+        return None
+    try:
+        return species_table.parse_level(expr.text, data)
+    except ValueError as exc:
+        diags.append(error(str(exc), expr.span))
+        return None
+
+
+def _drive(decl: ast.DriveDecl, species: dict, scope: Scope, tick: float | None,
+           diags: list[Diagnostic]) -> Drive | None:
+    kind, owner = decl.kind.name, f"drive `{decl.name.name}`"
+    if kind not in DRIVE_KINDS:
+        diags.append(error(f"unknown drive kind `{kind}`", decl.kind.span,
+                           did_you_mean(kind, DRIVE_KINDS) or f"known: {', '.join(DRIVE_KINDS)}"))
+        return None
+    if decl.species.name not in species:
+        diags.append(error(f"unknown species `{decl.species.name}`", decl.species.span,
+                           did_you_mean(decl.species.name, species)))
+        return None
+    v = p.read_props(decl.props, drive_keys(kind), scope, owner, decl.name.span, diags)
+    if v["rabi"] is None or v["port"] is None:
+        return None
+    legs = _legs(v, decl, species[decl.species.name], diags) if kind == "rydberg" else None
+    extra = {k: v[k] for k in ("linewidth", "intensity_noise", "detuning_error", "waist",
+                               "servo_bump", "servo_width", "servo_height")}
+    return Drive(decl.name.name, kind, decl.species.name, v["reach"], v["rabi"], v["detuning"],
+                 v["port"], v["gate"], v["gate_lead"], v["gate_lag"], v["latency"], v["rise"],
+                 v["sample_rate"] or 1.0 / (tick or 1e-9), v["amplitude_bits"], legs, extra, decl.span)
+
+
+def _legs(v: dict, decl: ast.DriveDecl, sp: Species | None, diags: list[Diagnostic]) -> Legs | None:
+    if sp is not None and sp.rydberg is None:
+        diags.append(error(f"rydberg drive `{decl.name.name}` needs a Rydberg level on species "
+                           f"`{decl.species.name}`", decl.species.span, "add `rydberg 58S1/2` to the species"))
+    if v["lower_wavelength"] is None or v["upper_wavelength"] is None:
+        return None
+    return Legs(v["lower_wavelength"], v["upper_wavelength"], v["intermediate"] or math.inf,
+                v["geometry"] == "counter", v["lower_rabi"], v["upper_rabi"])
+
+
+def _imaging(decl: ast.ImageDecl, species: dict, scope: Scope, diags: list[Diagnostic]) -> Imaging | None:
+    if decl.species.name not in species:
+        diags.append(error(f"unknown species `{decl.species.name}`", decl.species.span,
+                           did_you_mean(decl.species.name, species)))
+        return None
+    v = p.read_props(decl.props, IMAGE_KEYS, scope, f"imaging of `{decl.species.name}`", decl.species.span, diags)
+    if v["port"] is None or v["duration"] is None:
+        return None
+    extra = {"false_positive": v["false_positive"], "false_negative": v["false_negative"]}
+    return Imaging(decl.species.name, v["port"], v["duration"], v["fidelity"], v["loss"], v["latency"],
+                   extra, decl.span)
+
+
+def _port(decl: ast.PortDecl, scope: Scope, diags: list[Diagnostic]) -> Port:
+    v = p.read_props(decl.props, PORT_KEYS, scope, f"port `{decl.name.name}`", decl.name.span, diags)
+    value_range = v["range"]
+    if value_range is not None and v["kind"] == "digital":
+        diags.append(error("a digital port has no value range", v["__spans__"]["range"], "add `kind analog`"))
+    bounds = (value_range[0], value_range[1]) if value_range else None
+    return Port(decl.name.name, decl.channel.text, v["kind"], v["latency"], v["width"], bounds,
+                value_range[2] if value_range else None, decl.span)

@@ -1,0 +1,114 @@
+"""timing.csv and timing.json (formats in docs/output-formats.md).
+
+Both are deterministic: fixed key order, fixed float formatting, paths
+relative to the sequence file's directory, no timestamps.
+"""
+from __future__ import annotations
+
+import csv
+import io
+import json
+import os
+
+from .. import __version__
+from ..compile.pipeline import Checked
+from ..compile.timeline import Event
+
+FORMAT = "seqlang-timing/1"
+CAUTION = ("These tables drive lasers, RF amplifiers and electrodes. Review them before they drive "
+           "hardware; seqlang's limits are no substitute for hardware interlocks; laser, RF and "
+           "high-voltage safety follow local rules and the lab's licensed safety officer.")
+CSV_COLUMNS = ("port", "tick", "ticks", "kind", "drive", "rabi_hz", "amplitude", "detuning_hz",
+               "phase_rad", "shape", "targets", "value", "event", "source")
+
+
+def _num(x: float) -> float | int:
+    """Stable float formatting: 12 significant digits, integers stay integers."""
+    if float(x).is_integer() and abs(x) < 2**53:
+        return int(x)
+    return float(f"{x:.12g}")
+
+
+def _relative(checked: Checked, path: str) -> str:
+    base = os.path.dirname(os.path.abspath(checked.program.path))
+    return os.path.relpath(os.path.abspath(path), base).replace(os.sep, "/")
+
+
+def _source(checked: Checked, source: str) -> str:
+    path, line = source.rsplit(":", 1)
+    return f"{_relative(checked, path)}:{line}"
+
+
+def timing_csv(checked: Checked) -> str:
+    """One row per port event, in issue order, with the source line that made it."""
+    out = io.StringIO()
+    out.write(f"# seqlang {__version__} timing table ({FORMAT}); tick_ns={_num(checked.plan.tick_s * 1e9)}; "
+              f"shift_ticks={checked.plan.shift_ticks}\n")
+    out.write(f"# CAUTION: {CAUTION}\n")
+    writer = csv.writer(out, lineterminator="\n")
+    writer.writerow(CSV_COLUMNS)
+    for e in checked.plan.rows():
+        writer.writerow([e.port, e.tick, e.ticks, e.kind, e.drive, _num(e.rabi_hz), _num(e.amplitude),
+                         _num(e.detuning_hz), _num(e.phase_rad), e.shape, " ".join(e.targets), _num(e.value),
+                         e.event, _source(checked, e.source)])
+    return out.getvalue()
+
+
+def _port_entry(checked: Checked, e) -> dict:
+    entry = {"tick": e.tick, "ticks": e.ticks, "kind": e.kind, "event": e.event,
+             "source": _source(checked, e.source)}
+    if e.kind == "pulse":
+        entry.update(drive=e.drive, rabi_hz=_num(e.rabi_hz), amplitude=_num(e.amplitude),
+                     detuning_hz=_num(e.detuning_hz), phase_rad=_num(e.phase_rad), shape=e.shape,
+                     targets=list(e.targets))
+    elif e.kind == "gate":
+        entry.update(drive=e.drive)
+    elif e.kind in ("set", "switch"):
+        entry.update(value=_num(e.value))
+    return entry
+
+
+def timeline_entry(checked: Checked, e: Event) -> dict:
+    """One drive-level event in physical units (nanoseconds, Hz, rad)."""
+    return {
+        "index": e.index, "kind": e.kind, "start_ns": _num(e.start_s * 1e9),
+        "duration_ns": _num(e.duration_s * 1e9), "drive": e.drive, "port": e.port,
+        "targets": list(e.targets), "species": e.species, "rabi_hz": _num(e.rabi_hz),
+        "detuning_hz": _num(e.detuning_hz), "phase_rad": _num(e.phase_rad), "area_rad": _num(e.area_rad),
+        "shape": e.shape.kind, "shape_params": {k: _num(v) for k, v in e.shape.params},
+        "record": e.record, "value": _num(e.value),
+        "source": f"{_relative(checked, e.span.file)}:{e.span.line}",
+    }
+
+
+def provenance(checked: Checked) -> dict:
+    """Tool version, SHA-256 of every source file, tick."""
+    return {
+        "tool": "seqlang", "version": __version__, "format": FORMAT,
+        "sequence": _relative(checked, checked.program.path),
+        "sources": {_relative(checked, p): h for p, h in sorted(checked.program.sources.items())},
+        "rig": _relative(checked, checked.program.rig.path), "tick_ns": _num(checked.plan.tick_s * 1e9),
+    }
+
+
+def timing_json(checked: Checked) -> str:
+    """Per-port event lists, the drive-level timeline, the compile report and provenance."""
+    plan, report = checked.plan, checked.plan.report
+    document = {
+        "caution": CAUTION,
+        "provenance": provenance(checked),
+        "tick_ns": _num(plan.tick_s * 1e9),
+        "shift_ticks": plan.shift_ticks,
+        "shift_ns": _num(plan.shift_s * 1e9),
+        "duration_ns": _num(checked.quantized.duration_s * 1e9),
+        "latency_ticks": dict(sorted(plan.latency_ticks.items())),
+        "report": {
+            "max_area_error_rad": _num(report.max_area_error_rad),
+            "max_timing_error_ns": _num(report.max_timing_error_s * 1e9),
+            "pulses_stretched_one_tick": report.stretched,
+            "area_error_rad": {str(i): _num(err) for i, err in report.area_errors_rad},
+        },
+        "ports": {port: [_port_entry(checked, e) for e in events] for port, events in plan.ports.items()},
+        "timeline": [timeline_entry(checked, e) for e in checked.quantized.events],
+    }
+    return json.dumps(document, indent=1, sort_keys=False, ensure_ascii=False) + "\n"

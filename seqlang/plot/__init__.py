@@ -1,0 +1,1 @@
+"""Matplotlib figures (the Agg backend: no screen needed)."""

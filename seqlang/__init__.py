@@ -7,3 +7,12 @@ from .api import Sequence, load  # noqa: E402
 from .lang.diagnostics import SeqlangError  # noqa: E402
 
 __all__ = ["Sequence", "SeqlangError", "load", "__version__"]
+
+
+def simulate(source, **options):
+    """Simulate a sequence file or loaded :class:`Sequence`; see :mod:`seqlang.sim`."""
+    from .sim.api import simulate as _simulate
+    return _simulate(source, **options)
+
+
+__all__.append("simulate")

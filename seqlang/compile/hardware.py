@@ -9,11 +9,11 @@ overlapping gate windows on one line merge (the gate stays open).
 from __future__ import annotations
 
 from collections import defaultdict
-from dataclasses import dataclass, replace
+from dataclasses import dataclass
 
 from ..program.model import Program
 from .quantize import QuantizeReport
-from .timeline import IMAGE, PULSE, Event, Timeline
+from .timeline import IMAGE, PULSE, Event, Timeline, evolve
 
 GATE = "gate"
 
@@ -63,14 +63,13 @@ def plan(program: Program, timeline: Timeline, report: QuantizeReport) -> Hardwa
     """Build the per-port tables from a quantized timeline."""
     tick = program.rig.tick_s
     latencies = _latencies(program)
+    shift = _shift_needed(program, timeline, tick, latencies)
     raw: list[PortEvent] = []
     for event in timeline.events:
-        raw += _port_events(program, event, tick, latencies)
-    raw = _merge_gates(raw)
-    shift = max(0, -min((e.tick for e in raw), default=0))
+        raw += _port_events(program, event, tick, latencies, shift)
     ports: dict[str, list[PortEvent]] = defaultdict(list)
-    for entry in raw:
-        ports[entry.port].append(replace(entry, tick=entry.tick + shift))
+    for entry in _merge_gates(raw):
+        ports[entry.port].append(entry)
     ordered = {p: tuple(sorted(es, key=lambda e: (e.tick, e.kind, e.event))) for p, es in sorted(ports.items())}
     shifted = _shift_timeline(timeline, shift * tick)
     return HardwarePlan(tick, shift, ordered, shifted, report, latencies)
@@ -99,8 +98,25 @@ def _source(event: Event) -> str:
     return f"{event.span.file}:{event.span.line}"
 
 
-def _port_events(program: Program, event: Event, tick: float, latency: dict[str, int]) -> list[PortEvent]:
-    start, length = _ticks(event.start_s, tick), _ticks(event.duration_s, tick)
+def _earliest_issue(program: Program, event: Event, tick: float, latency: dict[str, int]) -> int:
+    """The earliest issue tick this event needs, before any shift."""
+    start = _ticks(event.start_s, tick)
+    if event.kind == PULSE:
+        drive = program.rig.drives[event.drive]
+        gate = _ticks(drive.gate_lead_s, tick) + latency[drive.gate] if drive.gate else 0
+        return start - max(latency[drive.port], gate)
+    return start - latency.get(event.port, 0)
+
+
+def _shift_needed(program: Program, timeline: Timeline, tick: float, latency: dict[str, int]) -> int:
+    """Ticks by which everything must move later so that no output is issued before tick 0."""
+    earliest = min((_earliest_issue(program, e, tick, latency) for e in timeline.events), default=0)
+    return max(0, -earliest)
+
+
+def _port_events(program: Program, event: Event, tick: float, latency: dict[str, int],
+                 shift: int) -> list[PortEvent]:
+    start, length = _ticks(event.start_s, tick) + shift, _ticks(event.duration_s, tick)
     if event.kind == PULSE:
         drive = program.rig.drives[event.drive]
         amplitude = event.rabi_hz / drive.max_rabi_hz
@@ -127,7 +143,7 @@ def _merge_gates(entries: list[PortEvent]) -> list[PortEvent]:
         last = merged[-1] if merged else None
         if last is not None and last.port == gate.port and gate.tick <= last.tick + last.ticks:
             end = max(last.tick + last.ticks, gate.tick + gate.ticks)
-            merged[-1] = replace(last, ticks=end - last.tick)
+            merged[-1] = evolve(last, ticks=end - last.tick)
         else:
             merged.append(gate)
     return [e for e in entries if e.kind != GATE] + merged
@@ -136,5 +152,5 @@ def _merge_gates(entries: list[PortEvent]) -> list[PortEvent]:
 def _shift_timeline(timeline: Timeline, shift_s: float) -> Timeline:
     if shift_s == 0:
         return timeline
-    events = tuple(replace(e, start_s=e.start_s + shift_s) for e in timeline.events)
-    return replace(timeline, events=events, duration_s=timeline.duration_s + shift_s, shift_s=shift_s)
+    events = tuple(evolve(e, start_s=e.start_s + shift_s) for e in timeline.events)
+    return evolve(timeline, events=events, duration_s=timeline.duration_s + shift_s, shift_s=shift_s)

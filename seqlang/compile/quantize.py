@@ -8,13 +8,13 @@ left of the area error after that is reported per pulse.
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass, replace
+from dataclasses import dataclass
 
 from ..lang import units
 from ..lang.diagnostics import Diagnostic, error
 from ..program.model import Drive, Program
 from . import envelopes
-from .timeline import PULSE, Event, Timeline
+from .timeline import PULSE, Event, Timeline, evolve
 
 
 @dataclass(frozen=True)
@@ -41,7 +41,7 @@ def quantize(program: Program, timeline: Timeline) -> tuple[Timeline, QuantizeRe
             errors.append((event.index, error_rad))
             stretched += grew
         else:
-            event = replace(event, start_s=start * tick, duration_s=(end - start) * tick)
+            event = evolve(event, start_s=start * tick, duration_s=(end - start) * tick)
         events.append(event)
     total = math.ceil(round(timeline.duration_s / tick, 6)) * tick
     total = max([total] + [e.end_s for e in events])
@@ -72,7 +72,7 @@ def _pulse(drive: Drive, event: Event, start: int, end: int, tick: float) -> tup
     played = _amplitude_rounded(rabi, drive)
     duration = (end - start) * tick
     area = envelopes.pulse_area(event.shape, duration, played)
-    quantized = replace(event, start_s=start * tick, duration_s=duration, rabi_hz=played, area_rad=area)
+    quantized = evolve(event, start_s=start * tick, duration_s=duration, rabi_hz=played, area_rad=area)
     return quantized, area - event.area_rad, grew
 
 

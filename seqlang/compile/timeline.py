@@ -51,3 +51,17 @@ class Timeline:
 
     def pulses(self) -> tuple[Event, ...]:
         return tuple(e for e in self.events if e.kind == PULSE)
+
+
+def evolve(obj, **changes):
+    """A copy of a frozen dataclass with some fields changed.
+
+    Same result as :func:`dataclasses.replace` for these plain dataclasses (no
+    ``__post_init__``, no init-only fields), several times faster, which matters
+    for programs of 10⁵ events.
+    """
+    new = object.__new__(type(obj))
+    fields = dict(obj.__dict__)
+    fields.update(changes)
+    new.__dict__.update(fields)
+    return new

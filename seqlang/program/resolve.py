@@ -7,16 +7,14 @@ them all. Warnings are returned beside the program.
 from __future__ import annotations
 
 import hashlib
-import math
 import os
 from dataclasses import dataclass, field
 
 from ..lang import syntax as ast
 from ..lang import units
-from ..lang.diagnostics import ERROR, Diagnostic, SeqlangError, Span, did_you_mean, error, warning
-from ..lang.parser import parse_file
-from . import props as p
-from .evaluate import EvalError, Scope, SiteRef, evaluate, evaluate_any, expect_kind
+from ..lang.diagnostics import ERROR, Diagnostic, SeqlangError, Span, did_you_mean, error
+from ..lang.parser import parse_text
+from .evaluate import EvalError, Scope, evaluate, evaluate_any, expect_kind
 from .model import Expectation, Program, Rig, SerialOp, Site
 from .sequence import SequenceResolver
 
@@ -56,7 +54,6 @@ def _read(path: str, span: Span | None, hashes: dict[str, str], diags: list[Diag
         return None
     hashes[path] = hashlib.sha256(raw).hexdigest()
     try:
-        from ..lang.parser import parse_text
         return parse_text(raw.decode("utf-8"), path)
     except UnicodeDecodeError:
         diags.append(error(f"`{path}` is not UTF-8 text", span or Span(path, 1, 1, 1, 1)))
@@ -239,7 +236,7 @@ def _expects(source: ast.SourceFile, sites, groups, diags: list[Diagnostic]) -> 
                 diags.append(error(f"unknown site `{ident.name}`", ident.span,
                                    did_you_mean(ident.name, list(sites) + list(groups))))
         state = _expected_state(stmt, len(names), diags)
-        if state is not None and len(names) == len(stmt.sites) or (state and len(names) > 0):
+        if state is not None:
             out.append(Expectation(tuple(names), state, stmt.is_ket, stmt.span))
     return tuple(out)
 

@@ -239,7 +239,7 @@ class SequenceResolver:
             self.diags.append(error(
                 f"drive `{drive.name}` reaches all `{drive.species}` atoms at once; it cannot address only "
                 f"{', '.join(chosen)}", stmt.targets[0].span,
-                f"drop `on …`, or declare the drive with `reach each`"))
+                "drop `on …`, or declare the drive with `reach each`"))
             return None
         return tuple(sorted(chosen, key=list(self.sites).index)) if chosen else None
 

@@ -1,0 +1,78 @@
+"""`seqlang simulate`: register the command and print its results."""
+from __future__ import annotations
+
+import json
+import sys
+
+import numpy as np
+
+from ..lang.diagnostics import render, sort_diagnostics
+from .model import LEVELS
+from .solve import level_populations
+
+
+def register(sub) -> None:
+    p = sub.add_parser("simulate", help="simulate the played timeline: fidelities, correlators, populations")
+    p.add_argument("file", help="a sequence file (*.seq)")
+    p.add_argument("--json", action="store_true", help="print one JSON object instead of the summary")
+    p.set_defaults(run=cmd_simulate)
+
+
+def cmd_simulate(args) -> int:
+    from ..cli import _load
+    from .api import simulate
+    sequence = _load(args.file)
+    result = simulate(sequence)
+    for diagnostic in sort_diagnostics(result.warnings):
+        print(render(diagnostic), file=sys.stderr)
+    document = as_document(result)
+    print(json.dumps(document, indent=1) if args.json else summary(document))
+    return 0
+
+
+def as_document(result) -> dict:
+    """The JSON form: expectations, records, final level populations, interactions."""
+    sites = {}
+    for cluster in result.clusters:
+        pops = level_populations(cluster.model, list(cluster.branches))
+        for name, row in zip(cluster.model.sites, pops):
+            sites[name] = {level: _r(p) for level, p in zip(LEVELS, row)}
+    return {
+        "program": result.program_name,
+        "expectations": list(result.expectations),
+        "records": result.records,
+        "site_populations": sites,
+        "interactions_hz": {f"{a}-{b}": _r(v) for (a, b), v in sorted(result.interactions_hz.items())},
+        "clusters": [list(c.model.sites) for c in result.clusters],
+        "note": "model prediction for the played (tick-quantized) timeline; not a guarantee of the apparatus",
+    }
+
+
+def _r(x: float) -> float:
+    value = round(float(x), 12)
+    return 0.0 if value == 0 else value
+
+
+def summary(document: dict) -> str:
+    lines = [f"simulated {document['program']} (clusters: "
+             + ", ".join("{" + ",".join(c) + "}" for c in document["clusters"]) + ")"]
+    for e in document["expectations"]:
+        lines.append(f"\nexpect {', '.join(e['sites'])} as {e['state']}: fidelity {e['fidelity']:.6f}")
+        lines.append("  populations " + "  ".join(f"{k}: {v:.5f}" for k, v in e["populations"].items()))
+        lines.append(f"  residual Rydberg {e['residual_rydberg']:.3g}   lost {e['loss']:.3g}")
+        if "correlators" in e:
+            c = e["correlators"]
+            for a in "XYZ":
+                lines.append("  " + "  ".join(f"<{a}{b}> {c[a + b]:+.4f}" for b in "XYZ"))
+        for cond in e["conditioned"]:
+            lines.append(f"  given {cond['record']}[{cond['site']}] = {cond['outcome']} "
+                         f"(p = {cond['probability']:.4f}): fidelity {cond['fidelity']:.6f}")
+    lines.append("\nfinal level populations per site:")
+    for site, pops in document["site_populations"].items():
+        lines.append(f"  {site}: " + "  ".join(f"|{k}> {v:.5f}" for k, v in pops.items()))
+    for record, sites in document["records"].items():
+        lines.append(f"record {record}: P(bright) " + ", ".join(f"{s} {p:.5f}" for s, p in sites.items()))
+    return "\n".join(lines)
+
+
+__all__ = ["register", "as_document", "summary", "np"]

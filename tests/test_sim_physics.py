@@ -238,3 +238,12 @@ def test_exact_segment_step_matches_qutip_sesolve():
     exact = solve._qutip_step(h, psi, segment.duration_s, None, 2)
     reference = solve.sesolve_step(h, psi, segment.duration_s, 2)
     assert np.max(np.abs(exact - reference)) < 1e-6
+
+
+@pytest.mark.parametrize("what", ["populations", "correlators", "timeline"])
+def test_plots_render_png(tmp_path, what):
+    out = tmp_path / f"{what}.png"
+    run = subprocess.run([sys.executable, "-m", "seqlang", "plot", os.path.join(ROOT, "programs", "bell_pair.seq"),
+                          "--what", what, "-o", str(out)], capture_output=True, text=True)
+    assert run.returncode == 0, run.stderr
+    assert out.read_bytes()[:8] == b"\x89PNG\r\n\x1a\n"

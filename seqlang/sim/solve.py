@@ -19,6 +19,7 @@ import numpy as np
 from .model import DIM, G0, G1, Model, Segment, embed, hamiltonian, interaction_hamiltonian, projector
 
 MIN_WEIGHT = 1e-14
+HISTORY_STEPS = 40  # samples per driven segment when populations are recorded for a plot
 SOLVER_OPTIONS = {"atol": 1e-11, "rtol": 1e-9, "nsteps": 100_000}
 
 
@@ -53,11 +54,22 @@ def propagate(model: Model, c_ops: list[np.ndarray] | None = None,
     for segment in model.segments:
         if segment.image is not None:
             branches = _measure(model, branches, segment)
+            if record_history:
+                history.append((segment.start_s, level_populations(model, branches)))
         elif segment.duration_s > 0:
-            branches = [Branch(b.outcomes, _evolve(model, segment, b.state, h_int, c_ops)) for b in branches]
-        if record_history:
-            history.append((segment.start_s + segment.duration_s, level_populations(model, branches)))
+            for piece in _pieces(segment, record_history):
+                branches = [Branch(b.outcomes, _evolve(model, piece, b.state, h_int, c_ops)) for b in branches]
+                if record_history:
+                    history.append((piece.start_s + piece.duration_s, level_populations(model, branches)))
     return branches, history
+
+
+def _pieces(segment: Segment, fine: bool) -> list[Segment]:
+    """The segment itself, or (for drawing populations) equal sub-steps of a driven segment."""
+    if not fine or not segment.couplings:
+        return [segment]
+    step = segment.duration_s / HISTORY_STEPS
+    return [Segment(segment.start_s + k * step, step, segment.couplings) for k in range(HISTORY_STEPS)]
 
 
 def _evolve(model: Model, segment: Segment, state: np.ndarray, h_int: np.ndarray, c_ops) -> np.ndarray:

@@ -5,7 +5,7 @@
 """
 from __future__ import annotations
 
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 
 import numpy as np
 
@@ -13,9 +13,9 @@ from ..lang.diagnostics import Diagnostic, warning
 from . import observables
 from .clusters import clusters as find_clusters
 from .model import Model, build_model, pair_interactions_hz
-from .solve import Branch, density_matrix, propagate
+from .solve import Branch, density_matrix, drop_intermediate, propagate
 
-OPTIONS = {"interactions_hz": None, "history": False}
+OPTIONS = {"interactions_hz": None, "history": False, "ladder": False}
 # Outcomes rarer than this are not worth a conditioned report.
 MIN_CONDITION_PROBABILITY = 1e-9
 
@@ -93,9 +93,10 @@ def simulate(source, **options) -> SimulationResult:
         warnings = _forster_warnings(program)
     results = []
     for group in find_clusters(program, timeline, interactions):
-        model = build_model(program, timeline, group, interactions)
+        model = build_model(program, timeline, group, interactions, ladder=options["ladder"])
         branches, history = propagate(model, record_history=options["history"])
-        results.append(ClusterResult(model, tuple(branches), tuple(history)))
+        branches = drop_intermediate(model, branches)
+        results.append(ClusterResult(replace(model, dim=4), tuple(branches), tuple(history)))
     expectations = tuple(_expectation(program, results, e) for e in program.expects)
     return SimulationResult(program.name, tuple(results), expectations, _records(results), interactions,
                             tuple(warnings))

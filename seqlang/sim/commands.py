@@ -15,6 +15,8 @@ def register(sub) -> None:
     p = sub.add_parser("simulate", help="simulate the played timeline: fidelities, correlators, populations")
     p.add_argument("file", help="a sequence file (*.seq)")
     p.add_argument("--json", action="store_true", help="print one JSON object instead of the summary")
+    p.add_argument("--ladder", action="store_true",
+                   help="keep the intermediate state of Rydberg drives explicit (needs the legs' Rabi frequencies)")
     p.set_defaults(run=cmd_simulate)
 
 
@@ -22,7 +24,7 @@ def cmd_simulate(args) -> int:
     from ..cli import _load
     from .api import simulate
     sequence = _load(args.file)
-    result = simulate(sequence)
+    result = simulate(sequence, ladder=args.ladder)
     for diagnostic in sort_diagnostics(result.warnings):
         print(render(diagnostic), file=sys.stderr)
     document = as_document(result)

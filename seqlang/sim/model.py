@@ -24,6 +24,8 @@ from ..program.model import Program
 LEVELS = ("0", "1", "r", "x")
 DIM = len(LEVELS)
 G0, G1, RYD, LOST = range(DIM)
+INTERMEDIATE = 4  # |e⟩, present only in the explicit-ladder mode
+LADDER_DIM = DIM + 1
 TRANSITION = {"microwave": (G0, G1), "raman": (G0, G1), "rydberg": (G1, RYD)}
 # Shaped pulses are played as this many piecewise-constant steps (midpoint samples)
 # unless the drive's sample rate asks for fewer.
@@ -43,6 +45,15 @@ class Drive1:
 
 
 @dataclass(frozen=True)
+class LevelShift:
+    """A light shift of one level of one site while a pulse plays (rad/s, added to H)."""
+
+    site: int
+    level: int
+    shift: float
+
+
+@dataclass(frozen=True)
 class Segment:
     """A time interval with constant couplings; `image` is set for a measurement point."""
 
@@ -50,6 +61,7 @@ class Segment:
     duration_s: float
     couplings: tuple[Drive1, ...]
     image: Event | None = None
+    shifts: tuple[LevelShift, ...] = ()
 
 
 @dataclass(frozen=True)
@@ -60,6 +72,7 @@ class Model:
     species: tuple[str, ...]
     interactions: dict[tuple[int, int], float]
     segments: tuple[Segment, ...]
+    dim: int = DIM
 
     @property
     def size(self) -> int:
@@ -81,15 +94,19 @@ def pair_interactions_hz(program: Program, sites: tuple[str, ...]) -> dict[tuple
 
 
 def build_model(program: Program, timeline: Timeline, sites: tuple[str, ...],
-                interactions_hz: dict[tuple[str, str], float]) -> Model:
-    """The model of the atoms in `sites` under the played `timeline`."""
+                interactions_hz: dict[tuple[str, str], float], ladder: bool = False) -> Model:
+    """The model of the atoms in `sites` under the played `timeline`.
+
+    With ``ladder`` the intermediate state of every Rydberg drive with declared
+    legs is kept explicit (five levels per atom) instead of being eliminated.
+    """
     index = {name: i for i, name in enumerate(sites)}
     pairs = {(index[a], index[b]): 2 * math.pi * v for (a, b), v in interactions_hz.items()
              if a in index and b in index}
     relevant = [e for e in timeline.events if e.kind in (PULSE, IMAGE) and set(e.targets) & set(sites)]
-    segments = _segments(program, relevant, index, timeline.duration_s)
+    segments = _segments(program, relevant, index, timeline.duration_s, ladder)
     species = tuple(program.sites[s].species for s in sites)
-    return Model(tuple(sites), species, pairs, tuple(segments))
+    return Model(tuple(sites), species, pairs, tuple(segments), LADDER_DIM if ladder else DIM)
 
 
 def _tick(t: float, tick: float) -> int:
@@ -106,7 +123,8 @@ def _boundaries(events: list[Event], total: int, tick: float) -> list[int]:
     return sorted(t for t in times if 0 <= t <= total)
 
 
-def _segments(program: Program, events: list[Event], index: dict[str, int], total_s: float) -> list[Segment]:
+def _segments(program: Program, events: list[Event], index: dict[str, int], total_s: float,
+              ladder: bool) -> list[Segment]:
     tick = program.rig.tick_s
     pulses = [(e, _tick(e.start_s, tick), _tick(e.end_s, tick)) for e in events if e.kind == PULSE]
     images = [(e, _tick(e.start_s, tick)) for e in events if e.kind == IMAGE]
@@ -117,11 +135,12 @@ def _segments(program: Program, events: list[Event], index: dict[str, int], tota
         if k1 is None:
             break
         active = [e for e, a, b in pulses if a <= k0 and b >= k1]
-        out += _pulse_steps(program, active, index, k0 * tick, k1 * tick)
+        out += _pulse_steps(program, active, index, k0 * tick, k1 * tick, ladder)
     return out
 
 
-def _pulse_steps(program: Program, active: list[Event], index: dict[str, int], t0: float, t1: float):
+def _pulse_steps(program: Program, active: list[Event], index: dict[str, int], t0: float, t1: float,
+                 ladder: bool):
     """One segment for square pulses; piecewise-constant steps where a shaped pulse plays."""
     if t1 <= t0:
         return []
@@ -131,20 +150,55 @@ def _pulse_steps(program: Program, active: list[Event], index: dict[str, int], t
         rate = program.rig.drives[p.drive].sample_rate_hz
         steps = max(steps, min(SHAPE_STEPS, max(1, round((t1 - t0) * rate))))
     edges = np.linspace(t0, t1, steps + 1)
-    return [Segment(a, b - a, _couplings(program, active, index, (a + b) / 2)) for a, b in zip(edges, edges[1:])]
-
-
-def _couplings(program: Program, active: list[Event], index: dict[str, int], t_mid: float) -> tuple[Drive1, ...]:
     out = []
+    for a, b in zip(edges, edges[1:]):
+        couplings, shifts = _couplings(program, active, index, (a + b) / 2, ladder)
+        out.append(Segment(a, b - a, couplings, shifts=shifts))
+    return out
+
+
+def _couplings(program: Program, active: list[Event], index: dict[str, int], t_mid: float, ladder: bool):
+    """(couplings, light shifts) of the pulses playing at `t_mid`."""
+    couplings, shifts = [], []
     for pulse in active:
         drive = program.rig.drives[pulse.drive]
         lower, upper = TRANSITION[drive.kind]
         scale = float(envelopes.envelope(pulse.shape, pulse.duration_s, t_mid - pulse.start_s))
-        omega = 2 * math.pi * pulse.rabi_hz * scale
-        for site in pulse.targets:
-            if site in index:
-                out.append(Drive1(index[site], lower, upper, omega, 2 * math.pi * pulse.detuning_hz, pulse.phase_rad))
-    return tuple(out)
+        omega, delta = 2 * math.pi * pulse.rabi_hz * scale, 2 * math.pi * pulse.detuning_hz
+        legs = leg_rabi(drive, omega)
+        for site in (index[s] for s in pulse.targets if s in index):
+            if legs is None:
+                couplings.append(Drive1(site, lower, upper, omega, delta, pulse.phase_rad))
+            elif ladder:
+                couplings += [Drive1(site, G1, INTERMEDIATE, legs[0], legs[2], 0.0),
+                              Drive1(site, INTERMEDIATE, RYD, legs[1], delta, pulse.phase_rad)]
+            else:
+                couplings.append(Drive1(site, lower, upper, omega, delta, pulse.phase_rad))
+                shifts += light_shifts(site, *legs)
+    return tuple(couplings), tuple(shifts)
+
+
+def leg_rabi(drive, omega_eff: float) -> tuple[float, float, float] | None:
+    """Leg Rabi frequencies Ω₁, Ω₂ and intermediate detuning Δ (rad/s) for an effective Ω.
+
+    Ω_eff = Ω₁Ω₂/(2Δ) (adiabatic elimination); the legs keep the rig's ratio
+    lower_rabi/upper_rabi (1 when not declared). None unless the drive declares an
+    intermediate detuning and leg Rabi frequencies.
+    """
+    legs = drive.legs
+    if drive.kind != "rydberg" or legs is None or not math.isfinite(legs.intermediate_detuning_hz) \
+            or legs.lower_rabi_hz is None or legs.upper_rabi_hz is None:
+        return None
+    big_delta = 2 * math.pi * legs.intermediate_detuning_hz
+    ratio = legs.lower_rabi_hz / legs.upper_rabi_hz
+    product = 2 * abs(big_delta) * omega_eff
+    upper = math.sqrt(product / ratio)
+    return (ratio * upper, upper, big_delta)
+
+
+def light_shifts(site: int, omega1: float, omega2: float, big_delta: float) -> list[LevelShift]:
+    """AC Stark shifts left by eliminating |e⟩: +Ω₁²/(4Δ) on |1⟩ and +Ω₂²/(4Δ) on |r⟩ (derived)."""
+    return [LevelShift(site, G1, omega1**2 / (4 * big_delta)), LevelShift(site, RYD, omega2**2 / (4 * big_delta))]
 
 
 # ---- operators -------------------------------------------------------------------
@@ -152,22 +206,24 @@ def embed(op: np.ndarray, site: int, size: int) -> np.ndarray:
     """A single-atom operator acting on `site` of `size` atoms (site 0 is leftmost)."""
     out = np.array([[1.0 + 0j]])
     for k in range(size):
-        out = np.kron(out, op if k == site else np.eye(DIM))
+        out = np.kron(out, op if k == site else np.eye(op.shape[0]))
     return out
 
 
-def projector(level: int) -> np.ndarray:
-    p = np.zeros((DIM, DIM), dtype=complex)
+def projector(level: int, dim: int = DIM) -> np.ndarray:
+    p = np.zeros((dim, dim), dtype=complex)
     p[level, level] = 1.0
     return p
 
 
 def hamiltonian(model: Model, segment: Segment) -> np.ndarray:
     """H/ħ (rad/s) of one segment, as a dense matrix."""
-    n = model.size
-    h = np.zeros((DIM**n, DIM**n), dtype=complex)
+    n, dim = model.size, model.dim
+    h = np.zeros((dim**n, dim**n), dtype=complex)
+    for s in segment.shifts:
+        h += embed(s.shift * projector(s.level, dim), s.site, n)
     for c in segment.couplings:
-        single = np.zeros((DIM, DIM), dtype=complex)
+        single = np.zeros((dim, dim), dtype=complex)
         single[c.upper, c.lower] = 0.5 * c.omega * np.exp(1j * c.phase)
         single[c.lower, c.upper] = 0.5 * c.omega * np.exp(-1j * c.phase)
         single[c.upper, c.upper] -= c.delta
@@ -177,8 +233,8 @@ def hamiltonian(model: Model, segment: Segment) -> np.ndarray:
 
 def interaction_hamiltonian(model: Model) -> np.ndarray:
     """Σ V_ij |rr⟩⟨rr| (diagonal, rad/s)."""
-    n = model.size
-    diag = np.zeros(DIM**n)
+    n, dim = model.size, model.dim
+    diag = np.zeros(dim**n)
     for (i, j), v in model.interactions.items():
-        diag += v * np.real(np.diag(embed(projector(RYD), i, n) @ embed(projector(RYD), j, n)))
+        diag += v * np.real(np.diag(embed(projector(RYD, dim), i, n) @ embed(projector(RYD, dim), j, n)))
     return np.diag(diag).astype(complex)

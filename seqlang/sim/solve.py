@@ -37,9 +37,9 @@ class Branch:
         return float(np.trace(self.state).real)
 
 
-def initial_state(size: int, density: bool = False) -> np.ndarray:
+def initial_state(size: int, density: bool = False, dim: int = DIM) -> np.ndarray:
     """All atoms in |0⟩ (optical pumping into the lower clock state)."""
-    psi = np.zeros(DIM**size, dtype=complex)
+    psi = np.zeros(dim**size, dtype=complex)
     psi[0] = 1.0
     return np.outer(psi, psi.conj()) if density else psi
 
@@ -48,7 +48,7 @@ def propagate(model: Model, c_ops: list[np.ndarray] | None = None,
               record_history: bool = False) -> tuple[list[Branch], list[tuple[float, np.ndarray]]]:
     """Final branches, and (if asked) populations of each level per site after each segment."""
     density = bool(c_ops)
-    branches = [Branch((), initial_state(model.size, density))]
+    branches = [Branch((), initial_state(model.size, density, model.dim))]
     history: list[tuple[float, np.ndarray]] = []
     h_int = np.diag(interaction_hamiltonian(model)).real
     for segment in model.segments:
@@ -76,10 +76,11 @@ def _evolve(model: Model, segment: Segment, state: np.ndarray, h_int: np.ndarray
     if not segment.couplings and not c_ops:
         phase = np.exp(-1j * h_int * segment.duration_s)
         return phase * state if state.ndim == 1 else np.outer(phase, phase.conj()) * state
-    return _qutip_step(hamiltonian(model, segment), state, segment.duration_s, c_ops, model.size)
+    return _qutip_step(hamiltonian(model, segment), state, segment.duration_s, c_ops, model.size, model.dim)
 
 
-def _qutip_step(h: np.ndarray, state: np.ndarray, duration: float, c_ops, size: int) -> np.ndarray:
+def _qutip_step(h: np.ndarray, state: np.ndarray, duration: float, c_ops, size: int,
+                dim: int = DIM) -> np.ndarray:
     """Exact propagation over one constant segment with QuTiP's matrix exponential.
 
     Pure states: exp(−iHt)|ψ⟩. With collapse operators: the exponential of the
@@ -87,7 +88,7 @@ def _qutip_step(h: np.ndarray, state: np.ndarray, duration: float, c_ops, size: 
     Hamiltonian, so it neither skips a pulse nor struggles with stiff GHz pair shifts.
     """
     import qutip
-    dims = [[DIM] * size, [DIM] * size]
+    dims = [[dim] * size, [dim] * size]
     hq = qutip.Qobj(h, dims=dims)
     if not c_ops:
         return ((-1j * duration) * hq).expm().full() @ state
@@ -108,8 +109,8 @@ def sesolve_step(h: np.ndarray, state: np.ndarray, duration: float, size: int) -
 def _measure(model: Model, branches: list[Branch], segment: Segment) -> list[Branch]:
     image = segment.image
     sites = [i for i, name in enumerate(model.sites) if name in image.targets]
-    bright = {i: embed(projector(G1), i, model.size) for i in sites}
-    identity = np.eye(DIM**model.size)
+    bright = {i: embed(projector(G1, model.dim), i, model.size) for i in sites}
+    identity = np.eye(model.dim**model.size)
     out = []
     for branch in branches:
         for bits in itertools.product((0, 1), repeat=len(sites)):
@@ -135,11 +136,28 @@ def density_matrix(branches: list[Branch]) -> np.ndarray:
 
 def level_populations(model: Model, branches: list[Branch]) -> np.ndarray:
     """populations[site, level] summed over branches."""
-    probs = np.zeros(DIM**model.size)
+    probs = np.zeros(model.dim**model.size)
     for b in branches:
         probs += np.abs(b.state) ** 2 if b.state.ndim == 1 else np.real(np.diag(b.state))
-    grid = probs.reshape([DIM] * model.size)
-    return np.array([[grid.take(level, axis=i).sum() for level in range(DIM)] for i in range(model.size)])
+    grid = probs.reshape([model.dim] * model.size)
+    return np.array([[grid.take(level, axis=i).sum() for level in range(model.dim)] for i in range(model.size)])
+
+
+def drop_intermediate(model: Model, branches: list[Branch]) -> list[Branch]:
+    """Ladder-mode states restricted to the four levels of the effective model.
+
+    What is left in |e⟩ at the end (of order (Ω₁/2Δ)²) leaves the reported
+    numbers, as population outside the qubit space would.
+    """
+    if model.dim == DIM:
+        return branches
+    keep = [i for i in range(model.dim**model.size)
+            if all(level < DIM for level in np.unravel_index(i, [model.dim] * model.size))]
+    out = []
+    for b in branches:
+        state = b.state[keep] if b.state.ndim == 1 else b.state[np.ix_(keep, keep)]
+        out.append(Branch(b.outcomes, state))
+    return out
 
 
 __all__ = ["Branch", "density_matrix", "initial_state", "level_populations", "propagate", "G0"]

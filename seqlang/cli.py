@@ -144,6 +144,10 @@ def main(argv: list[str] | None = None) -> int:
     except KeyboardInterrupt:
         print("seqlang: interrupted", file=sys.stderr)
         return 130
+    except BrokenPipeError:
+        # The reader went away (`seqlang show … | head`): stop quietly, not with a traceback.
+        os.dup2(os.open(os.devnull, os.O_WRONLY), sys.stdout.fileno())
+        return EXIT_OK
 
 
 if __name__ == "__main__":

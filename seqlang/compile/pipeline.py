@@ -5,6 +5,7 @@ parse → resolve/check → lower → timing checks → quantize → hardware pl
 from __future__ import annotations
 
 from dataclasses import dataclass
+from typing import Mapping
 
 from ..lang.diagnostics import ERROR, Diagnostic, SeqlangError
 from ..program.model import Program
@@ -27,9 +28,12 @@ class Checked:
     warnings: tuple[Diagnostic, ...]
 
 
-def check(path: str) -> Checked:
-    """Run every pass; raise :class:`SeqlangError` with all errors found."""
-    program, diags = resolve(path)
+def check(path: str, sources: Mapping[str, str] | None = None) -> Checked:
+    """Run every pass; raise :class:`SeqlangError` with all errors found.
+
+    `sources` optionally maps paths to unsaved texts (see :func:`resolve`).
+    """
+    program, diags = resolve(path, sources)
     timeline = lower(program)
     diags = diags + check_timeline(program, timeline)
     quantized, report, quant_diags = quantize(program, timeline)

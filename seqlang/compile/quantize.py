@@ -7,6 +7,7 @@ left of the area error after that is reported per pulse.
 """
 from __future__ import annotations
 
+import bisect
 import math
 from dataclasses import dataclass
 
@@ -30,22 +31,28 @@ class QuantizeReport:
 def quantize(program: Program, timeline: Timeline) -> tuple[Timeline, QuantizeReport, list[Diagnostic]]:
     """The timeline the hardware will play, with a report and any errors."""
     tick, limit = program.rig.tick_s, 2 ** program.rig.counter_bits - 1
-    events, errors, diags, worst_time, stretched = [], [], [], 0.0, 0
-    for event in timeline.events:
-        start, end = round(event.start_s / tick), round(event.end_s / tick)
+    rounded = [(round(e.start_s / tick), round(e.end_s / tick)) for e in timeline.events]
+    grows = [_needs_stretch(program, e, start, end, tick) for e, (start, end) in zip(timeline.events, rounded)]
+    # A pulse lengthened by one tick pushes everything that starts at or after its end one
+    # tick later, so that it never runs into the next pulse on its drive.
+    stretch_ends = sorted(end for (_, end), grow in zip(rounded, grows) if grow)
+    events, errors, diags, worst_time = [], [], [], 0.0
+    for event, (start, end), grow in zip(timeline.events, rounded, grows):
+        start = start + bisect.bisect_right(stretch_ends, start)
+        end = end + bisect.bisect_left(stretch_ends, end) + grow
         if not _representable(event, end - start, limit, tick, diags):
             continue
         worst_time = max(worst_time, abs(start * tick - event.start_s), abs(end * tick - event.end_s))
         if event.kind == PULSE:
-            event, error_rad, grew = _pulse(program.rig.drives[event.drive], event, start, end, tick)
+            event, error_rad = _pulse(program.rig.drives[event.drive], event, start, end, tick)
             errors.append((event.index, error_rad))
-            stretched += grew
         else:
             event = evolve(event, start_s=start * tick, duration_s=(end - start) * tick)
         events.append(event)
-    total = math.ceil(round(timeline.duration_s / tick, 6)) * tick
+    total = (math.ceil(round(timeline.duration_s / tick, 6)) + len(stretch_ends)) * tick
     total = max([total] + [e.end_s for e in events])
-    report = QuantizeReport(tuple(errors), max((abs(e) for _, e in errors), default=0.0), worst_time, stretched)
+    report = QuantizeReport(tuple(errors), max((abs(e) for _, e in errors), default=0.0), worst_time,
+                            len(stretch_ends))
     return Timeline(tuple(events), total, tick, quantized=True), report, diags
 
 
@@ -62,18 +69,21 @@ def _representable(event: Event, ticks: int, limit: int, tick: float, diags: lis
     return True
 
 
-def _pulse(drive: Drive, event: Event, start: int, end: int, tick: float) -> tuple[Event, float, int]:
-    """Rescale amplitude to keep the area; lengthen by one tick if that would exceed the maximum."""
-    grew = 0
-    rabi = _rabi_for_area(event, (end - start) * tick)
-    if rabi > drive.max_rabi_hz * (1 + 1e-12):
-        end, grew = end + 1, 1
-        rabi = _rabi_for_area(event, (end - start) * tick)
-    played = _amplitude_rounded(rabi, drive)
+def _needs_stretch(program: Program, event: Event, start: int, end: int, tick: float) -> bool:
+    """True when keeping the area over the rounded duration needs more than the drive's maximum."""
+    if event.kind != PULSE or end <= start:
+        return False
+    drive = program.rig.drives[event.drive]
+    return _rabi_for_area(event, (end - start) * tick) > drive.max_rabi_hz * (1 + 1e-12)
+
+
+def _pulse(drive: Drive, event: Event, start: int, end: int, tick: float) -> tuple[Event, float]:
+    """Rescale the amplitude so that the pulse keeps its area over its played ticks."""
     duration = (end - start) * tick
+    played = _amplitude_rounded(_rabi_for_area(event, duration), drive)
     area = envelopes.pulse_area(event.shape, duration, played)
     quantized = evolve(event, start_s=start * tick, duration_s=duration, rabi_hz=played, area_rad=area)
-    return quantized, area - event.area_rad, grew
+    return quantized, area - event.area_rad
 
 
 def _rabi_for_area(event: Event, duration: float) -> float:

@@ -10,6 +10,7 @@ never see lark types. Parsing stops at the first syntax error.
 from __future__ import annotations
 
 import functools
+import re
 from importlib import resources
 
 from lark import Lark, Token, Transformer, v_args
@@ -52,8 +53,19 @@ _WORDS = {
 }
 
 
+def _terminal_word(name: str) -> str:
+    """How to show an expected terminal; lark's anonymous ones (`..`, `->`) by their text."""
+    if name in _WORDS:
+        return _WORDS[name]
+    if name.startswith("__ANON"):
+        pattern = {t.name: t.pattern for t in _lark().terminals}.get(name)
+        if pattern is not None:
+            return "`" + re.sub(r"\\(.)", r"\1", pattern.value) + "`"
+    return f"`{name.lower()}`" if name.isupper() else name
+
+
 def _describe_expected(expected: set[str]) -> str:
-    words = sorted({_WORDS.get(t, f"`{t.lower()}`" if t.isupper() else t) for t in expected})
+    words = sorted({_terminal_word(t) for t in expected})
     if len(words) > 6:
         words = words[:6] + ["..."]
     return ", ".join(words)
@@ -67,8 +79,9 @@ def _syntax_error(exc: UnexpectedInput, text: str, path: str):
         return error(f"unexpected character `{char}`", span, _char_hint(char))
     if isinstance(exc, UnexpectedEOF) or (isinstance(exc, UnexpectedToken) and exc.token.type == "$END"):
         last = text.rstrip().splitlines() or [""]
-        span = Span(path, len(last), max(1, len(last[-1])), len(last), len(last[-1]) + 1)
-        expected = getattr(exc, "expected", None) or getattr(exc, "accepts", set())
+        # The caret goes just after the last character: that is where something is missing.
+        span = Span(path, len(last), len(last[-1]) + 1, len(last), len(last[-1]) + 2)
+        expected = getattr(exc, "accepts", None) or getattr(exc, "expected", None) or set()
         hint = "a closing `}` is probably missing" if "RBRACE" in expected else None
         return error(f"unexpected end of file; expected {_describe_expected(set(expected))}", span, hint)
     token = exc.token
@@ -80,7 +93,9 @@ def _syntax_error(exc: UnexpectedInput, text: str, path: str):
 
 def _token_words(token: Token) -> str:
     if token.type in ("NAME", "NUMBER", "UNIT", "STRING", "LEVEL", "CHANNEL", "KET"):
-        return f"{_WORDS[token.type].split(' such')[0]} `{token}`"
+        # "a number `7`" reads wrongly after "unexpected": drop the article.
+        noun = _WORDS[token.type].split(" such")[0].removeprefix("a ").removeprefix("an ")
+        return f"{noun} `{token}`"
     return f"`{token}`"
 
 

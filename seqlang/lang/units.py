@@ -119,6 +119,10 @@ _SCALES = {
     FREQUENCY: (("GHz", 1e9), ("MHz", 1e6), ("kHz", 1e3), ("Hz", 1.0)),
     LENGTH: (("m", 1.0), ("mm", 1e-3), ("um", 1e-6), ("nm", 1e-9)),
     TEMPERATURE: (("K", 1.0), ("mK", 1e-3), ("uK", 1e-6), ("nK", 1e-9)),
+    VOLTAGE: (("V", 1.0), ("mV", 1e-3)),
+    CURRENT: (("A", 1.0), ("mA", 1e-3)),
+    FIELD: (("G", 1.0), ("mG", 1e-3)),
+    POWER: (("W", 1.0), ("mW", 1e-3), ("uW", 1e-6)),
 }
 
 

@@ -103,6 +103,7 @@ class Rig:
     imaging: Mapping[str, Imaging]
     ports: Mapping[str, Port]
     span: Span
+    environment_k: float = 300.0  # temperature of the surroundings (black-body radiation)
 
 
 @dataclass(frozen=True)

@@ -46,7 +46,7 @@ def read_props(props: tuple[ast.Prop, ...], schema: dict[str, Key], scope: Scope
         try:
             values[key] = schema[key].reader(prop.value, scope)
         except EvalError as exc:
-            diags.append(exc.diagnostic)
+            diags.append(_naming_key(exc.diagnostic, key))
             values[key] = None
     for key, spec in schema.items():
         if key not in values:
@@ -56,6 +56,14 @@ def read_props(props: tuple[ast.Prop, ...], schema: dict[str, Key], scope: Scope
             values[key] = spec.default
     values["__spans__"] = seen
     return values
+
+
+def _naming_key(diagnostic: Diagnostic, key: str) -> Diagnostic:
+    """"the value cannot be negative" says more as "`latency` cannot be negative"."""
+    if not diagnostic.message.startswith("the value "):
+        return diagnostic
+    message = f"`{key}` " + diagnostic.message[len("the value "):]
+    return Diagnostic(diagnostic.severity, message, diagnostic.span, diagnostic.hint)
 
 
 # ---- readers -----------------------------------------------------------------

@@ -9,6 +9,7 @@ from __future__ import annotations
 import hashlib
 import os
 from dataclasses import dataclass, field
+from typing import Mapping
 
 from ..lang import syntax as ast
 from ..lang import units
@@ -31,12 +32,17 @@ class Loaded:
     rig_path: str | None = None
     imports: list[ast.SourceFile] = field(default_factory=list)
     hashes: dict[str, str] = field(default_factory=dict)
+    sources: Mapping[str, str] = field(default_factory=dict)
 
 
-def resolve(path: str) -> tuple[Program, list[Diagnostic]]:
-    """Parse, resolve and check the sequence file at `path` (warnings returned)."""
+def resolve(path: str, sources: Mapping[str, str] | None = None) -> tuple[Program, list[Diagnostic]]:
+    """Parse, resolve and check the sequence file at `path` (warnings returned).
+
+    `sources` maps paths to texts that replace the files on disk (an editor's
+    unsaved buffers); paths are matched as the resolver forms them.
+    """
     diags: list[Diagnostic] = []
-    loaded = _load(path, diags)
+    loaded = _load(path, diags, sources or {})
     program = _resolve_loaded(loaded, diags)
     errors = [d for d in diags if d.severity == ERROR]
     if errors or program is None:
@@ -44,10 +50,10 @@ def resolve(path: str) -> tuple[Program, list[Diagnostic]]:
     return program, diags
 
 
-def _read(path: str, span: Span | None, hashes: dict[str, str], diags: list[Diagnostic]) -> ast.SourceFile | None:
+def _read(path: str, span: Span | None, hashes: dict[str, str], diags: list[Diagnostic],
+          sources: Mapping[str, str]) -> ast.SourceFile | None:
     try:
-        with open(path, "rb") as handle:
-            raw = handle.read()
+        raw = sources[path].encode("utf-8") if path in sources else _read_bytes(path)
     except OSError as exc:
         where = span or Span(path, 1, 1, 1, 1)
         diags.append(error(f"cannot read `{path}`: {exc.strerror or exc}", where))
@@ -62,12 +68,17 @@ def _read(path: str, span: Span | None, hashes: dict[str, str], diags: list[Diag
     return None
 
 
-def _load(path: str, diags: list[Diagnostic]) -> Loaded | None:
+def _read_bytes(path: str) -> bytes:
+    with open(path, "rb") as handle:
+        return handle.read()
+
+
+def _load(path: str, diags: list[Diagnostic], sources: Mapping[str, str]) -> Loaded | None:
     hashes: dict[str, str] = {}
-    main = _read(path, None, hashes, diags)
+    main = _read(path, None, hashes, diags, sources)
     if main is None:
         raise SeqlangError(diags)
-    loaded = Loaded(main, hashes=hashes)
+    loaded = Loaded(main, hashes=hashes, sources=sources)
     _load_rig(loaded, diags)
     _load_imports(main, loaded, set(), 0, diags)
     if any(d.severity == ERROR for d in diags):
@@ -86,7 +97,7 @@ def _load_rig(loaded: Loaded, diags: list[Diagnostic]) -> None:
         diags.append(error("a sequence uses one rig; this is a second `use`", extra.span))
     if uses:
         rig_path = _relative(loaded.main.path, uses[0].path)
-        rig_file = _read(rig_path, uses[0].span, loaded.hashes, diags)
+        rig_file = _read(rig_path, uses[0].span, loaded.hashes, diags, loaded.sources)
         local += [i for i in rig_file.items if isinstance(i, ast.RigDef)] if rig_file else []
         if rig_file is not None and not any(isinstance(i, ast.RigDef) for i in rig_file.items):
             diags.append(error(f"`{uses[0].path}` holds no `rig` declaration", uses[0].span))
@@ -108,7 +119,7 @@ def _load_imports(source: ast.SourceFile, loaded: Loaded, seen: set[str], depth:
             diags.append(error("imports nest too deeply (a cycle?)", stmt.span))
             return
         seen.add(target)
-        imported = _read(target, stmt.span, loaded.hashes, diags)
+        imported = _read(target, stmt.span, loaded.hashes, diags, loaded.sources)
         if imported is not None:
             loaded.imports.append(imported)
             _load_imports(imported, loaded, seen, depth + 1, diags)
@@ -157,6 +168,8 @@ def _sites(source: ast.SourceFile, rig: Rig, scope: Scope, diags: list[Diagnosti
         if stmt.name.name in sites:
             diags.append(error(f"site `{stmt.name.name}` is declared twice", stmt.name.span))
             continue
+        if _is_unit_name(stmt.name, "a site's", diags):
+            continue
         if stmt.species.name not in rig.species:
             diags.append(error(f"unknown species `{stmt.species.name}`", stmt.species.span,
                                did_you_mean(stmt.species.name, rig.species)))
@@ -201,6 +214,8 @@ def _groups(source: ast.SourceFile, sites: dict[str, Site], diags: list[Diagnost
         if name in groups or name in sites:
             diags.append(error(f"`{name}` is already a site or group name", stmt.name.span))
             continue
+        if _is_unit_name(stmt.name, "a group's", diags):
+            continue
         members: list[str] = []
         for ident in stmt.members:
             found = sites.get(ident.name) and (ident.name,) or groups.get(ident.name)
@@ -213,12 +228,23 @@ def _groups(source: ast.SourceFile, sites: dict[str, Site], diags: list[Diagnost
     return groups
 
 
+def _is_unit_name(ident: ast.Ident, whose: str, diags: list[Diagnostic]) -> bool:
+    """A unit symbol as a name would be read as the unit inside expressions (`wait s` = 1 s)."""
+    if ident.name not in units.UNITS:
+        return False
+    diags.append(error(f"`{ident.name}` is a unit and cannot be {whose} name", ident.span,
+                       "choose another name"))
+    return True
+
+
 def _blocks(files, diags: list[Diagnostic]) -> dict[str, ast.BlockDef]:
     blocks: dict[str, ast.BlockDef] = {}
     for source in files:
         for block in (i for i in source.items if isinstance(i, ast.BlockDef)):
             if block.name.name in blocks:
                 diags.append(error(f"block `{block.name.name}` is defined twice", block.name.span))
+            for param in block.params:
+                _is_unit_name(param.name, "a parameter's", diags)
             blocks[block.name.name] = block
     return blocks
 

@@ -17,6 +17,8 @@ from .model import DRIVE_KINDS, Drive, Imaging, Legs, Port, Rig, Species
 RIG_SETTINGS = {
     "tick": p.Key(p.positive(p.duration, "tick"), required=True, doc="the sequencer clock period, e.g. 2 ns"),
     "counter_bits": p.Key(p.integer(8, 64), 32, doc="width of the sequencer's duration counter"),
+    "environment": p.Key(p.non_negative(p.temperature, "environment temperature"), 300.0,
+                         doc="temperature of the surroundings, for black-body decay"),
 }
 
 SPECIES_KEYS = {
@@ -102,7 +104,8 @@ def resolve_rig(rig: ast.RigDef, path: str, scope: Scope, diags: list[Diagnostic
     return Rig(rig.name.name, path, settings["tick"] or 1e-9, settings["counter_bits"],
                {k: v for k, v in species_map.items() if v is not None},
                {k: v for k, v in drive_map.items() if v is not None},
-               {k: v for k, v in image_map.items() if v is not None}, port_map, rig.span)
+               {k: v for k, v in image_map.items() if v is not None}, port_map, rig.span,
+               settings["environment"] if settings["environment"] is not None else 300.0)
 
 
 def _bind_lets(lets, scope: Scope, diags: list[Diagnostic]) -> None:

@@ -11,6 +11,7 @@ from ..compile import envelopes
 from ..lang import syntax as ast
 from ..lang import units
 from ..lang.diagnostics import Diagnostic, Span, did_you_mean, error
+from ..lang.units import format_quantity
 from . import props as p
 from .evaluate import EvalError, Scope, SiteRef, evaluate, evaluate_any, expect_kind
 from .model import Drive, ImageOp, PortOp, PulseOp, RepeatOp, Rig, SerialOp, Shape, Site, TogetherOp, WaitOp
@@ -181,7 +182,7 @@ class SequenceResolver:
         if port is None:
             raise EvalError(error(f"unknown port `{ident.name}`", ident.span, did_you_mean(ident.name, self.rig.ports)))
         if port.kind != kind:
-            raise EvalError(error(f"port `{ident.name}` is {port.kind}, this needs a {kind} port", ident.span))
+            raise EvalError(error(f"port `{ident.name}` is {port.kind}, this needs {'an' if kind == 'analog' else 'a'} {kind} port", ident.span))
         return port
 
     def _SwitchStmt(self, stmt: ast.SwitchStmt, scope: Scope) -> PortOp:
@@ -194,7 +195,9 @@ class SequenceResolver:
         if port.unit_dim is not None:
             expect_kind(value, port.unit_dim, stmt.value.span)
         if port.value_range and not port.value_range[0] <= value.value <= port.value_range[1]:
-            raise EvalError(error(f"{value.describe()} is outside the range of port `{port.name}`", stmt.value.span))
+            low, high = (format_quantity(v, value.dim) for v in port.value_range)
+            raise EvalError(error(f"{value.describe()} is outside the range {low} .. {high} of port `{port.name}`",
+                                  stmt.value.span))
         return PortOp(port.name, "set", value.value, 0.0, stmt.span)
 
     def _TriggerStmt(self, stmt: ast.TriggerStmt, scope: Scope) -> PortOp:

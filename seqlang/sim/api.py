@@ -10,12 +10,12 @@ from dataclasses import dataclass, field, replace
 import numpy as np
 
 from ..lang.diagnostics import Diagnostic, warning
-from . import observables
+from . import noise, observables
 from .clusters import clusters as find_clusters
 from .model import Model, build_model, pair_interactions_hz
 from .solve import Branch, density_matrix, drop_intermediate, propagate
 
-OPTIONS = {"interactions_hz": None, "history": False, "ladder": False}
+OPTIONS = {"interactions_hz": None, "history": False, "ladder": False, "noise": "off", "shots": 200, "seed": 1}
 # Outcomes rarer than this are not worth a conditioned report.
 MIN_CONDITION_PROBABILITY = 1e-9
 
@@ -27,6 +27,7 @@ class ClusterResult:
     model: Model
     branches: tuple[Branch, ...]
     history: tuple = ()
+    shots: tuple = ()  # per-shot branches when quasi-static noise is sampled
 
     def density(self, condition: tuple[str, str, int] | None = None) -> np.ndarray:
         chosen = [b for b in self.branches if condition is None or condition in b.outcomes
@@ -44,6 +45,7 @@ class SimulationResult:
     records: dict
     interactions_hz: dict
     warnings: tuple[Diagnostic, ...] = field(default=())
+    noise: dict = field(default_factory=dict)
 
     def reduced_density(self, sites: tuple[str, ...], condition=None) -> np.ndarray:
         """Density matrix (4 levels per atom) of `sites`, optionally given one imaging outcome."""
@@ -91,15 +93,59 @@ def simulate(source, **options) -> SimulationResult:
     if interactions is None:
         interactions = pair_interactions_hz(program, tuple(program.sites))
         warnings = _forster_warnings(program)
-    results = []
-    for group in find_clusters(program, timeline, interactions):
-        model = build_model(program, timeline, group, interactions, ladder=options["ladder"])
-        branches, history = propagate(model, record_history=options["history"])
-        branches = drop_intermediate(model, branches)
-        results.append(ClusterResult(replace(model, dim=4), tuple(branches), tuple(history)))
+    sources = noise.parse_sources(options["noise"]) if isinstance(options["noise"], str) else tuple(options["noise"])
+    rng = np.random.default_rng(options["seed"])
+    results = [_simulate_cluster(program, timeline, group, interactions, options, sources, rng)
+               for group in find_clusters(program, timeline, interactions)]
     expectations = tuple(_expectation(program, results, e) for e in program.expects)
+    info = {"sources": list(sources), "shots": _shots(sources, options), "seed": options["seed"]}
+    expectations = tuple(_with_errors(e, results, info["shots"]) for e in expectations)
     return SimulationResult(program.name, tuple(results), expectations, _records(results), interactions,
-                            tuple(warnings))
+                            tuple(warnings), info)
+
+
+def _shots(sources, options) -> int:
+    return options["shots"] if any(s in noise.QUASI_STATIC for s in sources) else 1
+
+
+def _simulate_cluster(program, timeline, group, interactions, options, sources, rng) -> "ClusterResult":
+    model = build_model(program, timeline, group, interactions, ladder=options["ladder"])
+    c_ops = noise.collapse_operators(program, model, sources)
+    shots = _shots(sources, options)
+    branches, history, per_shot = [], (), []
+    for _ in range(shots):
+        shot_model = noise.sample_model(program, model, sources, rng) if shots > 1 else model
+        initial = noise.prepared_state(program, model, sources, rng)
+        found, history = propagate(shot_model, c_ops, record_history=options["history"], initial=initial)
+        found = drop_intermediate(model, found)
+        per_shot.append(tuple(found))
+        branches += [_scaled(b, shots) for b in found]
+    return ClusterResult(replace(model, dim=4), tuple(branches), tuple(history), tuple(per_shot) if shots > 1 else ())
+
+
+def _scaled(branch: Branch, shots: int) -> Branch:
+    factor = 1 / np.sqrt(shots) if branch.state.ndim == 1 else 1 / shots
+    return Branch(branch.outcomes, branch.state * factor)
+
+
+def _with_errors(expectation: dict, clusters, shots: int) -> dict:
+    """Add the Monte Carlo standard error of the fidelity and binomial error bars for `shots`."""
+    out = dict(expectation)
+    out["populations_error"] = {k: observables._clean(noise.binomial_error(v, shots))
+                                for k, v in expectation["populations"].items()}
+    inside = [c for c in clusters if set(expectation["sites"]) <= set(c.model.sites) and c.shots]
+    if inside:
+        values = [_shot_fidelity(inside[0], shot, expectation) for shot in inside[0].shots]
+        out["fidelity_error"] = observables._clean(np.std(values, ddof=1) / np.sqrt(len(values)))
+    return out
+
+
+def _shot_fidelity(cluster, branches, expectation) -> float:
+    single = ClusterResult(cluster.model, branches)
+    rho = reduced_density([single], tuple(expectation["sites"]))
+    state = expectation["state"]
+    is_ket = state.startswith("|")
+    return observables.summarize(rho, len(expectation["sites"]), state.strip("|>"), is_ket)["fidelity"]
 
 
 def _expectation(program, clusters, expect) -> dict:
@@ -143,7 +189,7 @@ def _forster_warnings(program) -> list[Diagnostic]:
     out = []
     for name, sp in program.rig.species.items():
         for other_name, other in program.rig.species.items():
-            if name >= other_name or sp.rydberg is None or other.rydberg is None:
+            if name > other_name or sp.rydberg is None or other.rydberg is None:  # same species too
                 continue
             c6 = rydberg.c6_hz_m6(sp.data, sp.rydberg, other.data, other.rydberg)
             if c6.near_forster:

@@ -17,14 +17,39 @@ def register(sub) -> None:
     p.add_argument("--json", action="store_true", help="print one JSON object instead of the summary")
     p.add_argument("--ladder", action="store_true",
                    help="keep the intermediate state of Rydberg drives explicit (needs the legs' Rabi frequencies)")
+    _noise_options(p)
     p.set_defaults(run=cmd_simulate)
+
+    b = sub.add_parser("budget", help="infidelity of each expected state with all noise, none, and each source alone")
+    b.add_argument("file", help="a sequence file (*.seq)")
+    b.add_argument("--json", action="store_true", help="print one JSON object instead of the table")
+    b.add_argument("-o", "--output", metavar="PNG", help="also draw the budget as a bar chart")
+    b.add_argument("--shots", type=int, default=200, help="Monte Carlo shots for quasi-static noise (default 200)")
+    b.add_argument("--seed", type=int, default=1, help="random seed (default 1); recorded in the output")
+    b.set_defaults(run=cmd_budget)
+
+
+def _noise_options(p) -> None:
+    p.add_argument("--noise", default="off", metavar="off|all|SOURCE,...",
+                   help="noise sources: off (default), all, or a list of decay, dephasing, intensity, "
+                        "doppler, preparation")
+    p.add_argument("--shots", type=int, default=200, help="Monte Carlo shots for quasi-static noise (default 200)")
+    p.add_argument("--seed", type=int, default=1, help="random seed (default 1); recorded in the output")
 
 
 def cmd_simulate(args) -> int:
     from ..cli import _load
     from .api import simulate
+    from ..cli import UsageError
+    from .noise import parse_sources
+    try:
+        sources = parse_sources(args.noise)
+    except ValueError as exc:
+        raise UsageError(str(exc)) from None
+    if args.shots < 1:
+        raise UsageError("--shots must be at least 1")
     sequence = _load(args.file)
-    result = simulate(sequence, ladder=args.ladder)
+    result = simulate(sequence, ladder=args.ladder, noise=sources, shots=args.shots, seed=args.seed)
     for diagnostic in sort_diagnostics(result.warnings):
         print(render(diagnostic), file=sys.stderr)
     document = as_document(result)
@@ -46,6 +71,7 @@ def as_document(result) -> dict:
         "site_populations": sites,
         "interactions_hz": {f"{a}-{b}": _r(v) for (a, b), v in sorted(result.interactions_hz.items())},
         "clusters": [list(c.model.sites) for c in result.clusters],
+        "noise": result.noise,
         "note": "model prediction for the played (tick-quantized) timeline; not a guarantee of the apparatus",
     }
 
@@ -56,10 +82,14 @@ def _r(x: float) -> float:
 
 
 def summary(document: dict) -> str:
+    noise = document.get("noise", {})
     lines = [f"simulated {document['program']} (clusters: "
-             + ", ".join("{" + ",".join(c) + "}" for c in document["clusters"]) + ")"]
+             + ", ".join("{" + ",".join(c) + "}" for c in document["clusters"]) + "); noise: "
+             + (", ".join(noise.get("sources", [])) or "off")
+             + (f"; {noise['shots']} shots, seed {noise['seed']}" if noise.get("shots", 1) > 1 else "")]
     for e in document["expectations"]:
-        lines.append(f"\nexpect {', '.join(e['sites'])} as {e['state']}: fidelity {e['fidelity']:.6f}")
+        error = f" ± {e['fidelity_error']:.2g} (Monte Carlo)" if "fidelity_error" in e else ""
+        lines.append(f"\nexpect {', '.join(e['sites'])} as {e['state']}: fidelity {e['fidelity']:.6f}{error}")
         lines.append("  populations " + "  ".join(f"{k}: {v:.5f}" for k, v in e["populations"].items()))
         lines.append(f"  residual Rydberg {e['residual_rydberg']:.3g}   lost {e['loss']:.3g}")
         if "correlators" in e:
@@ -78,3 +108,18 @@ def summary(document: dict) -> str:
 
 
 __all__ = ["register", "as_document", "summary", "np"]
+
+
+def cmd_budget(args) -> int:
+    from ..cli import UsageError, _load
+    from .budget import budget, budget_table, plot_budget
+    if args.shots < 1:
+        raise UsageError("--shots must be at least 1")
+    sequence = _load(args.file)
+    numbers = budget(sequence, shots=args.shots, seed=args.seed)
+    print(json.dumps(numbers, indent=1) if args.json else budget_table(numbers))
+    if args.output:
+        plot_budget(numbers, args.output)
+        if not args.json:
+            print(f"wrote {args.output}")
+    return 0

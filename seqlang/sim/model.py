@@ -42,6 +42,7 @@ class Drive1:
     omega: float
     delta: float
     phase: float
+    drive: str = ""
 
 
 @dataclass(frozen=True)
@@ -168,12 +169,12 @@ def _couplings(program: Program, active: list[Event], index: dict[str, int], t_m
         legs = leg_rabi(drive, omega)
         for site in (index[s] for s in pulse.targets if s in index):
             if legs is None:
-                couplings.append(Drive1(site, lower, upper, omega, delta, pulse.phase_rad))
+                couplings.append(Drive1(site, lower, upper, omega, delta, pulse.phase_rad, drive.name))
             elif ladder:
-                couplings += [Drive1(site, G1, INTERMEDIATE, legs[0], legs[2], 0.0),
-                              Drive1(site, INTERMEDIATE, RYD, legs[1], delta, pulse.phase_rad)]
+                couplings += [Drive1(site, G1, INTERMEDIATE, legs[0], legs[2], 0.0, drive.name),
+                              Drive1(site, INTERMEDIATE, RYD, legs[1], delta, pulse.phase_rad, drive.name)]
             else:
-                couplings.append(Drive1(site, lower, upper, omega, delta, pulse.phase_rad))
+                couplings.append(Drive1(site, lower, upper, omega, delta, pulse.phase_rad, drive.name))
                 shifts += light_shifts(site, *legs)
     return tuple(couplings), tuple(shifts)
 

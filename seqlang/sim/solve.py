@@ -44,11 +44,16 @@ def initial_state(size: int, density: bool = False, dim: int = DIM) -> np.ndarra
     return np.outer(psi, psi.conj()) if density else psi
 
 
-def propagate(model: Model, c_ops: list[np.ndarray] | None = None,
-              record_history: bool = False) -> tuple[list[Branch], list[tuple[float, np.ndarray]]]:
-    """Final branches, and (if asked) populations of each level per site after each segment."""
+def propagate(model: Model, c_ops: list[np.ndarray] | None = None, record_history: bool = False,
+              initial: np.ndarray | None = None) -> tuple[list[Branch], list[tuple[float, np.ndarray]]]:
+    """Final branches, and (if asked) populations of each level per site after each segment.
+
+    `initial` is a ket (default: all atoms in |0⟩); with collapse operators the
+    state is carried as a density matrix.
+    """
     density = bool(c_ops)
-    branches = [Branch((), initial_state(model.size, density, model.dim))]
+    psi = initial if initial is not None else initial_state(model.size, False, model.dim)
+    branches = [Branch((), np.outer(psi, psi.conj()) if density else psi)]
     history: list[tuple[float, np.ndarray]] = []
     h_int = np.diag(interaction_hamiltonian(model)).real
     for segment in model.segments:

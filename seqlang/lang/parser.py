@@ -65,7 +65,8 @@ def _terminal_word(name: str) -> str:
 
 
 def _describe_expected(expected: set[str]) -> str:
-    words = sorted({_terminal_word(t) for t in expected})
+    # A missing `}` is the commonest slip: name it first so that it is never cut off.
+    words = sorted({_terminal_word(t) for t in expected}, key=lambda w: (w != "`}`", w))
     if len(words) > 6:
         words = words[:6] + ["..."]
     return ", ".join(words)

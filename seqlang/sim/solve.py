@@ -81,7 +81,33 @@ def _evolve(model: Model, segment: Segment, state: np.ndarray, h_int: np.ndarray
     if not segment.couplings and not c_ops:
         phase = np.exp(-1j * h_int * segment.duration_s)
         return phase * state if state.ndim == 1 else np.outer(phase, phase.conj()) * state
-    return _qutip_step(hamiltonian(model, segment), state, segment.duration_s, c_ops, model.size, model.dim)
+    frame = detuning_frame(model, segment)
+    t0, t1 = segment.start_s, segment.start_s + segment.duration_s
+    state = _rotate(state, np.exp(-1j * frame * t0))
+    state = _qutip_step(hamiltonian(model, segment), state, segment.duration_s, c_ops, model.size, model.dim)
+    return _rotate(state, np.exp(1j * frame * t1))
+
+
+def detuning_frame(model: Model, segment: Segment) -> np.ndarray:
+    """Diagonal D = −Σ Δ_c |b⟩⟨b| of the segment's drive frame (rad/s).
+
+    Drives are phase-continuous oscillators at (atom frequency + detuning) whose
+    phase is referenced to t = 0, as a phase-coherent synthesizer plays them.
+    The segment is solved in the drive frame, and mapped back to the atom frame:
+    ψ(t₁) = e^{iDt₁} e^{−iH_D(t₁−t₀)} e^{−iDt₀} ψ(t₀).
+    """
+    levels = np.indices([model.dim] * model.size).reshape(model.size, -1)
+    diag = np.zeros(model.dim**model.size)
+    for c in segment.couplings:
+        diag -= c.delta * (levels[c.site] == c.upper)
+    return diag
+
+
+def _rotate(state: np.ndarray, phases: np.ndarray) -> np.ndarray:
+    """Apply a diagonal unitary to a ket or (on both sides) to a density matrix."""
+    if state.ndim == 1:
+        return phases * state
+    return phases[:, None] * state * phases.conj()[None, :]
 
 
 def _qutip_step(h: np.ndarray, state: np.ndarray, duration: float, c_ops, size: int,

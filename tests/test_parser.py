@@ -1,0 +1,125 @@
+"""The parser: node types, source spans on every node, syntax errors in words."""
+from __future__ import annotations
+
+import pytest
+
+from seqlang.lang import syntax as ast
+from seqlang.lang.diagnostics import SeqlangError
+from seqlang.lang.parser import parse_text
+
+SEQ = """\
+use "bench.rig"
+site a = na at (0, 5.2) um
+group pair = a
+sequence s {
+  pulse ryd_na rabi 30 MHz area pi/2 shape gaussian(sigma = 20 ns)
+  together align end {
+    wait 1 us
+  }
+  repeat 3 { do flip(pair, angle = pi) }
+  image na -> shot
+}
+expect a as |1>
+"""
+
+
+@pytest.fixture(scope="module")
+def tree():
+    return parse_text(SEQ, "s.seq")
+
+
+def _sequence(tree) -> ast.SequenceDef:
+    return next(i for i in tree.items if isinstance(i, ast.SequenceDef))
+
+
+def test_top_level_items_in_order(tree):
+    kinds = [type(i).__name__ for i in tree.items]
+    assert kinds == ["UseStmt", "SiteStmt", "GroupStmt", "SequenceDef", "ExpectStmt"]
+    assert tree.items[0].path == "bench.rig"
+
+
+def test_unit_token_span_points_at_mhz(tree):
+    pulse = _sequence(tree).body[0]
+    rabi = next(p for p in pulse.props if p.key.name == "rabi").value
+    assert isinstance(rabi, ast.WithUnit) and rabi.unit == "MHz"
+    # "  pulse ryd_na rabi 30 MHz": 30 starts at column 21, MHz at column 24 (1-based).
+    assert (rabi.span.line, rabi.span.column) == (5, 21)
+    assert (rabi.unit_span.line, rabi.unit_span.column, rabi.unit_span.end_column) == (5, 24, 27)
+    assert SEQ[rabi.unit_span.start:rabi.unit_span.end] == "MHz"
+
+
+def test_statement_and_name_spans(tree):
+    pulse = _sequence(tree).body[0]
+    assert (pulse.span.line, pulse.span.column) == (5, 3)
+    assert (pulse.drive.name, pulse.drive.span.column, pulse.drive.span.end_column) == ("ryd_na", 9, 15)
+    site = tree.items[1]
+    assert (site.name.span.line, site.name.span.column) == (2, 6)
+
+
+def test_expression_shapes(tree):
+    pulse = _sequence(tree).body[0]
+    area = next(p for p in pulse.props if p.key.name == "area").value
+    assert isinstance(area, ast.BinOp) and area.op == "/"
+    assert isinstance(area.left, ast.UnitRef) and area.left.unit == "pi"
+    shape = next(p for p in pulse.props if p.key.name == "shape").value
+    assert isinstance(shape, ast.Call) and shape.func.name == "gaussian"
+    assert shape.args[0].name.name == "sigma"
+    position = tree.items[1].position
+    assert isinstance(position, ast.WithUnit) and isinstance(position.operand, ast.TupleExpr)
+
+
+def test_statements_of_the_body(tree):
+    body = _sequence(tree).body
+    assert [type(s).__name__ for s in body] == ["PulseStmt", "TogetherStmt", "RepeatStmt", "ImageStmt"]
+    assert body[1].align.name == "end"
+    do = body[2].body[0]
+    assert do.block.name == "flip" and [a.name.name if a.name else None for a in do.args] == [None, "angle"]
+    assert (body[3].species.name, body[3].record.name) == ("na", "shot")
+
+
+def test_ket_and_levels_and_channels():
+    tree = parse_text('rig r {\n  species na = Na23 { rydberg 58S1/2 }\n'
+                      '  drive d microwave na { port awg1.2 }\n}\nexpect a, b as |01>\n', "r.rig")
+    rig = tree.items[0]
+    level = rig.species[0].props[0].value
+    assert isinstance(level, ast.LevelExpr) and level.text == "58S1/2"
+    assert isinstance(rig.drives[0].props[0].value, ast.ChannelExpr)
+    expect = tree.items[1]
+    assert expect.is_ket and expect.state.name == "|01>"
+
+
+def test_comments_are_ignored():
+    tree = parse_text("# a comment\nlet t = 2 ns  # trailing\n", "c.seq")
+    assert len(tree.items) == 1 and tree.items[0].span.line == 2
+
+
+def _syntax_error(text: str):
+    with pytest.raises(SeqlangError) as info:
+        parse_text(text, "bad.seq")
+    return info.value.diagnostics
+
+
+def test_parser_stops_at_the_first_syntax_error():
+    diags = _syntax_error("site 1 = na at (0, 0) um\nsite 2 = na at (1, 0) um\n")
+    assert len(diags) == 1
+    assert (diags[0].span.line, diags[0].span.column) == (1, 6)
+    assert diags[0].message == "unexpected number `1`; expected a name"
+
+
+def test_missing_brace_names_the_brace_first():
+    diags = _syntax_error("sequence s {\n  wait 1 us\n")
+    assert diags[0].message.startswith("unexpected end of file; expected `}`")
+    assert diags[0].hint == "a closing `}` is probably missing"
+    # the caret sits just after the last character written
+    assert (diags[0].span.line, diags[0].span.column) == (2, 12)
+
+
+def test_no_lark_internal_names_in_messages():
+    diags = _syntax_error("sequence s {\n  pulse mw area pi\n")
+    assert "__" not in diags[0].message and "anon" not in diags[0].message.lower()
+
+
+def test_single_quotes_get_a_hint():
+    diags = _syntax_error("use 'bench.rig'\n")
+    assert diags[0].message == "unexpected character `'`"
+    assert "double quotes" in diags[0].hint

@@ -145,6 +145,10 @@ def main(argv: list[str] | None = None) -> int:
         print("seqlang: interrupted", file=sys.stderr)
         return 130
     except BrokenPipeError:
+        # The reader (e.g. `| head`) went away; nothing more to say.
+        sys.stderr.close()
+        return EXIT_OK
+    except BrokenPipeError:
         # The reader went away (`seqlang show … | head`): stop quietly, not with a traceback.
         os.dup2(os.open(os.devnull, os.O_WRONLY), sys.stdout.fileno())
         return EXIT_OK

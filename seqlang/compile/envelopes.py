@@ -68,6 +68,9 @@ def duration_for_area(shape: Shape, area_rad: float, rabi_hz: float) -> float:
         return target / area_factor(shape, 1.0)
     high = max(target, 1e-12)
     while area_factor(shape, high) < target:
+        # A Gaussian of fixed σ never exceeds the area σ·sqrt(2π), however long it lasts.
+        if high > 1e6 * target:
+            raise ValueError(f"a {shape.kind} envelope with these parameters cannot reach this area")
         high *= 2
     return optimize.brentq(lambda T: area_factor(shape, T) - target, 1e-15, high, xtol=1e-18, rtol=1e-13)
 

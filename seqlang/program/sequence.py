@@ -272,7 +272,13 @@ class SequenceResolver:
             return duration, derived, area
         rabi = rabi if rabi is not None else drive.max_rabi_hz
         if duration is None:
-            return envelopes.duration_for_area(shape, area, rabi), rabi, area
+            try:
+                return envelopes.duration_for_area(shape, area, rabi), rabi, area
+            except ValueError:
+                raise EvalError(error(
+                    f"a {shape.kind} pulse of this width cannot reach area {area / math.pi:.6g}π at "
+                    f"{units.format_quantity(rabi, units.FREQUENCY)}", spans.get("shape", stmt.span),
+                    "widen the envelope, raise `rabi`, or give a `duration`")) from None
         return duration, rabi, envelopes.pulse_area(shape, duration, rabi)
 
     def _check_limits(self, drive: Drive, rabi: float, v: dict, duration: float, shape: Shape,

@@ -1,0 +1,86 @@
+"""Noise sources against closed forms (each source named beside its check)."""
+from __future__ import annotations
+
+import math
+
+import numpy as np
+import pytest
+
+import seqlang
+from seqlang.sim import noise
+
+RIG = """
+rig noisebench {
+  tick 1 ns
+  species a = Rb87 { rydberg 70S1/2  temperature %(temp)s }
+  drive mw_a microwave a { rabi 2.5 MHz  port awg0.1  amplitude_bits 32  intensity_noise %(sigma)s }
+  drive ryd_a rydberg a { rabi 5 MHz  port awg1.1  amplitude_bits 32  linewidth %(linewidth)s
+                          lower_wavelength 780 nm  upper_wavelength 480 nm  geometry counter }
+}
+"""
+
+
+def _run(tmp_path, body, sources, shots=1, temp="0 uK", sigma="0", linewidth="0 Hz", seed=7):
+    (tmp_path / "n.rig").write_text(RIG % {"temp": temp, "sigma": sigma, "linewidth": linewidth})
+    path = tmp_path / "n.seq"
+    path.write_text(f'use "n.rig"\nsite q = a at (0, 0) um\nsequence n {{\n{body}\n}}\nexpect q as |1>\n')
+    return seqlang.simulate(str(path), interactions_hz={}, noise=sources, shots=shots, seed=seed)
+
+
+RYDBERG_RAMSEY = "pulse mw_a area pi\npulse ryd_a area pi/2\nwait {wait}\npulse ryd_a area pi/2"
+
+
+def _rydberg_population(result) -> float:
+    return result.reduced_density(("q",))[2, 2].real
+
+
+@pytest.mark.parametrize("wait_us", [2, 5, 10])
+def test_white_laser_noise_gives_exponential_ramsey_contrast(tmp_path, wait_us):
+    """Lorentzian linewidth Δν: coherence decays as exp(−γt), γ = πΔν (REFERENCES.md, derived)."""
+    result = _run(tmp_path, RYDBERG_RAMSEY.format(wait=f"{wait_us} us"), ("dephasing",), linewidth="20 kHz")
+    gamma = math.pi * 20e3
+    # The two 50 ns pulses add ~50 ns of dephasing time on average (derived, small).
+    expected = (1 + math.exp(-gamma * (wait_us * 1e-6 + 50e-9))) / 2
+    assert _rydberg_population(result) == pytest.approx(expected, abs=3e-3)
+
+
+def test_doppler_dephasing_is_gaussian_with_published_t2star(tmp_path):
+    """T2* = √2/(k_eff σ_v), σ_v = √(k_B T/m), k_eff = |k₁ − k₂| (de Léséleuc et al., PRA 97, 053803 (2018),
+    from memory; derived): Ramsey contrast exp(−(t/T2*)²)."""
+    wait = 1.5e-6
+    result = _run(tmp_path, RYDBERG_RAMSEY.format(wait="1.5 us"), ("doppler",), shots=1500, temp="20 uK")
+    sigma_v = math.sqrt(1.380649e-23 * 20e-6 / (86.909180527 * 1.66053906660e-27))  # Rb87 mass (Steck)
+    k_eff = abs(2 * math.pi / 780e-9 - 2 * math.pi / 480e-9)
+    t2 = math.sqrt(2) / (k_eff * sigma_v)
+    expected = (1 + math.exp(-((wait + 50e-9) / t2) ** 2)) / 2
+    assert _rydberg_population(result) == pytest.approx(expected, abs=0.02)
+
+
+def test_quasi_static_intensity_noise_pi_pulse_infidelity(tmp_path):
+    """Relative Rabi error ε ~ N(0, σ²): P(fail) = sin²(πε/2) ≈ (πσ/2)² (derived)."""
+    result = _run(tmp_path, "pulse mw_a area pi", ("intensity",), shots=3000, sigma="4 %")
+    infidelity = 1 - result.expectations[0]["fidelity"]
+    assert infidelity == pytest.approx((math.pi * 0.04 / 2) ** 2, rel=0.12)
+    assert result.expectations[0]["fidelity_error"] > 0
+
+
+def test_seed_makes_noisy_runs_reproducible(tmp_path):
+    a = _run(tmp_path, "pulse mw_a area pi", ("intensity",), shots=50, sigma="5 %", seed=11)
+    b = _run(tmp_path, "pulse mw_a area pi", ("intensity",), shots=50, sigma="5 %", seed=11)
+    c = _run(tmp_path, "pulse mw_a area pi", ("intensity",), shots=50, sigma="5 %", seed=12)
+    assert a.expectations == b.expectations
+    assert a.expectations[0]["fidelity"] != c.expectations[0]["fidelity"]
+    assert a.noise == {"sources": ["intensity"], "shots": 50, "seed": 11}
+
+
+def test_binomial_error_bar_matches_sampled_spread():
+    """Standard error of a probability estimated from N shots: √(p(1−p)/N) (binomial, textbook)."""
+    rng = np.random.default_rng(5)
+    p, shots = 0.3, 400
+    estimates = rng.binomial(shots, p, size=4000) / shots
+    assert noise.binomial_error(p, shots) == pytest.approx(np.std(estimates), rel=0.05)
+
+
+def test_unknown_noise_source_is_rejected():
+    with pytest.raises(ValueError, match="unknown noise source"):
+        noise.parse_sources("decay,gremlins")

@@ -56,7 +56,7 @@ def test_square_pi_pulse_follows_the_rabi_formula():
     assert pulse_area(Shape("square"), 2e-6, rabi) == pytest.approx(2 * math.pi * rabi * 2e-6, rel=1e-12)
 
 
-SHAPES = [Shape("square"), Shape("blackman"), Shape("gaussian"), Shape("gaussian", (("sigma", 60e-9),)),
+SHAPES = [Shape("square"), Shape("blackman"), Shape("gaussian"), Shape("gaussian", (("sigma", 1e-6),)),
           Shape("ramped", (("ramp", 40e-9),))]
 
 
@@ -67,3 +67,11 @@ def test_duration_for_area_inverts_pulse_area(shape, area):
     duration = duration_for_area(shape, area, rabi)
     assert duration > 0
     assert pulse_area(shape, duration, rabi) == pytest.approx(area, rel=1e-9)
+
+
+def test_gaussian_of_fixed_sigma_cannot_exceed_its_full_area():
+    """However long, a Gaussian of width σ has at most the area σ·sqrt(2π) (Gaussian integral)."""
+    sigma, rabi = 60e-9, 1e6
+    ceiling = 2 * math.pi * rabi * sigma * math.sqrt(2 * math.pi)
+    with pytest.raises(ValueError):
+        duration_for_area(Shape("gaussian", (("sigma", sigma),)), 1.01 * ceiling, rabi)

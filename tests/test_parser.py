@@ -123,3 +123,18 @@ def test_single_quotes_get_a_hint():
     diags = _syntax_error("use 'bench.rig'\n")
     assert diags[0].message == "unexpected character `'`"
     assert "double quotes" in diags[0].hint
+
+
+# ---- the rendered form: message, source line, caret, hint (golden files) -------------
+RENDERED = ["missing_brace", "many_errors", "bad_rig_many", "unknown_site"]
+
+
+@pytest.mark.parametrize("name", RENDERED)
+def test_rendered_diagnostics_match_golden(name, monkeypatch, capsys):
+    from conftest import TESTS, check_golden
+    from seqlang import cli
+    monkeypatch.chdir(TESTS / "bad")
+    assert cli.main(["check", f"{name}.seq"]) == 1
+    err = capsys.readouterr().err
+    assert "Traceback" not in err
+    check_golden(f"errors/{name}.txt", err)

@@ -61,15 +61,18 @@ def test_rounded_duration_rescales_amplitude_and_keeps_area(tmp_path):
     assert report.max_area_error_rad == pytest.approx(abs(played_area - math.pi / 3), abs=1e-15)
 
 
-def test_shaped_pulse_keeps_its_area_against_scipy(tmp_path):
+@pytest.mark.parametrize("shape, area, sigma", [
+    ("gaussian", math.pi, None), ("gaussian(sigma = 60 ns)", math.pi / 2, 60e-9)])
+def test_shaped_pulse_keeps_its_area_against_scipy(tmp_path, shape, area, sigma):
     """The played Gaussian's area, integrated independently with scipy.integrate.quad."""
-    _, played, _ = quantized(tmp_path, "  pulse ryd_cs on h area pi shape gaussian(sigma = 30 ns)")
+    _, played, _ = quantized(tmp_path, f"  pulse ryd_cs on h area {area!r} shape {shape}")
     event = played.events[0]
-    duration, sigma = event.duration_s, 30e-9
+    duration = event.duration_s
+    sigma = sigma or duration / 4  # the default width: the pulse spans ±2σ
     integral, _ = integrate.quad(lambda t: math.exp(-(t - duration / 2) ** 2 / (2 * sigma**2)), 0, duration,
                                  epsabs=0, epsrel=1e-12)
-    area = 2 * math.pi * event.rabi_hz * integral
-    assert abs(area - math.pi) <= amplitude_bound(math.pi, 2e6, event.rabi_hz) * 1.0001
+    played_area = 2 * math.pi * event.rabi_hz * integral
+    assert abs(played_area - area) <= amplitude_bound(area, 2e6, event.rabi_hz) * 1.0001
 
 
 def test_end_tick_rounding_keeps_neighbours_adjacent(tmp_path):
@@ -105,7 +108,10 @@ def test_stretched_pulses_do_not_run_into_their_neighbours(tmp_path):
 
 def test_stretched_pulses_pass_the_overlap_check(tmp_path):
     checked = check(bench_program(tmp_path, "  repeat 4 {\n    pulse ryd_cs on h area 0.29 pi\n  }"))
-    assert [ticks(e) for e in checked.quantized.events] == [(0, 37), (37, 74), (74, 111), (111, 148)]
+    shift = checked.plan.shift_ticks  # 150 ticks: the 300 ns latency of ryd_cs
+    assert shift == 150
+    assert [(s - shift, e - shift) for s, e in map(ticks, checked.quantized.events)] == [
+        (0, 37), (37, 74), (74, 111), (111, 148)]
 
 
 def test_timing_error_is_at_most_half_a_tick_without_stretching(tmp_path):

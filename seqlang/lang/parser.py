@@ -102,7 +102,7 @@ def _token_words(token: Token) -> str:
 
 def _char_hint(char: str) -> str | None:
     if char == "'":
-        return 'file names are written in double quotes: use "lakeside.rig"'
+        return 'file names are written in double quotes, e.g. "lab.rig"'
     if char in ";":
         return "statements need no separator; put the next one after a space or on a new line"
     return None

@@ -52,7 +52,7 @@ class SimulationResult:
         return reduced_density(self.clusters, sites, condition)
 
     def final_state(self) -> dict[tuple[str, ...], np.ndarray]:
-        """Density matrix of each cluster (unnormalised only by loss of nothing: trace 1)."""
+        """Density matrix of each cluster, averaged over imaging outcomes and shots (trace 1)."""
         return {c.model.sites: c.density() for c in self.clusters}
 
 
@@ -131,12 +131,12 @@ def _scaled(branch: Branch, shots: int) -> Branch:
 def _with_errors(expectation: dict, clusters, shots: int) -> dict:
     """Add the Monte Carlo standard error of the fidelity and binomial error bars for `shots`."""
     out = dict(expectation)
-    out["populations_error"] = {k: observables._clean(noise.binomial_error(v, shots))
+    out["populations_error"] = {k: observables.clean(noise.binomial_error(v, shots))
                                 for k, v in expectation["populations"].items()}
     inside = [c for c in clusters if set(expectation["sites"]) <= set(c.model.sites) and c.shots]
     if inside:
         values = [_shot_fidelity(inside[0], shot, expectation) for shot in inside[0].shots]
-        out["fidelity_error"] = observables._clean(np.std(values, ddof=1) / np.sqrt(len(values)))
+        out["fidelity_error"] = observables.clean(np.std(values, ddof=1) / np.sqrt(len(values)))
     return out
 
 
@@ -169,7 +169,7 @@ def _conditioned(program, clusters, expect) -> list[dict]:
             rho = rho / np.trace(rho).real
             numbers = observables.summarize(rho, len(expect.sites), expect.state, expect.is_ket)
             out.append({"record": record, "site": site, "outcome": bit,
-                        "probability": observables._clean(weight), **numbers})
+                        "probability": observables.clean(weight), **numbers})
     return out
 
 
@@ -181,7 +181,7 @@ def _records(clusters) -> dict:
             for record, site, bit in b.outcomes:
                 entry = records.setdefault(record, {}).setdefault(site, 0.0)
                 records[record][site] = entry + (b.weight if bit else 0.0)
-    return {r: {s: observables._clean(p) for s, p in sorted(v.items())} for r, v in sorted(records.items())}
+    return {r: {s: observables.clean(p) for s, p in sorted(v.items())} for r, v in sorted(records.items())}
 
 
 def _forster_warnings(program) -> list[Diagnostic]:

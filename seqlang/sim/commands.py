@@ -4,10 +4,9 @@ from __future__ import annotations
 import json
 import sys
 
-import numpy as np
-
 from ..lang.diagnostics import render, sort_diagnostics
 from .model import LEVELS
+from .observables import clean
 from .solve import level_populations
 
 
@@ -63,22 +62,17 @@ def as_document(result) -> dict:
     for cluster in result.clusters:
         pops = level_populations(cluster.model, list(cluster.branches))
         for name, row in zip(cluster.model.sites, pops):
-            sites[name] = {level: _r(p) for level, p in zip(LEVELS, row)}
+            sites[name] = {level: clean(p) for level, p in zip(LEVELS, row)}
     return {
         "program": result.program_name,
         "expectations": list(result.expectations),
         "records": result.records,
         "site_populations": sites,
-        "interactions_hz": {f"{a}-{b}": _r(v) for (a, b), v in sorted(result.interactions_hz.items())},
+        "interactions_hz": {f"{a}-{b}": clean(v) for (a, b), v in sorted(result.interactions_hz.items())},
         "clusters": [list(c.model.sites) for c in result.clusters],
         "noise": result.noise,
         "note": "model prediction for the played (tick-quantized) timeline; not a guarantee of the apparatus",
     }
-
-
-def _r(x: float) -> float:
-    value = round(float(x), 12)
-    return 0.0 if value == 0 else value
 
 
 def summary(document: dict) -> str:
@@ -107,7 +101,7 @@ def summary(document: dict) -> str:
     return "\n".join(lines)
 
 
-__all__ = ["register", "as_document", "summary", "np"]
+__all__ = ["register", "as_document", "summary"]
 
 
 def cmd_budget(args) -> int:

@@ -24,7 +24,7 @@ from dataclasses import replace
 import numpy as np
 
 from ..program.model import Program
-from .model import DIM, G0, LOST, RYD, Model, embed
+from .model import G0, LOST, RYD, Model, embed
 
 SOURCES = ("decay", "dephasing", "intensity", "doppler", "preparation")
 MARKOVIAN = ("decay", "dephasing")
@@ -127,5 +127,4 @@ def binomial_error(p: float, shots: int) -> float:
     return math.sqrt(max(p * (1 - p), 0.0) / shots)
 
 
-__all__ = ["SOURCES", "binomial_error", "collapse_operators", "parse_sources", "prepared_state", "sample_model",
-           "DIM"]
+__all__ = ["SOURCES", "binomial_error", "collapse_operators", "parse_sources", "prepared_state", "sample_model"]

@@ -72,11 +72,11 @@ def summarize(rho: np.ndarray, count: int, state: str, is_ket: bool) -> dict:
     block = qubit_block(rho, count)
     target = target_state(state, is_ket)
     out = {
-        "fidelity": _clean(np.real(np.vdot(target, block @ target))),
-        "populations": {"".join(map(str, bits)): _clean(np.real(block[i, i]))
+        "fidelity": clean(np.real(np.vdot(target, block @ target))),
+        "populations": {"".join(map(str, bits)): clean(np.real(block[i, i]))
                         for i, bits in enumerate(itertools.product((0, 1), repeat=count))},
-        "residual_rydberg": _clean(level_probability(rho, count, RYD)),
-        "loss": _clean(level_probability(rho, count, LOST)),
+        "residual_rydberg": clean(level_probability(rho, count, RYD)),
+        "loss": clean(level_probability(rho, count, LOST)),
     }
     if count == 2:
         out["correlators"] = correlators(block)
@@ -85,7 +85,7 @@ def summarize(rho: np.ndarray, count: int, state: str, is_ket: bool) -> dict:
 
 def correlators(block: np.ndarray) -> dict[str, float]:
     """⟨σa ⊗ σb⟩ for a, b in X, Y, Z over the two-qubit block."""
-    return {a + b: _clean(np.real(np.trace(block @ np.kron(PAULI[a], PAULI[b]))))
+    return {a + b: clean(np.real(np.trace(block @ np.kron(PAULI[a], PAULI[b]))))
             for a in "XYZ" for b in "XYZ"}
 
 
@@ -94,7 +94,7 @@ def ideal_correlators(state: str, is_ket: bool) -> dict[str, float]:
     return correlators(np.outer(target, target.conj()))
 
 
-def _clean(x: float) -> float:
+def clean(x: float) -> float:
     """Round to 12 decimals so that printed results are reproducible byte for byte."""
     value = round(float(x), 12)
     return 0.0 if value == 0 else value

@@ -16,7 +16,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from .model import DIM, G0, G1, Model, Segment, embed, hamiltonian, interaction_hamiltonian, projector
+from .model import DIM, G1, Model, Segment, embed, hamiltonian, interaction_hamiltonian, projector
 
 MIN_WEIGHT = 1e-14
 HISTORY_STEPS = 40  # samples per driven segment when populations are recorded for a plot
@@ -191,4 +191,4 @@ def drop_intermediate(model: Model, branches: list[Branch]) -> list[Branch]:
     return out
 
 
-__all__ = ["Branch", "density_matrix", "initial_state", "level_populations", "propagate", "G0"]
+__all__ = ["Branch", "density_matrix", "initial_state", "level_populations", "propagate"]

@@ -35,9 +35,9 @@ def _load(path: str):
 
 def cmd_check(args) -> int:
     sequence = _load(args.file)
-    events = len(sequence.timeline.events)
-    print(f"{args.file}: ok ({events} events, {len(sequence.program.sites)} sites, "
-          f"{len(sequence.warnings)} warnings)")
+    counts = (len(sequence.timeline.events), len(sequence.program.sites), len(sequence.warnings))
+    words = ", ".join(f"{n} {w}{'' if n == 1 else 's'}" for n, w in zip(counts, ("event", "site", "warning")))
+    print(f"{args.file}: ok ({words})")
     return EXIT_OK
 
 

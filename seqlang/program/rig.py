@@ -29,6 +29,7 @@ SPECIES_KEYS = {
     "trap_radial": p.Key(p.non_negative(p.frequency), 0.0),
     "trap_axial": p.Key(p.non_negative(p.frequency), 0.0),
     "prep_error": p.Key(p.fraction, 0.0),
+    "decay_to_qubit": p.Key(p.fraction, 0.0),
     "t2_star": p.Key(p.non_negative(p.duration), 0.0),
     "field_noise": p.Key(p.non_negative(p.frequency), 0.0),
     "field_noise_freq": p.Key(p.non_negative(p.frequency), 0.0),

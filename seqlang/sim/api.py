@@ -5,34 +5,99 @@
 """
 from __future__ import annotations
 
-from dataclasses import dataclass, field, replace
+import math
+import sys
+from dataclasses import dataclass, field
 
 import numpy as np
 
 from ..lang.diagnostics import Diagnostic, warning
+from . import engine as fast
 from . import noise, observables
+from .basis import Basis, full_basis, partial_trace_density, partial_trace_kets, reduced_basis, site_populations
 from .clusters import clusters as find_clusters
-from .model import Model, build_model, pair_interactions_hz
-from .solve import Branch, density_matrix, drop_intermediate, propagate
+from .model import DIM, G0, G1, INTERMEDIATE, LOST, RYD, Model, build_model, pair_interactions_hz
+from .solve import propagate
 
-OPTIONS = {"interactions_hz": None, "history": False, "ladder": False, "noise": "off", "shots": 200, "seed": 1}
+ENGINES = ("auto", "fast", "lindblad", "qutip")
+OPTIONS = {"interactions_hz": None, "history": False, "ladder": False, "noise": "off", "shots": 200, "seed": 1,
+           "engine": "auto", "truncate": True, "repetitions": None, "progress": False}
 # Outcomes rarer than this are not worth a conditioned report.
 MIN_CONDITION_PROBABILITY = 1e-9
+# Drop |rr⟩ of a pair when its population can never exceed this (see engine.blockade_truncation).
+TRUNCATION_TOLERANCE = 1e-7
+SHOT_CHUNK = 100  # shots propagated together; an interrupt keeps every finished chunk
 
 
 @dataclass(frozen=True)
 class ClusterResult:
-    """One independently simulated group of atoms."""
+    """One independently simulated group of atoms: per branch, its states for every shot."""
 
     model: Model
-    branches: tuple[Branch, ...]
+    basis: Basis
+    outcomes: tuple[tuple[tuple[str, str, int], ...], ...]
+    states: tuple[np.ndarray, ...]  # (shots, D) kets or (shots, D, D) density matrices
     history: tuple = ()
-    shots: tuple = ()  # per-shot branches when quasi-static noise is sampled
+    engine: str = "qutip"
+    readout: dict = field(default_factory=dict)  # site → (false positive, false negative)
 
-    def density(self, condition: tuple[str, str, int] | None = None) -> np.ndarray:
-        chosen = [b for b in self.branches if condition is None or condition in b.outcomes
-                  or condition[1] not in self.model.sites]
-        return density_matrix(chosen)
+    @property
+    def shots(self) -> int:
+        return self.states[0].shape[0] if self.states else 1
+
+    @property
+    def is_density(self) -> bool:
+        return bool(self.states) and self.states[0].ndim == 3
+
+    def factors(self, condition) -> list[float]:
+        """Weight of each branch given a *reported* imaging outcome (readout errors included)."""
+        if condition is None or condition[1] not in self.model.sites:
+            return [1.0] * len(self.outcomes)
+        record, site, bit = condition
+        fp, fn = self.readout.get(site, (0.0, 0.0))
+        out = []
+        for labels in self.outcomes:
+            true = [b for r, s, b in labels if r == record and s == site]
+            if not true:
+                out.append(0.0)
+            elif true[0] == 1:
+                out.append(1 - fn if bit == 1 else fn)
+            else:
+                out.append(fp if bit == 1 else 1 - fp)
+        return out
+
+    def reduced(self, keep: list[int], condition=None, shot: int | None = None) -> np.ndarray:
+        """Reduced density matrix (4 levels per atom) of sites `keep`, averaged over shots."""
+        total = np.zeros((DIM ** len(keep),) * 2, dtype=complex)
+        for factor, state in zip(self.factors(condition), self.states):
+            if factor == 0:
+                continue
+            chosen = state if shot is None else state[shot:shot + 1]
+            trace = partial_trace_density if self.is_density else partial_trace_kets
+            total += factor * trace(self.basis, chosen, keep) / chosen.shape[0]
+        return total
+
+    def weight(self, condition) -> float:
+        return float(sum(f * _norms(s, self.is_density).mean() for f, s in zip(self.factors(condition), self.states)))
+
+    def populations(self) -> np.ndarray:
+        """populations[site, level] (4 levels), averaged over shots and branches.
+
+        Norm lost to decay or scattering (fast engine) is counted in |x⟩ of every
+        atom of the cluster: such a shot is a lost shot for the whole cluster.
+        """
+        probs = sum((np.real(np.diagonal(s, axis1=1, axis2=2)) if self.is_density else np.abs(s) ** 2).mean(axis=0)
+                    for s in self.states)
+        out = site_populations(self.basis, probs)
+        out[:, LOST] += np.maximum(0.0, 1.0 - out.sum(axis=1))
+        return out
+
+    def density(self, condition=None) -> np.ndarray:
+        return self.reduced(list(range(self.model.size)), condition)
+
+
+def _norms(state: np.ndarray, density: bool) -> np.ndarray:
+    return np.real(np.trace(state, axis1=1, axis2=2)) if density else np.sum(np.abs(state) ** 2, axis=1)
 
 
 @dataclass(frozen=True)
@@ -46,25 +111,26 @@ class SimulationResult:
     interactions_hz: dict
     warnings: tuple[Diagnostic, ...] = field(default=())
     noise: dict = field(default_factory=dict)
+    engine: str = "qutip"
+    reduction: dict = field(default_factory=dict)
 
     def reduced_density(self, sites: tuple[str, ...], condition=None) -> np.ndarray:
         """Density matrix (4 levels per atom) of `sites`, optionally given one imaging outcome."""
         return reduced_density(self.clusters, sites, condition)
 
     def final_state(self) -> dict[tuple[str, ...], np.ndarray]:
-        """Density matrix of each cluster, averaged over imaging outcomes and shots (trace 1)."""
+        """Density matrix of each cluster, averaged over imaging outcomes and shots."""
         return {c.model.sites: c.density() for c in self.clusters}
 
 
-def reduced_density(clusters, sites, condition=None) -> np.ndarray:
+def reduced_density(clusters, sites, condition=None, shot: int | None = None) -> np.ndarray:
     """Tensor product of the clusters' reduced states, reordered as `sites`."""
     parts, order = [], []
     for cluster in clusters:
         keep = [i for i, s in enumerate(cluster.model.sites) if s in sites]
         if not keep:
             continue
-        rho = cluster.density(condition)
-        parts.append(observables.partial_trace(rho, cluster.model.size, keep))
+        parts.append(cluster.reduced(keep, condition, shot))
         order += [cluster.model.sites[i] for i in keep]
     rho = parts[0]
     for part in parts[1:]:
@@ -75,7 +141,7 @@ def reduced_density(clusters, sites, condition=None) -> np.ndarray:
 def _reorder(rho: np.ndarray, have: list[str], want: list[str]) -> np.ndarray:
     n = len(have)
     perm = [have.index(s) for s in want]
-    tensor = rho.reshape([4] * (2 * n)).transpose(perm + [p + n for p in perm])
+    tensor = rho.reshape([DIM] * (2 * n)).transpose(perm + [p + n for p in perm])
     return tensor.reshape(rho.shape)
 
 
@@ -85,6 +151,8 @@ def simulate(source, **options) -> SimulationResult:
     if unknown:
         raise TypeError(f"unknown simulate option(s): {', '.join(sorted(unknown))}")
     options = {**OPTIONS, **options}
+    if options["engine"] not in ENGINES:
+        raise ValueError(f"unknown engine {options['engine']!r}; use one of {', '.join(ENGINES)}")
     from ..api import Sequence, load
     sequence = source if isinstance(source, Sequence) else load(str(source))
     program, timeline = sequence.program, sequence.played
@@ -94,58 +162,178 @@ def simulate(source, **options) -> SimulationResult:
         interactions = pair_interactions_hz(program, tuple(program.sites))
         warnings = _forster_warnings(program)
     sources = noise.parse_sources(options["noise"]) if isinstance(options["noise"], str) else tuple(options["noise"])
+    shots = options["shots"] if noise.is_sampled(sources) else 1
     rng = np.random.default_rng(options["seed"])
-    results = [_simulate_cluster(program, timeline, group, interactions, options, sources, rng)
+    runner = _ClusterRunner(program, options, sources, shots, rng)
+    results = [runner.run(build_model(program, timeline, group, interactions, ladder=options["ladder"]))
                for group in find_clusters(program, timeline, interactions)]
-    expectations = tuple(_expectation(program, results, e) for e in program.expects)
-    info = {"sources": list(sources), "shots": _shots(sources, options), "seed": options["seed"]}
-    expectations = tuple(_with_errors(e, results, info["shots"]) for e in expectations)
+    done = min(r.shots for r in results) if shots > 1 else 1
+    repetitions = options["repetitions"] or done
+    expectations = tuple(_with_errors(_expectation(program, results, e), results, repetitions, done)
+                         for e in program.expects)
+    if options["repetitions"]:
+        expectations = tuple({**e, "sampled_counts": sample_counts(e["populations"], repetitions,
+                                                                   (options["seed"], k))}
+                             for k, e in enumerate(expectations))
+    info = {"sources": list(sources), "shots": done, "seed": options["seed"], "repetitions": repetitions}
+    if runner.interrupted:
+        info["interrupted"] = f"stopped after {done} of {shots} shots"
+    engines = sorted({r.engine for r in results})
     return SimulationResult(program.name, tuple(results), expectations, _records(results), interactions,
-                            tuple(warnings), info)
+                            tuple(warnings), info, "+".join(engines), runner.reduction)
 
 
-def _shots(sources, options) -> int:
-    return options["shots"] if any(s in noise.QUASI_STATIC for s in sources) else 1
+class _ClusterRunner:
+    """Draws the shots of a cluster and propagates them with the chosen engine."""
+
+    def __init__(self, program, options, sources, shots, rng):
+        self.program, self.options, self.sources, self.shots, self.rng = program, options, sources, shots, rng
+        self.interrupted = False
+        self.reduction: dict = {"truncated_pairs": [], "neglected_bound": 0.0, "states": 0, "full_states": 0}
+
+    def run(self, nominal: Model) -> ClusterResult:
+        program, sources = self.program, self.sources
+        model = noise.prepare(program, nominal, sources)
+        jumps = noise.jumps(program, model, sources)
+        engine = _choose(self.options["engine"], jumps)
+        readout = {name: noise.readout_errors(program, sp, sources) for name, sp in zip(model.sites, model.species)}
+        shots = self._draw(model)
+        if engine == "qutip":
+            result = self._qutip(model, shots, jumps)
+        else:
+            result = self._fast(model, shots, jumps, engine == "lindblad")
+        return ClusterResult(nominal, result[0], result[1], result[2], result[3], engine, readout)
+
+    def _draw(self, model: Model) -> noise.Shots:
+        if not noise.is_sampled(self.sources):
+            return noise.nominal_shots(model)
+        return noise.sample(self.program, model, self.sources, noise.draw(model, self.shots, self.rng))
+
+    def _basis(self, model: Model) -> Basis:
+        rydberg = {c.site for seg in model.segments for c in seg.couplings if RYD in (c.lower, c.upper)}
+        ladder = {c.site for seg in model.segments for c in seg.couplings if INTERMEDIATE in (c.lower, c.upper)}
+        lossy = noise.lossy_sites(self.program, model, self.sources)
+        if self.density:  # density matrices carry |x⟩ explicitly wherever decay or scattering can lead
+            lossy |= {j.site for j in noise.jumps(self.program, model, self.sources) if j.target == LOST}
+            lossy |= {x.site for seg in model.segments for x in seg.shifts if x.loss_rate > 0}
+        allowed = [(G0, G1) + ((RYD,) if i in rydberg else ()) + ((LOST,) if i in lossy else ())
+                   + ((INTERMEDIATE,) if i in ladder else ()) for i in range(model.size)]
+        pairs, bound = (fast.blockade_truncation(model, TRUNCATION_TOLERANCE) if self.options["truncate"]
+                        else ((), 0.0))
+        pairs = tuple(p for p in pairs if p[0] in rydberg and p[1] in rydberg)
+        basis = reduced_basis(allowed, model.dim, pairs, bound)
+        r = self.reduction
+        r["truncated_pairs"] += [[model.sites[i], model.sites[j]] for i, j in pairs]
+        r["neglected_bound"] = observables.clean(r["neglected_bound"] + bound)
+        r["states"] += basis.size
+        r["full_states"] += model.dim ** model.size
+        return basis
+
+    def _fast(self, model: Model, shots: noise.Shots, jumps, density: bool):
+        self.density = density
+        basis = self._basis(model)
+        loss = noise.image_loss(self.program, self.sources)
+        merged: dict[tuple, list[np.ndarray]] = {}
+        history = ()
+        progress = _Progress(shots.count) if self.options["progress"] and shots.count > SHOT_CHUNK else None
+        done = 0
+        try:
+            for lo in range(0, shots.count, SHOT_CHUNK):
+                chunk = shots.rows(lo, lo + SHOT_CHUNK)
+                found = fast.run(basis, chunk, jumps, density, loss, self.options["history"])
+                _merge(merged, found.outcomes, found.states, done)
+                history = history or tuple(found.history)
+                done += chunk.count
+                if progress:
+                    progress.update(done)
+        except KeyboardInterrupt:
+            if done == 0:
+                raise
+            self.interrupted = True
+        finally:
+            if progress:
+                progress.close()
+        outcomes = tuple(sorted(merged))
+        return basis, outcomes, tuple(_pad(merged[o], done) for o in outcomes), history
+
+    def _qutip(self, model: Model, shots: noise.Shots, jumps):
+        c_ops = noise.collapse_operators(self.program, model, self.sources)
+        basis = full_basis(model.size, model.dim)
+        self.reduction["states"] += basis.size
+        self.reduction["full_states"] += basis.size
+        loss = noise.image_loss(self.program, self.sources)
+        merged: dict[tuple, list[np.ndarray]] = {}
+        history = ()
+        for k in range(shots.count):
+            initial = basis.state(shots.initial[k])
+            draws = tuple(d[k] for d in shots.image_draws)
+            found, hist = propagate(shots.shot_model(k), c_ops, self.options["history"], initial, loss, draws)
+            history = history or tuple(hist)
+            _merge(merged, [b.outcomes for b in found], [b.state[None] for b in found], k)
+        outcomes = tuple(sorted(merged))
+        return basis, outcomes, tuple(_pad(merged[o], shots.count) for o in outcomes), history
 
 
-def _simulate_cluster(program, timeline, group, interactions, options, sources, rng) -> "ClusterResult":
-    model = build_model(program, timeline, group, interactions, ladder=options["ladder"])
-    c_ops = noise.collapse_operators(program, model, sources)
-    shots = _shots(sources, options)
-    branches, history, per_shot = [], (), []
-    for _ in range(shots):
-        shot_model = noise.sample_model(program, model, sources, rng) if shots > 1 else model
-        initial = noise.prepared_state(program, model, sources, rng)
-        found, history = propagate(shot_model, c_ops, record_history=options["history"], initial=initial)
-        found = drop_intermediate(model, found)
-        per_shot.append(tuple(found))
-        branches += [_scaled(b, shots) for b in found]
-    return ClusterResult(replace(model, dim=4), tuple(branches), tuple(history), tuple(per_shot) if shots > 1 else ())
+def _choose(requested: str, jumps) -> str:
+    """The engine for a model: Lindblad when dissipation returns into the simulated states."""
+    returning = fast.needs_lindblad(jumps)
+    if requested == "auto":
+        return "lindblad" if returning else "fast"
+    if requested == "fast" and returning:
+        raise ValueError("the fast engine needs all dissipation to end in the loss level; this model has decay "
+                         "back into the qubit space or pure dephasing: use --engine lindblad or auto")
+    return requested
 
 
-def _scaled(branch: Branch, shots: int) -> Branch:
-    factor = 1 / np.sqrt(shots) if branch.state.ndim == 1 else 1 / shots
-    return Branch(branch.outcomes, branch.state * factor)
+def _merge(merged: dict, outcomes, states, offset: int) -> None:
+    """Collect per-branch state arrays over chunks of shots: (first shot index, array)."""
+    for labels, state in zip(outcomes, states):
+        merged.setdefault(tuple(labels), []).append((offset, state))
 
 
-def _with_errors(expectation: dict, clusters, shots: int) -> dict:
-    """Add the Monte Carlo standard error of the fidelity and binomial error bars for `shots`."""
-    out = dict(expectation)
-    out["populations_error"] = {k: observables.clean(noise.binomial_error(v, shots))
-                                for k, v in expectation["populations"].items()}
-    inside = [c for c in clusters if set(expectation["sites"]) <= set(c.model.sites) and c.shots]
-    if inside:
-        values = [_shot_fidelity(inside[0], shot, expectation) for shot in inside[0].shots]
-        out["fidelity_error"] = observables.clean(np.std(values, ddof=1) / np.sqrt(len(values)))
+def _pad(parts: list, total: int) -> np.ndarray:
+    """One (shots, …) array per branch, with zeros for shots where the branch was dropped."""
+    first = parts[0][1]
+    out = np.zeros((total,) + first.shape[1:], dtype=complex)
+    for offset, state in parts:
+        out[offset:offset + state.shape[0]] = state[: total - offset]
     return out
 
 
-def _shot_fidelity(cluster, branches, expectation) -> float:
-    single = ClusterResult(cluster.model, branches)
-    rho = reduced_density([single], tuple(expectation["sites"]))
+class _Progress:
+    """A one-line progress bar on stderr, for long Monte Carlo runs on a terminal."""
+
+    def __init__(self, total: int):
+        self.total, self.live = total, sys.stderr.isatty()
+
+    def update(self, done: int) -> None:
+        if self.live:
+            filled = int(30 * done / self.total)
+            sys.stderr.write(f"\r  shots [{'#' * filled}{'.' * (30 - filled)}] {done}/{self.total}")
+            sys.stderr.flush()
+
+    def close(self) -> None:
+        if self.live:
+            sys.stderr.write("\n")
+
+
+def _with_errors(expectation: dict, clusters, repetitions: int, shots: int) -> dict:
+    """Binomial error bars for `repetitions` runs of the experiment, the Monte Carlo standard
+    error of the fidelity, and a sampled histogram of the expected sites' outcomes."""
+    out = dict(expectation)
+    out["populations_error"] = {k: observables.clean(noise.binomial_error(v, repetitions))
+                                for k, v in expectation["populations"].items()}
+    inside = [c for c in clusters if set(expectation["sites"]) <= set(c.model.sites)]
+    if inside and shots > 1:
+        values = [_shot_fidelity(inside[0], k, expectation) for k in range(inside[0].shots)]
+        out["fidelity_error"] = observables.clean(np.std(values, ddof=1) / math.sqrt(len(values)))
+    return out
+
+
+def _shot_fidelity(cluster: ClusterResult, shot: int, expectation) -> float:
+    rho = reduced_density([cluster], tuple(expectation["sites"]), shot=shot)
     state = expectation["state"]
-    is_ket = state.startswith("|")
-    return observables.summarize(rho, len(expectation["sites"]), state.strip("|>"), is_ket)["fidelity"]
+    return observables.fidelity(rho, len(expectation["sites"]), state.strip("|>"), state.startswith("|"))
 
 
 def _expectation(program, clusters, expect) -> dict:
@@ -157,31 +345,41 @@ def _expectation(program, clusters, expect) -> dict:
 
 
 def _conditioned(program, clusters, expect) -> list[dict]:
-    """The expected sites' numbers given each imaging outcome of another site."""
+    """The expected sites' numbers given each reported imaging outcome of another site."""
     out = []
     for cluster in clusters:
-        labels = sorted({lab for b in cluster.branches for lab in b.outcomes if lab[1] not in expect.sites})
-        for record, site, bit in labels:
-            weight = sum(b.weight for b in cluster.branches if (record, site, bit) in b.outcomes)
-            if weight < MIN_CONDITION_PROBABILITY:
-                continue
-            rho = reduced_density(clusters, expect.sites, (record, site, bit))
-            rho = rho / np.trace(rho).real
-            numbers = observables.summarize(rho, len(expect.sites), expect.state, expect.is_ket)
-            out.append({"record": record, "site": site, "outcome": bit,
-                        "probability": observables.clean(weight), **numbers})
+        labels = sorted({lab[:2] for o in cluster.outcomes for lab in o if lab[1] not in expect.sites})
+        for record, site in labels:
+            for bit in (0, 1):
+                condition = (record, site, bit)
+                weight = cluster.weight(condition)
+                if weight < MIN_CONDITION_PROBABILITY:
+                    continue
+                rho = reduced_density(clusters, expect.sites, condition)
+                rho = rho / np.trace(rho).real
+                numbers = observables.summarize(rho, len(expect.sites), expect.state, expect.is_ket)
+                out.append({"record": record, "site": site, "outcome": bit,
+                            "probability": observables.clean(weight), **numbers})
     return out
 
 
 def _records(clusters) -> dict:
-    """Probability of a bright (|1⟩) outcome per record and site."""
+    """Probability of a reported bright outcome per record and site (readout errors included)."""
     records: dict = {}
     for cluster in clusters:
-        for b in cluster.branches:
-            for record, site, bit in b.outcomes:
-                entry = records.setdefault(record, {}).setdefault(site, 0.0)
-                records[record][site] = entry + (b.weight if bit else 0.0)
+        names = sorted({lab[:2] for o in cluster.outcomes for lab in o})
+        for record, site in names:
+            records.setdefault(record, {})[site] = cluster.weight((record, site, 1))
     return {r: {s: observables.clean(p) for s, p in sorted(v.items())} for r, v in sorted(records.items())}
+
+
+def sample_counts(probabilities: dict[str, float], repetitions: int, seed) -> dict[str, int]:
+    """A sampled histogram: `repetitions` draws of the outcomes, with what is left as "other"."""
+    labels = list(probabilities)
+    p = np.clip(np.array([probabilities[k] for k in labels]), 0, None)
+    rest = max(0.0, 1.0 - p.sum())
+    counts = np.random.default_rng(seed).multinomial(repetitions, np.append(p, rest) / (p.sum() + rest))
+    return {**dict(zip(labels, map(int, counts[:-1]))), "other": int(counts[-1])}
 
 
 def _forster_warnings(program) -> list[Diagnostic]:

@@ -9,10 +9,11 @@ from .api import simulate
 from .noise import SOURCES
 
 
-def budget(sequence, shots: int = 200, seed: int = 1) -> dict:
+def budget(sequence, shots: int = 200, seed: int = 1, **options) -> dict:
     """Infidelities per expectation: {"none", "all", and each source} plus settings."""
     runs = {"none": (), "all": SOURCES, **{s: (s,) for s in SOURCES}}
-    results = {name: simulate(sequence, noise=sources, shots=shots, seed=seed) for name, sources in runs.items()}
+    results = {name: simulate(sequence, noise=sources, shots=shots, seed=seed, **options)
+               for name, sources in runs.items()}
     expectations = []
     for k, e in enumerate(results["none"].expectations):
         entry = {"sites": e["sites"], "state": e["state"], "infidelity": {}, "error": {}}
@@ -21,12 +22,14 @@ def budget(sequence, shots: int = 200, seed: int = 1) -> dict:
             entry["infidelity"][name] = round(1 - x["fidelity"], 12)
             entry["error"][name] = x.get("fidelity_error", 0.0)
         expectations.append(entry)
-    return {"program": sequence.program.name, "shots": shots, "seed": seed, "expectations": expectations}
+    engines = sorted({r.engine for r in results.values()})
+    return {"program": sequence.program.name, "shots": shots, "seed": seed, "engines": engines,
+            "expectations": expectations}
 
 
 def budget_table(numbers: dict) -> str:
-    lines = [f"error budget of {numbers['program']} ({numbers['shots']} shots for quasi-static noise, "
-             f"seed {numbers['seed']})"]
+    lines = [f"error budget of {numbers['program']} ({numbers['shots']} shots for sampled noise, "
+             f"seed {numbers['seed']}; engine {', '.join(numbers.get('engines', []))})"]
     for e in numbers["expectations"]:
         lines.append(f"\n{', '.join(e['sites'])} as {e['state']}:")
         ordered = sorted(e["infidelity"].items(), key=lambda kv: -kv[1])

@@ -7,7 +7,10 @@ import sys
 from ..lang.diagnostics import render, sort_diagnostics
 from .model import LEVELS
 from .observables import clean
-from .solve import level_populations
+
+
+from .api import ENGINES
+from .noise import SOURCES
 
 
 def register(sub) -> None:
@@ -17,23 +20,32 @@ def register(sub) -> None:
     p.add_argument("--ladder", action="store_true",
                    help="keep the intermediate state of Rydberg drives explicit (needs the legs' Rabi frequencies)")
     _noise_options(p)
+    p.add_argument("--sample", type=int, metavar="N",
+                   help="error bars for N repetitions of the experiment, and a sampled histogram of N outcomes")
     p.set_defaults(run=cmd_simulate)
 
     b = sub.add_parser("budget", help="infidelity of each expected state with all noise, none, and each source alone")
     b.add_argument("file", help="a sequence file (*.seq)")
     b.add_argument("--json", action="store_true", help="print one JSON object instead of the table")
     b.add_argument("-o", "--output", metavar="PNG", help="also draw the budget as a bar chart")
-    b.add_argument("--shots", type=int, default=200, help="Monte Carlo shots for quasi-static noise (default 200)")
-    b.add_argument("--seed", type=int, default=1, help="random seed (default 1); recorded in the output")
+    _run_options(b)
     b.set_defaults(run=cmd_budget)
 
 
 def _noise_options(p) -> None:
     p.add_argument("--noise", default="off", metavar="off|all|SOURCE,...",
-                   help="noise sources: off (default), all, or a list of decay, dephasing, intensity, "
-                        "doppler, preparation")
-    p.add_argument("--shots", type=int, default=200, help="Monte Carlo shots for quasi-static noise (default 200)")
+                   help="noise sources: off (default), all, or a comma list of " + ", ".join(SOURCES))
+    _run_options(p)
+
+
+def _run_options(p) -> None:
+    p.add_argument("--shots", type=int, default=200, help="Monte Carlo shots for sampled noise (default 200)")
     p.add_argument("--seed", type=int, default=1, help="random seed (default 1); recorded in the output")
+    p.add_argument("--engine", choices=ENGINES, default="auto",
+                   help="auto (default: fast unless dissipation returns into the qubit space), fast, lindblad, "
+                        "or qutip (the reference path)")
+    p.add_argument("--no-truncation", dest="truncate", action="store_false",
+                   help="keep doubly excited states of strongly blockaded pairs")
 
 
 def cmd_simulate(args) -> int:
@@ -45,10 +57,13 @@ def cmd_simulate(args) -> int:
         sources = parse_sources(args.noise)
     except ValueError as exc:
         raise UsageError(str(exc)) from None
-    if args.shots < 1:
-        raise UsageError("--shots must be at least 1")
+    _check_counts(args)
     sequence = _load(args.file)
-    result = simulate(sequence, ladder=args.ladder, noise=sources, shots=args.shots, seed=args.seed)
+    try:
+        result = simulate(sequence, ladder=args.ladder, noise=sources, shots=args.shots, seed=args.seed,
+                          engine=args.engine, truncate=args.truncate, repetitions=args.sample, progress=True)
+    except ValueError as exc:
+        raise UsageError(str(exc)) from None
     for diagnostic in sort_diagnostics(result.warnings):
         print(render(diagnostic), file=sys.stderr)
     document = as_document(result)
@@ -56,12 +71,19 @@ def cmd_simulate(args) -> int:
     return 0
 
 
+def _check_counts(args) -> None:
+    from ..cli import UsageError
+    if args.shots < 1:
+        raise UsageError("--shots must be at least 1")
+    if getattr(args, "sample", None) is not None and args.sample < 1:
+        raise UsageError("--sample must be at least 1")
+
+
 def as_document(result) -> dict:
     """The JSON form: expectations, records, final level populations, interactions."""
     sites = {}
     for cluster in result.clusters:
-        pops = level_populations(cluster.model, list(cluster.branches))
-        for name, row in zip(cluster.model.sites, pops):
+        for name, row in zip(cluster.model.sites, cluster.populations()):
             sites[name] = {level: clean(p) for level, p in zip(LEVELS, row)}
     return {
         "program": result.program_name,
@@ -71,6 +93,8 @@ def as_document(result) -> dict:
         "interactions_hz": {f"{a}-{b}": clean(v) for (a, b), v in sorted(result.interactions_hz.items())},
         "clusters": [list(c.model.sites) for c in result.clusters],
         "noise": result.noise,
+        "engine": result.engine,
+        "reduction": result.reduction,
         "note": "model prediction for the played (tick-quantized) timeline; not a guarantee of the apparatus",
     }
 
@@ -80,11 +104,22 @@ def summary(document: dict) -> str:
     lines = [f"simulated {document['program']} (clusters: "
              + ", ".join("{" + ",".join(c) + "}" for c in document["clusters"]) + "); noise: "
              + (", ".join(noise.get("sources", [])) or "off")
-             + (f"; {noise['shots']} shots, seed {noise['seed']}" if noise.get("shots", 1) > 1 else "")]
+             + (f"; {noise['shots']} shots, seed {noise['seed']}" if noise.get("shots", 1) > 1 else "")
+             + f"; engine {document.get('engine', 'qutip')}"]
+    reduction = document.get("reduction") or {}
+    if reduction.get("truncated_pairs"):
+        lines.append(f"blockade truncation: |rr> dropped for {len(reduction['truncated_pairs'])} pair(s), "
+                     f"neglected population <= {reduction['neglected_bound']:.2g}")
+    if noise.get("interrupted"):
+        lines.append(f"interrupted: {noise['interrupted']}; the numbers use the finished shots")
     for e in document["expectations"]:
         error = f" ± {e['fidelity_error']:.2g} (Monte Carlo)" if "fidelity_error" in e else ""
         lines.append(f"\nexpect {', '.join(e['sites'])} as {e['state']}: fidelity {e['fidelity']:.6f}{error}")
         lines.append("  populations " + "  ".join(f"{k}: {v:.5f}" for k, v in e["populations"].items()))
+        if "sampled_counts" in e:
+            lines.append(f"  sampled {noise.get('repetitions')} repetitions (seed {noise.get('seed')}): "
+                         + "  ".join(f"{k}: {v}" for k, v in e["sampled_counts"].items())
+                         + "   binomial error " + "  ".join(f"{v:.3f}" for v in e["populations_error"].values()))
         lines.append(f"  residual Rydberg {e['residual_rydberg']:.3g}   lost {e['loss']:.3g}")
         if "correlators" in e:
             c = e["correlators"]
@@ -107,10 +142,12 @@ __all__ = ["register", "as_document", "summary"]
 def cmd_budget(args) -> int:
     from ..cli import UsageError, _load
     from .budget import budget, budget_table, plot_budget
-    if args.shots < 1:
-        raise UsageError("--shots must be at least 1")
+    _check_counts(args)
     sequence = _load(args.file)
-    numbers = budget(sequence, shots=args.shots, seed=args.seed)
+    try:
+        numbers = budget(sequence, shots=args.shots, seed=args.seed, engine=args.engine, truncate=args.truncate)
+    except ValueError as exc:
+        raise UsageError(str(exc)) from None
     print(json.dumps(numbers, indent=1) if args.json else budget_table(numbers))
     if args.output:
         plot_budget(numbers, args.output)

@@ -47,11 +47,18 @@ class Drive1:
 
 @dataclass(frozen=True)
 class LevelShift:
-    """A light shift of one level of one site while a pulse plays (rad/s, added to H)."""
+    """A light shift of one level of one site while a pulse plays (rad/s, added to H).
+
+    `scatter` is the fraction (Ω_leg/2Δ)² of the intermediate state mixed into the
+    level, so that it scatters at Γ_e·scatter; `loss_rate` (1/s) is that rate
+    once the scattering source is switched on.
+    """
 
     site: int
     level: int
     shift: float
+    loss_rate: float = 0.0
+    scatter: float = 0.0
 
 
 @dataclass(frozen=True)
@@ -198,8 +205,10 @@ def leg_rabi(drive, omega_eff: float) -> tuple[float, float, float] | None:
 
 
 def light_shifts(site: int, omega1: float, omega2: float, big_delta: float) -> list[LevelShift]:
-    """AC Stark shifts left by eliminating |e⟩: +Ω₁²/(4Δ) on |1⟩ and +Ω₂²/(4Δ) on |r⟩ (derived)."""
-    return [LevelShift(site, G1, omega1**2 / (4 * big_delta)), LevelShift(site, RYD, omega2**2 / (4 * big_delta))]
+    """AC Stark shifts left by eliminating |e⟩: +Ω₁²/(4Δ) on |1⟩ and +Ω₂²/(4Δ) on |r⟩ (derived),
+    with the admixture (Ω/2Δ)² of |e⟩ that makes each level scatter."""
+    return [LevelShift(site, G1, omega1**2 / (4 * big_delta), scatter=(omega1 / (2 * big_delta)) ** 2),
+            LevelShift(site, RYD, omega2**2 / (4 * big_delta), scatter=(omega2 / (2 * big_delta)) ** 2)]
 
 
 # ---- operators -------------------------------------------------------------------

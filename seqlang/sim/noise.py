@@ -1,35 +1,70 @@
-"""Noise sources declared in the rig, as collapse operators or per-shot samples.
+"""Noise sources declared in the rig: dissipators, and per-shot samples.
 
-Markovian sources become Lindblad collapse operators:
+Markovian sources are Lindblad jump operators √Γ|target⟩⟨source| (`Jump`):
 * ``decay``: each Rydberg level decays at Γ = 1/τ (radiative plus black-body at
-  the rig's ``environment`` temperature, from the alkali Rydberg calculator); all
-  of it is taken out of the qubit space into |x⟩ (documented simplification: the
-  cascade back into the ground manifold is slow and mostly ends outside the qubit
-  pair).
-* ``dephasing``: white laser frequency noise of a Rydberg drive with Lorentzian
-  linewidth Δν (FWHM): the |1⟩–|r⟩ coherence decays at γ = πΔν (REFERENCES.md),
-  L = √(2γ)|r⟩⟨r|.
-Quasi-static sources are sampled once per shot with a seeded generator:
-* ``intensity``: every pulse of a drive has its Rabi frequency scaled by (1 + σξ),
-  ξ ~ N(0, 1), σ the drive's ``intensity_noise``;
-* ``doppler``: each atom's Rydberg detuning moves by k_eff·v, v ~ N(0, k_B T/m),
-  k_eff = |k₁ ∓ k₂| for counter- (co-) propagating legs;
-* ``preparation``: with the species' ``prep_error`` an atom starts lost (|x⟩).
+  the rig's ``environment`` temperature, from the alkali Rydberg calculator). A
+  fraction ``decay_to_qubit`` of the species (default 0) returns into the qubit
+  states, split equally between |0⟩ and |1⟩ (documented simplification of the
+  cascade); the rest leaves the qubit space into |x⟩.
+* ``dephasing``: white laser frequency noise with Lorentzian linewidth Δν (FWHM)
+  dephases the |1⟩–|r⟩ coherence at γ = πΔν: L = √(2γ)|r⟩⟨r|.
+* ``scattering``: photon scattering off the intermediate state of a two-photon
+  drive while it plays, at Γ_e(Ω₁/2Δ)² from |1⟩ and Γ_e(Ω₂/2Δ)² from |r⟩
+  (adiabatic elimination); counted as loss. In ladder mode |e⟩ decays instead.
+
+Quasi-static and coloured sources are drawn per shot from one seeded stream.
+Every shot draws every number, used or not, so that runs with different
+sources see the same samples (common random numbers make budgets fair):
+* ``intensity``: each drive's Rabi frequency scaled by (1 + σξ), and by the
+  Gaussian beam profile exp(−ρ²/w²) at the atom's thermal offset ρ from the
+  beam axis (drive ``waist``; beams taken centred on the trap, along its axis);
+* ``doppler``: Rydberg detuning + k_eff·v, v ~ N(0, k_B T/m),
+  k_eff = |k₁ − k₂| (counter-propagating legs) or k₁ + k₂ (co-propagating);
+* ``motion``: thermal position spread in the trap, σ = √(k_B T/m)/ω (radial,
+  axial trap frequencies), moves pair distances and so V = C6/R⁶;
+* ``detuning_error``: microwave/Raman detuning off by ε·ξ per shot (ε the drive's
+  ``detuning_error``, an rms value);
+* ``t2_star``: quasi-static qubit frequency offset per atom, rms √2/T2*, so that
+  Ramsey contrast decays as exp(−(t/T2*)²);
+* ``field_noise``: a classical field modulation of the qubit frequency,
+  A·sin(2πf t + φ) with φ uniform per shot (A, f the species' ``field_noise``,
+  ``field_noise_freq``) — what decoupling trains filter;
+* ``laser_noise``: the servo bump of a Rydberg laser's frequency-noise spectrum,
+  S(f) = h·(Δν/π)·exp(−(f − f_b)²/2w²) (height h relative to the white floor
+  Δν/π), sampled per shot as a sum of Gaussian-weighted quadratures;
+* ``preparation``: an atom starts lost (|x⟩) with the species' ``prep_error``;
+* ``imaging``: a bright atom is lost during imaging with the imaging ``loss``;
+  readout flips (false positives/negatives) are applied to the reported records.
 """
 from __future__ import annotations
 
 import math
-from dataclasses import replace
+from dataclasses import dataclass, replace
 
 import numpy as np
 
 from ..program.model import Program
-from .model import G0, LOST, RYD, Model, embed
+from .model import G0, G1, INTERMEDIATE, LADDER_DIM, LOST, RYD, LevelShift, Model, Segment
 
-SOURCES = ("decay", "dephasing", "intensity", "doppler", "preparation")
-MARKOVIAN = ("decay", "dephasing")
-QUASI_STATIC = ("intensity", "doppler", "preparation")
+SOURCES = ("decay", "dephasing", "scattering", "laser_noise", "intensity", "doppler", "motion",
+           "detuning_error", "t2_star", "field_noise", "preparation", "imaging")
+MARKOVIAN = ("decay", "dephasing", "scattering")
+SAMPLED = ("laser_noise", "intensity", "doppler", "motion", "detuning_error", "t2_star", "field_noise",
+           "preparation", "imaging")
 BOLTZMANN = 1.380649e-23  # J/K (SI, exact)
+BUMP_COMPONENTS = 48  # quadratures spanning a servo bump
+BUMP_SPAN = 3.0  # the bump is sampled over f_b ± BUMP_SPAN·w
+STEPS_PER_PERIOD = 16  # sub-steps per period of the fastest time-dependent noise
+
+
+@dataclass(frozen=True)
+class Jump:
+    """A Lindblad operator √rate·|target⟩⟨source| on one site (rate in 1/s)."""
+
+    site: int
+    source: int
+    target: int
+    rate: float
 
 
 def parse_sources(text: str) -> tuple[str, ...]:
@@ -45,8 +80,14 @@ def parse_sources(text: str) -> tuple[str, ...]:
     return chosen
 
 
+def is_sampled(sources: tuple[str, ...]) -> bool:
+    """True when the sources need Monte Carlo shots."""
+    return any(s in SAMPLED for s in sources)
+
+
+# ---- Markovian -------------------------------------------------------------------
 def rydberg_sites(program: Program, model: Model) -> dict[int, str]:
-    """Site index → Rydberg drive species for atoms that some Rydberg drive couples."""
+    """Site index → species for atoms that some Rydberg drive couples."""
     driven = {c.site for seg in model.segments for c in seg.couplings
               if c.drive and program.rig.drives[c.drive].kind == "rydberg"}
     return {i: model.species[i] for i in sorted(driven)}
@@ -65,20 +106,331 @@ def dephasing_rate_hz(program: Program, species: str) -> float:
                if d.kind == "rydberg" and d.species == species)
 
 
-def collapse_operators(program: Program, model: Model, sources: tuple[str, ...]) -> list[np.ndarray]:
-    """Lindblad operators (√rate·L, rates in 1/s) of the Markovian sources chosen."""
-    ops = []
+def jumps(program: Program, model: Model, sources: tuple[str, ...]) -> list[Jump]:
+    """The Lindblad operators of the Markovian sources chosen."""
+    out = []
     for site, species in rydberg_sites(program, model).items():
         if "decay" in sources:
-            jump = np.zeros((model.dim, model.dim), dtype=complex)
-            jump[LOST, RYD] = 1.0
-            ops.append(math.sqrt(decay_rate_hz(program, species)) * embed(jump, site, model.size))
+            gamma = decay_rate_hz(program, species)
+            back = program.rig.species[species].extra.get("decay_to_qubit", 0.0)
+            out.append(Jump(site, RYD, LOST, gamma * (1 - back)))
+            if back > 0:
+                out += [Jump(site, RYD, G0, gamma * back / 2), Jump(site, RYD, G1, gamma * back / 2)]
         gamma = dephasing_rate_hz(program, species) if "dephasing" in sources else 0.0
         if gamma > 0:
-            proj = np.zeros((model.dim, model.dim), dtype=complex)
-            proj[RYD, RYD] = 1.0
-            ops.append(math.sqrt(2 * gamma) * embed(proj, site, model.size))
+            out.append(Jump(site, RYD, RYD, 2 * gamma))
+        if "scattering" in sources and model.dim == LADDER_DIM:
+            out.append(Jump(site, INTERMEDIATE, LOST, intermediate_width(program, species)))
+    return [j for j in out if j.rate > 0]
+
+
+def intermediate_width(program: Program, species: str) -> float:
+    """Γ_e (1/s) of the intermediate level of the species' two-photon excitation: the
+    D2 level, or the next P3/2 level when the lower leg is blue (< 500 nm)."""
+    from ..atoms import rydberg
+    data = program.rig.species[species].data
+    legs = [d.legs for d in program.rig.drives.values() if d.kind == "rydberg" and d.species == species and d.legs]
+    blue = bool(legs) and legs[0].lower_wavelength_m < 500e-9
+    level = rydberg.default_intermediate(data, "blue" if blue else "d2")
+    return 2 * math.pi * rydberg.intermediate_linewidth_hz(data, level.n, level.l, level.j)
+
+
+def collapse_operators(program: Program, model: Model, sources: tuple[str, ...]) -> list[np.ndarray]:
+    """The same jumps as dense operators on the full space (for the QuTiP reference)."""
+    from .model import embed
+    ops = []
+    for j in jumps(program, model, sources):
+        single = np.zeros((model.dim, model.dim), dtype=complex)
+        single[j.target, j.source] = math.sqrt(j.rate)
+        ops.append(embed(single, j.site, model.size))
     return ops
+
+
+# ---- deterministic preparation of the model ----------------------------------------
+def prepare(program: Program, model: Model, sources: tuple[str, ...]) -> Model:
+    """The model the shots perturb: scattering on or off, time grid fine enough for the
+    time-dependent sources."""
+    scattering = "scattering" in sources and model.dim != LADDER_DIM
+    widths = {sp: intermediate_width(program, sp) for sp in set(model.species)
+              if scattering and program.rig.species[sp].rydberg is not None}
+
+    def rate(x: LevelShift) -> float:
+        return widths[model.species[x.site]] * x.scatter if scattering and x.scatter else 0.0
+    segments = tuple(replace(s, shifts=tuple(replace(x, loss_rate=rate(x)) for x in s.shifts))
+                     for s in model.segments)
+    step = _noise_step(program, model, sources)
+    if step < math.inf:
+        segments = tuple(piece for s in segments for piece in _split(s, step))
+    return replace(model, segments=segments)
+
+
+def _noise_step(program: Program, model: Model, sources: tuple[str, ...]) -> float:
+    """Longest driven sub-step that still follows the fastest time-dependent noise."""
+    fastest = 0.0
+    if "laser_noise" in sources:
+        for drive in _bumped_drives(program, model):
+            d = program.rig.drives[drive]
+            fastest = max(fastest, d.extra["servo_bump"] + BUMP_SPAN * d.extra.get("servo_width", 0.0))
+    if "field_noise" in sources:
+        fastest = max([fastest] + [program.rig.species[s].extra.get("field_noise_freq", 0.0)
+                                   for s in set(model.species)
+                                   if program.rig.species[s].extra.get("field_noise", 0.0) > 0])
+    return 1 / (STEPS_PER_PERIOD * fastest) if fastest > 0 else math.inf
+
+
+def _split(segment: Segment, step: float) -> list[Segment]:
+    if not segment.couplings or segment.duration_s <= step:
+        return [segment]
+    count = math.ceil(segment.duration_s / step)
+    width = segment.duration_s / count
+    return [replace(segment, start_s=segment.start_s + k * width, duration_s=width) for k in range(count)]
+
+
+def _bumped_drives(program: Program, model: Model) -> list[str]:
+    names = sorted({c.drive for seg in model.segments for c in seg.couplings if c.drive})
+    return [n for n in names if program.rig.drives[n].kind == "rydberg"
+            and program.rig.drives[n].extra.get("servo_bump", 0.0) > 0
+            and program.rig.drives[n].extra.get("servo_height", 0.0) > 0]
+
+
+# ---- per-shot draws -----------------------------------------------------------------
+@dataclass(frozen=True)
+class Draws:
+    """The random numbers of all shots, stacked (standard normal unless said otherwise)."""
+
+    intensity: np.ndarray  # (shots, drives)
+    offsets: np.ndarray  # (shots, sites, 3) thermal position offsets in units of σ
+    velocity: np.ndarray  # (shots, sites) along k_eff, in units of σ_v
+    detuning: np.ndarray  # (shots, drives)
+    qubit: np.ndarray  # (shots, sites) quasi-static qubit offsets
+    field_phase: np.ndarray  # (shots,) uniform in [0, 2π)
+    bumps: np.ndarray  # (shots, drives, BUMP_COMPONENTS, 2) quadratures
+    prepared: np.ndarray  # (shots, sites) uniform
+    imaging: tuple[np.ndarray, ...]  # per imaging segment, (shots, imaged sites) uniform
+
+    @property
+    def count(self) -> int:
+        return self.intensity.shape[0]
+
+
+def model_drives(model: Model) -> list[str]:
+    return sorted({c.drive for seg in model.segments for c in seg.couplings if c.drive})
+
+
+def draw(model: Model, shots: int, rng: np.random.Generator) -> Draws:
+    """Every shot's numbers, shot after shot in a fixed order that does not depend on the sources."""
+    drives, n = len(model_drives(model)), model.size
+    images = [sum(name in seg.image.targets for name in model.sites) for seg in model.segments if seg.image]
+    rows = []
+    for _ in range(shots):
+        rows.append((rng.standard_normal(drives), rng.standard_normal((n, 3)), rng.standard_normal(n),
+                     rng.standard_normal(drives), rng.standard_normal(n), 2 * math.pi * rng.random(),
+                     rng.standard_normal((drives, BUMP_COMPONENTS, 2)), rng.random(n),
+                     tuple(rng.random(k) for k in images)))
+    columns = list(zip(*rows))
+    return Draws(*(np.array(c) for c in columns[:8]),
+                 tuple(np.array([r[8][i] for r in rows]) for i in range(len(images))))
+
+
+@dataclass(frozen=True)
+class Shots:
+    """Per-shot parameters of every segment, as arrays over shots (one row when not sampled).
+
+    couplings[k]: (rows, C, 3) Ω, Δ, φ of segment k's couplings; shifts[k]: (rows, S, 2)
+    shift and loss rate of the levels `shift_levels[k]`; interactions: (rows, P) pair
+    shifts of the `pairs`, all in rad/s.
+    """
+
+    model: Model
+    couplings: tuple[np.ndarray, ...]
+    shifts: tuple[np.ndarray, ...]
+    shift_levels: tuple[tuple[tuple[int, int], ...], ...]
+    pairs: tuple[tuple[int, int], ...]
+    interactions: np.ndarray
+    initial: tuple[tuple[int, ...], ...]
+    image_draws: tuple[np.ndarray, ...] = ()
+
+    @property
+    def count(self) -> int:
+        return len(self.initial)
+
+    def rows(self, lo: int, hi: int) -> "Shots":
+        """The shots lo..hi (all of them when the parameters are shared)."""
+        def cut(a):
+            return a[lo:hi] if a.shape[0] > 1 else a
+        return Shots(self.model, tuple(map(cut, self.couplings)), tuple(map(cut, self.shifts)), self.shift_levels,
+                     self.pairs, cut(self.interactions), self.initial[lo:hi],
+                     tuple(d[lo:hi] for d in self.image_draws))
+
+    def shot_model(self, k: int) -> Model:
+        """The model of shot k, for the reference path."""
+        def row(a):
+            return a[k] if a.shape[0] > 1 else a[0]
+        segments = []
+        for seg, c, sh, levels in zip(self.model.segments, self.couplings, self.shifts, self.shift_levels):
+            couplings = tuple(replace(x, omega=float(v[0]), delta=float(v[1]), phase=float(v[2]))
+                              for x, v in zip(seg.couplings, row(c)))
+            shifts = tuple(LevelShift(site, level, float(v[0]), float(v[1])) for (site, level), v in zip(levels, row(sh)))
+            segments.append(replace(seg, couplings=couplings, shifts=shifts))
+        interactions = dict(zip(self.pairs, map(float, row(self.interactions))))
+        return replace(self.model, segments=tuple(segments), interactions=interactions)
+
+
+def nominal_shots(model: Model) -> Shots:
+    """One unperturbed shot."""
+    return sample(None, model, (), None)
+
+
+def sample(program: Program | None, model: Model, sources: tuple[str, ...], draws: Draws | None) -> Shots:
+    """The shots' parameters: the model perturbed by the drawn numbers of the chosen sources."""
+    pairs = tuple(sorted(model.interactions))
+    rows = draws.count if draws is not None else 1
+    on = set(sources) if draws is not None else set()
+    displaced = _displacements(program, model, draws) if on & {"motion", "intensity"} else None
+    scale = _rabi_scales(program, model, draws, displaced) if "intensity" in on else None
+    offsets = _detuning_offsets(program, model, on, draws) if on & {"doppler", "detuning_error"} else None
+    qubit = _qubit_offsets(program, model, draws) if "t2_star" in on else None
+    field = _field(program, model, draws) if "field_noise" in on else None
+    phases = _laser_phases(program, model, draws) if "laser_noise" in on else {}
+    drives = {d: i for i, d in enumerate(model_drives(model))}
+    couplings, shifts, levels = [], [], []
+    for seg in model.segments:
+        c = np.tile(np.array([[x.omega, x.delta, x.phase] for x in seg.couplings]).reshape(1, -1, 3), (rows, 1, 1))
+        t_mid = seg.start_s + seg.duration_s / 2
+        for j, x in enumerate(seg.couplings):
+            d = drives[x.drive]
+            if scale is not None:
+                c[:, j, 0] *= scale[:, d, x.site]
+            if offsets is not None:
+                c[:, j, 1] += offsets[:, d, x.site]
+            if x.drive in phases:
+                c[:, j, 2] += phases[x.drive](t_mid)
+        sh = [np.tile([[x.shift, x.loss_rate] for x in seg.shifts], (rows, 1)).reshape(rows, -1, 2)]
+        lv = [(x.site, x.level) for x in seg.shifts]
+        if qubit is not None or field is not None:
+            extra = (qubit if qubit is not None else 0.0) + (field(seg) if field is not None else 0.0)
+            sh.append(np.stack([extra * np.ones((rows, model.size)), np.zeros((rows, model.size))], axis=-1))
+            lv += [(i, G1) for i in range(model.size)]
+        couplings.append(_shared(c))
+        shifts.append(_shared(np.concatenate(sh, axis=1)))
+        levels.append(tuple(lv))
+    v = np.tile([[model.interactions[p] for p in pairs]], (rows, 1)).reshape(rows, len(pairs))
+    if "motion" in on:
+        v = _interactions(program, model, pairs, displaced)
+    initial = _initial_levels(program, model, on, draws)
+    image_draws = draws.imaging if "imaging" in on else ()
+    return Shots(model, tuple(couplings), tuple(shifts), tuple(levels), pairs, _shared(v), initial, image_draws)
+
+
+def _shared(a: np.ndarray) -> np.ndarray:
+    """One row when every shot has the same values (the engine then propagates once)."""
+    return a[:1] if a.shape[0] > 1 and np.all(a == a[:1]) else a
+
+
+def _sigma_position(program: Program, species: str) -> np.ndarray:
+    """Thermal rms offsets (x, y, z) in a harmonic trap: √(k_B T/m)/ω (classical)."""
+    sp = program.rig.species[species]
+    sigma_v = math.sqrt(BOLTZMANN * sp.temperature_k / sp.data.mass_kg)
+    radial = 2 * math.pi * sp.extra.get("trap_radial", 0.0)
+    axial = 2 * math.pi * sp.extra.get("trap_axial", 0.0)
+    return np.array([sigma_v / radial if radial else 0.0] * 2 + [sigma_v / axial if axial else 0.0])
+
+
+def _displacements(program: Program, model: Model, draws: Draws) -> np.ndarray:
+    """(shots, sites, 3) thermal offsets of each atom from its site (m)."""
+    return np.array([_sigma_position(program, sp) for sp in model.species])[None] * draws.offsets
+
+
+def _rabi_scales(program, model, draws: Draws, displaced) -> np.ndarray:
+    """(shots, drives, sites): (1 + σξ) times the beam profile at the atom's offset."""
+    out = np.ones((draws.count, len(model_drives(model)), model.size))
+    for k, drive in enumerate(model_drives(model)):
+        d = program.rig.drives[drive]
+        out[:, k, :] = 1.0 + d.extra.get("intensity_noise", 0.0) * draws.intensity[:, k:k + 1]
+        waist = d.extra.get("waist", 0.0)
+        if waist:
+            out[:, k, :] *= np.exp(-(displaced[:, :, 0] ** 2 + displaced[:, :, 1] ** 2) / waist**2)
+    return out
+
+
+def _detuning_offsets(program, model, on: set, draws: Draws) -> np.ndarray:
+    """(shots, drives, sites) detuning added to each coupling (rad/s)."""
+    out = np.zeros((draws.count, len(model_drives(model)), model.size))
+    for k, drive in enumerate(model_drives(model)):
+        d = program.rig.drives[drive]
+        if d.kind == "rydberg" and "doppler" in on:
+            sigma = np.array([doppler_sigma_rad_s(program, sp) for sp in model.species])
+            out[:, k, :] += sigma[None] * draws.velocity
+        if d.kind != "rydberg" and "detuning_error" in on:
+            out[:, k, :] += 2 * math.pi * d.extra.get("detuning_error", 0.0) * draws.detuning[:, k:k + 1]
+    return out
+
+
+def _qubit_offsets(program, model, draws: Draws) -> np.ndarray:
+    """(shots, sites) quasi-static qubit frequency offsets, rms √2/T2* (rad/s)."""
+    t2 = np.array([program.rig.species[sp].extra.get("t2_star", 0.0) for sp in model.species])
+    rms = np.divide(math.sqrt(2), t2, out=np.zeros_like(t2), where=t2 > 0)
+    return rms[None] * draws.qubit
+
+
+def _field(program, model, draws: Draws):
+    """Mean of 2πA·sin(2πft + φ) over a segment, (shots, sites) in rad/s: exact phase for waits."""
+    extra = [program.rig.species[sp].extra for sp in model.species]
+    amplitude = np.array([2 * math.pi * e.get("field_noise", 0.0) for e in extra])[None]
+    w = np.array([2 * math.pi * e.get("field_noise_freq", 0.0) for e in extra])[None]
+    phi = draws.field_phase[:, None]
+
+    def shift(seg: Segment) -> np.ndarray:
+        a, b = seg.start_s, seg.start_s + seg.duration_s
+        if seg.duration_s == 0:
+            return amplitude * np.sin(w * a + phi)
+        with np.errstate(divide="ignore", invalid="ignore"):
+            mean = (np.cos(w * a + phi) - np.cos(w * b + phi)) / (w * (b - a))
+        return amplitude * np.where(w > 0, mean, np.sin(phi))
+    return shift
+
+
+def _laser_phases(program, model, draws: Draws) -> dict:
+    """Drive → t ↦ (shots,) phase φ(t) = 2π∫δν dt of the servo-bump frequency noise (rad)."""
+    index = {d: i for i, d in enumerate(model_drives(model))}
+    out = {}
+    for drive in _bumped_drives(program, model):
+        freqs, amps = bump_components(program.rig.drives[drive])
+        a, b = draws.bumps[:, index[drive], :, 0], draws.bumps[:, index[drive], :, 1]
+
+        def phase(t, freqs=freqs, amps=amps, a=a, b=b):
+            w = 2 * math.pi * freqs * t
+            return (amps / freqs * (a * np.sin(w) - b * (np.cos(w) - 1))).sum(axis=1)
+        out[drive] = phase
+    return out
+
+
+def bump_components(drive) -> tuple[np.ndarray, np.ndarray]:
+    """Frequencies f_k and rms amplitudes √(S(f_k)Δf) (Hz) of the servo bump's quadratures."""
+    centre, width = drive.extra["servo_bump"], drive.extra.get("servo_width", 0.0) or drive.extra["servo_bump"] / 10
+    low = max(centre - BUMP_SPAN * width, centre / BUMP_COMPONENTS)
+    edges = np.linspace(low, centre + BUMP_SPAN * width, BUMP_COMPONENTS + 1)
+    freqs, df = (edges[1:] + edges[:-1]) / 2, np.diff(edges)
+    return freqs, np.sqrt(servo_psd(drive, freqs) * df)
+
+
+def servo_psd(drive, f: np.ndarray) -> np.ndarray:
+    """One-sided frequency-noise PSD of the servo bump (Hz²/Hz)."""
+    floor = drive.extra.get("linewidth", 0.0) / math.pi
+    centre, width = drive.extra["servo_bump"], drive.extra.get("servo_width", 0.0) or drive.extra["servo_bump"] / 10
+    return drive.extra.get("servo_height", 0.0) * floor * np.exp(-((f - centre) ** 2) / (2 * width**2))
+
+
+def _interactions(program: Program, model: Model, pairs, displaced: np.ndarray) -> np.ndarray:
+    """(shots, pairs): V_ij·(R₀/R)⁶ with each atom moved by its thermal offset."""
+    out = np.empty((displaced.shape[0], len(pairs)))
+    for k, (i, j) in enumerate(pairs):
+        a = np.array(program.sites[model.sites[i]].position_m)
+        b = np.array(program.sites[model.sites[j]].position_m)
+        r0 = np.linalg.norm(a - b)
+        r = np.linalg.norm(a + displaced[:, i] - b - displaced[:, j], axis=1)
+        out[:, k] = model.interactions[(i, j)] * (r0 / r) ** 6
+    return out
 
 
 def doppler_sigma_rad_s(program: Program, species: str) -> float:
@@ -93,33 +445,44 @@ def doppler_sigma_rad_s(program: Program, species: str) -> float:
     return k_eff * math.sqrt(BOLTZMANN * sp.temperature_k / sp.data.mass_kg)
 
 
-def sample_model(program: Program, model: Model, sources: tuple[str, ...], rng: np.random.Generator) -> Model:
-    """One shot's model: quasi-static Rabi scaling and Doppler detunings applied."""
-    drives = sorted({c.drive for seg in model.segments for c in seg.couplings if c.drive})
-    scale = {d: 1.0 + (program.rig.drives[d].extra.get("intensity_noise", 0.0) * rng.standard_normal()
-                       if "intensity" in sources else 0.0) for d in drives}
-    doppler = {i: (doppler_sigma_rad_s(program, sp) * rng.standard_normal() if "doppler" in sources else 0.0)
-               for i, sp in enumerate(model.species)}
-    segments = tuple(replace(seg, couplings=tuple(_perturb(program, c, scale, doppler) for c in seg.couplings))
-                     for seg in model.segments)
-    return replace(model, segments=segments)
+def _initial_levels(program, model: Model, on: set, draws: Draws | None) -> tuple:
+    """All atoms in |0⟩, each lost instead with its species' preparation error."""
+    if draws is None or "preparation" not in on:
+        return ((G0,) * model.size,) * (draws.count if draws is not None else 1)
+    prep = np.array([program.rig.species[sp].extra.get("prep_error", 0.0) for sp in model.species])
+    return tuple(tuple(LOST if lost else G0 for lost in row) for row in draws.prepared < prep[None])
 
 
-def _perturb(program: Program, coupling, scale: dict, doppler: dict):
-    if not coupling.drive:
-        return coupling
-    extra = doppler[coupling.site] if program.rig.drives[coupling.drive].kind == "rydberg" else 0.0
-    return replace(coupling, omega=coupling.omega * scale[coupling.drive], delta=coupling.delta + extra)
+def image_loss(program: Program, sources: tuple[str, ...]) -> dict[str, float]:
+    """Species → probability that a bright atom is lost while imaged."""
+    if "imaging" not in sources:
+        return {}
+    return {img.species: img.loss for img in program.rig.imaging.values() if img.loss > 0}
 
 
-def prepared_state(program: Program, model: Model, sources: tuple[str, ...], rng: np.random.Generator) -> np.ndarray:
-    """|0…0⟩, with each atom lost instead with its species' preparation error."""
-    levels = [LOST if "preparation" in sources
-              and rng.random() < program.rig.species[sp].extra.get("prep_error", 0.0) else G0
-              for sp in model.species]
-    psi = np.zeros(model.dim**model.size, dtype=complex)
-    psi[int(np.ravel_multi_index(levels, [model.dim] * model.size))] = 1.0
-    return psi
+def readout_errors(program: Program, species: str, sources: tuple[str, ...]) -> tuple[float, float]:
+    """(false positive, false negative) probabilities of the species' imaging."""
+    img = program.rig.imaging.get(species)
+    if img is None or "imaging" not in sources:
+        return 0.0, 0.0
+    fp = img.extra.get("false_positive") or 0.0
+    fn = img.extra.get("false_negative") or 0.0
+    if not fp and not fn and img.fidelity < 1:
+        fp = fn = 1 - img.fidelity  # one number: the same error both ways
+    return fp, fn
+
+
+def lossy_sites(program: Program, model: Model, sources: tuple[str, ...]) -> set[int]:
+    """Sites that a sampled event (preparation, imaging loss) can put into |x⟩."""
+    out = set()
+    losses = image_loss(program, sources)
+    for i, sp in enumerate(model.species):
+        if "preparation" in sources and program.rig.species[sp].extra.get("prep_error", 0.0) > 0:
+            out.add(i)
+        if sp in losses and any(seg.image is not None and model.sites[i] in seg.image.targets
+                                for seg in model.segments):
+            out.add(i)
+    return out
 
 
 def binomial_error(p: float, shots: int) -> float:
@@ -127,4 +490,5 @@ def binomial_error(p: float, shots: int) -> float:
     return math.sqrt(max(p * (1 - p), 0.0) / shots)
 
 
-__all__ = ["SOURCES", "binomial_error", "collapse_operators", "parse_sources", "prepared_state", "sample_model"]
+__all__ = ["SOURCES", "Draws", "Jump", "Shots", "binomial_error", "collapse_operators", "draw", "jumps",
+           "nominal_shots", "parse_sources", "prepare", "sample"]

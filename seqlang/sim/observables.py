@@ -67,6 +67,12 @@ def level_probability(rho: np.ndarray, count: int, level: int) -> float:
     return float(np.real(np.trace(rho)) - none.sum())
 
 
+def fidelity(rho: np.ndarray, count: int, state: str, is_ket: bool) -> float:
+    """⟨target|ρ|target⟩ over the computational block of `count` atoms."""
+    target = target_state(state, is_ket)
+    return float(np.real(np.vdot(target, qubit_block(rho, count) @ target)))
+
+
 def summarize(rho: np.ndarray, count: int, state: str, is_ket: bool) -> dict:
     """Fidelity, populations, correlators, residual Rydberg and loss of `count` atoms."""
     block = qubit_block(rho, count)
@@ -76,7 +82,8 @@ def summarize(rho: np.ndarray, count: int, state: str, is_ket: bool) -> dict:
         "populations": {"".join(map(str, bits)): clean(np.real(block[i, i]))
                         for i, bits in enumerate(itertools.product((0, 1), repeat=count))},
         "residual_rydberg": clean(level_probability(rho, count, RYD)),
-        "loss": clean(level_probability(rho, count, LOST)),
+        # Lost norm (fast engine) and population in |x⟩ (density engines) are both loss.
+        "loss": clean(max(0.0, 1 - np.real(np.trace(rho)) + level_probability(rho, count, LOST))),
     }
     if count == 2:
         out["correlators"] = correlators(block)

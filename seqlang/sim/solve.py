@@ -16,7 +16,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from .model import DIM, G1, Model, Segment, embed, hamiltonian, interaction_hamiltonian, projector
+from .model import DIM, G1, LOST, Model, Segment, embed, hamiltonian, interaction_hamiltonian, projector
 
 MIN_WEIGHT = 1e-14
 HISTORY_STEPS = 40  # samples per driven segment when populations are recorded for a plot
@@ -45,20 +45,26 @@ def initial_state(size: int, density: bool = False, dim: int = DIM) -> np.ndarra
 
 
 def propagate(model: Model, c_ops: list[np.ndarray] | None = None, record_history: bool = False,
-              initial: np.ndarray | None = None) -> tuple[list[Branch], list[tuple[float, np.ndarray]]]:
+              initial: np.ndarray | None = None, image_loss: dict[str, float] | None = None,
+              image_draws: tuple = ()) -> tuple[list[Branch], list[tuple[float, np.ndarray]]]:
     """Final branches, and (if asked) populations of each level per site after each segment.
 
     `initial` is a ket (default: all atoms in |0⟩); with collapse operators the
-    state is carried as a density matrix.
+    state is carried as a density matrix. `image_loss` (species → probability)
+    loses bright atoms while imaged: by the shot's `image_draws` for kets, as a
+    channel for density matrices.
     """
     density = bool(c_ops)
     psi = initial if initial is not None else initial_state(model.size, False, model.dim)
     branches = [Branch((), np.outer(psi, psi.conj()) if density else psi)]
     history: list[tuple[float, np.ndarray]] = []
     h_int = np.diag(interaction_hamiltonian(model)).real
+    images = 0
     for segment in model.segments:
         if segment.image is not None:
-            branches = _measure(model, branches, segment)
+            draws = image_draws[images] if image_draws else None
+            branches = _measure(model, branches, segment, image_loss or {}, draws)
+            images += 1
             if record_history:
                 history.append((segment.start_s, level_populations(model, branches)))
         elif segment.duration_s > 0:
@@ -74,18 +80,38 @@ def _pieces(segment: Segment, fine: bool) -> list[Segment]:
     if not fine or not segment.couplings:
         return [segment]
     step = segment.duration_s / HISTORY_STEPS
-    return [Segment(segment.start_s + k * step, step, segment.couplings) for k in range(HISTORY_STEPS)]
+    return [Segment(segment.start_s + k * step, step, segment.couplings, shifts=segment.shifts)
+            for k in range(HISTORY_STEPS)]
 
 
 def _evolve(model: Model, segment: Segment, state: np.ndarray, h_int: np.ndarray, c_ops) -> np.ndarray:
-    if not segment.couplings and not c_ops:
-        phase = np.exp(-1j * h_int * segment.duration_s)
+    losses = [(s.site, s.level, s.loss_rate) for s in segment.shifts if s.loss_rate > 0]
+    if not segment.couplings and not c_ops and not losses:
+        phase = np.exp(-1j * (h_int + _shift_diagonal(model, segment)) * segment.duration_s)
         return phase * state if state.ndim == 1 else np.outer(phase, phase.conj()) * state
     frame = detuning_frame(model, segment)
     t0, t1 = segment.start_s, segment.start_s + segment.duration_s
     state = _rotate(state, np.exp(-1j * frame * t0))
-    state = _qutip_step(hamiltonian(model, segment), state, segment.duration_s, c_ops, model.size, model.dim)
+    h = hamiltonian(model, segment)
+    ops = list(c_ops or [])
+    for site, level, rate in losses:
+        jump = np.zeros((model.dim, model.dim), dtype=complex)
+        jump[LOST, level] = np.sqrt(rate)
+        if state.ndim == 1:  # kets: the no-jump part, H − (i/2)Γ|l⟩⟨l|
+            h = h - 0.5j * rate * embed(projector(level, model.dim), site, model.size)
+        else:
+            ops.append(embed(jump, site, model.size))
+    state = _qutip_step(h, state, segment.duration_s, ops if state.ndim == 2 else None, model.size, model.dim)
     return _rotate(state, np.exp(1j * frame * t1))
+
+
+def _shift_diagonal(model: Model, segment: Segment) -> np.ndarray:
+    """The level shifts of a segment without drives, as the diagonal of H (rad/s)."""
+    levels = np.indices([model.dim] * model.size).reshape(model.size, -1)
+    diag = np.zeros(model.dim**model.size)
+    for s in segment.shifts:
+        diag += s.shift * (levels[s.site] == s.level)
+    return diag
 
 
 def detuning_frame(model: Model, segment: Segment) -> np.ndarray:
@@ -121,7 +147,7 @@ def _qutip_step(h: np.ndarray, state: np.ndarray, duration: float, c_ops, size: 
     import qutip
     dims = [[dim] * size, [dim] * size]
     hq = qutip.Qobj(h, dims=dims)
-    if not c_ops:
+    if not c_ops and state.ndim == 1:
         return ((-1j * duration) * hq).expm().full() @ state
     superop = (qutip.liouvillian(hq, [qutip.Qobj(c, dims=dims) for c in c_ops]) * duration).expm()
     rho = qutip.Qobj(state, dims=dims)
@@ -137,7 +163,7 @@ def sesolve_step(h: np.ndarray, state: np.ndarray, duration: float, size: int) -
     return out.states[-1].full().ravel()
 
 
-def _measure(model: Model, branches: list[Branch], segment: Segment) -> list[Branch]:
+def _measure(model: Model, branches: list[Branch], segment: Segment, image_loss: dict, draws) -> list[Branch]:
     image = segment.image
     sites = [i for i, name in enumerate(model.sites) if name in image.targets]
     bright = {i: embed(projector(G1, model.dim), i, model.size) for i in sites}
@@ -149,11 +175,25 @@ def _measure(model: Model, branches: list[Branch], segment: Segment) -> list[Bra
             for site, bit in zip(sites, bits):
                 p = p @ (bright[site] if bit else identity - bright[site])
             state = p @ branch.state if branch.state.ndim == 1 else p @ branch.state @ p
+            for k, (site, bit) in enumerate(zip(sites, bits)):
+                loss = image_loss.get(model.species[site], 0.0)
+                if bit and loss > 0:
+                    state = _lose_bright(model, state, site, loss, 1.0 if draws is None else draws[k])
             labels = tuple((image.record, model.sites[s], b) for s, b in zip(sites, bits))
             candidate = Branch(branch.outcomes + labels, state)
             if candidate.weight > MIN_WEIGHT:
                 out.append(candidate)
     return out
+
+
+def _lose_bright(model: Model, state: np.ndarray, site: int, loss: float, draw: float) -> np.ndarray:
+    """|1⟩ → |x⟩ of an imaged bright atom: sampled (kets) or as a channel (density matrices)."""
+    move = np.zeros((model.dim, model.dim), dtype=complex)
+    move[LOST, G1] = 1.0
+    x = embed(move, site, model.size)
+    if state.ndim == 2:
+        return (1 - loss) * state + loss * x @ state @ x.conj().T
+    return x @ state if draw < loss else state
 
 
 def density_matrix(branches: list[Branch]) -> np.ndarray:

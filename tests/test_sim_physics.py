@@ -48,8 +48,7 @@ def final_ket(result) -> np.ndarray:
     ket = np.array([1.0 + 0j])
     order = []
     for cluster in result.clusters:
-        (branch,) = cluster.branches
-        ket = np.kron(ket, branch.state)
+        ket = np.kron(ket, cluster.full_ket())
         order += cluster.model.sites
     assert order == sorted(order, key=order.index) and len(set(order)) == len(order)
     return ket

@@ -23,7 +23,9 @@ from .diagnostics import SOURCES, SeqlangError, Span, error
 @functools.lru_cache(maxsize=1)
 def _lark() -> Lark:
     text = resources.files("seqlang").joinpath("grammar/seqlang.lark").read_text("utf-8")
-    return Lark(text, parser="lalr", propagate_positions=True, maybe_placeholders=True)
+    # cache=True keeps the built LALR tables in the temp directory, keyed by the grammar
+    # and lark version: start-up then skips rebuilding them.
+    return Lark(text, parser="lalr", propagate_positions=True, maybe_placeholders=True, cache=True)
 
 
 def parse_text(text: str, path: str) -> ast.SourceFile:

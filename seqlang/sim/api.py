@@ -7,7 +7,7 @@ from __future__ import annotations
 
 import math
 import sys
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 
 import numpy as np
 
@@ -24,9 +24,11 @@ OPTIONS = {"interactions_hz": None, "history": False, "ladder": False, "noise": 
            "engine": "auto", "truncate": True, "repetitions": None, "progress": False}
 # Outcomes rarer than this are not worth a conditioned report.
 MIN_CONDITION_PROBABILITY = 1e-9
-# Drop |rr⟩ of a pair when its population can never exceed this (see engine.blockade_truncation).
-TRUNCATION_TOLERANCE = 1e-7
+# Drop |rr⟩ of strongly blockaded pairs while the estimated error stays below this
+# (see engine.blockade_truncation).
+TRUNCATION_TOLERANCE = 1e-4
 SHOT_CHUNK = 100  # shots propagated together; an interrupt keeps every finished chunk
+FULL_DENSITY_SITES = 5  # expectations over more sites are read from the qubit block only
 
 
 @dataclass(frozen=True)
@@ -66,16 +68,24 @@ class ClusterResult:
                 out.append(fp if bit == 1 else 1 - fp)
         return out
 
-    def reduced(self, keep: list[int], condition=None, shot: int | None = None) -> np.ndarray:
-        """Reduced density matrix (4 levels per atom) of sites `keep`, averaged over shots."""
-        total = np.zeros((DIM ** len(keep),) * 2, dtype=complex)
+    def reduced(self, keep: list[int], condition=None, shot: int | None = None, dim: int = DIM) -> np.ndarray:
+        """Reduced density matrix of sites `keep`, averaged over shots: 4 levels per atom, or
+        with ``dim=2`` only the qubit block."""
+        total = np.zeros((dim ** len(keep),) * 2, dtype=complex)
         for factor, state in zip(self.factors(condition), self.states):
             if factor == 0:
                 continue
             chosen = state if shot is None else state[shot:shot + 1]
             trace = partial_trace_density if self.is_density else partial_trace_kets
-            total += factor * trace(self.basis, chosen, keep) / chosen.shape[0]
+            total += factor * trace(self.basis, chosen, keep, dim) / chosen.shape[0]
         return total
+
+    def level_probability(self, keep: list[int], level: int) -> float:
+        """Probability that at least one of the sites `keep` is in `level` (lost norm: LOST)."""
+        probs = sum((np.real(np.diagonal(s, axis1=1, axis2=2)) if self.is_density else np.abs(s) ** 2).mean(axis=0)
+                    for s in self.states)
+        hit = probs[(self.basis.levels[:, keep] == level).any(axis=1)].sum()
+        return float(hit + (max(0.0, 1.0 - probs.sum()) if level == LOST else 0.0))
 
     def weight(self, condition) -> float:
         return float(sum(f * _norms(s, self.is_density).mean() for f, s in zip(self.factors(condition), self.states)))
@@ -94,6 +104,16 @@ class ClusterResult:
 
     def density(self, condition=None) -> np.ndarray:
         return self.reduced(list(range(self.model.size)), condition)
+
+    def full_ket(self) -> np.ndarray:
+        """The final ket over all 4ⁿ levels, for a run with one branch and one shot."""
+        if self.is_density or len(self.states) != 1 or self.shots != 1:
+            raise ValueError("a single ket needs one branch, one shot and no density-matrix engine")
+        ket = np.zeros(DIM ** self.model.size, dtype=complex)
+        inside = (self.basis.levels < DIM).all(axis=1)
+        full = full_basis(self.model.size, DIM)
+        ket[full.find(full.key_of(self.basis.levels[inside]))] = self.states[0][0, inside]
+        return ket
 
 
 def _norms(state: np.ndarray, density: bool) -> np.ndarray:
@@ -123,25 +143,25 @@ class SimulationResult:
         return {c.model.sites: c.density() for c in self.clusters}
 
 
-def reduced_density(clusters, sites, condition=None, shot: int | None = None) -> np.ndarray:
+def reduced_density(clusters, sites, condition=None, shot: int | None = None, dim: int = DIM) -> np.ndarray:
     """Tensor product of the clusters' reduced states, reordered as `sites`."""
     parts, order = [], []
     for cluster in clusters:
         keep = [i for i, s in enumerate(cluster.model.sites) if s in sites]
         if not keep:
             continue
-        parts.append(cluster.reduced(keep, condition, shot))
+        parts.append(cluster.reduced(keep, condition, shot, dim))
         order += [cluster.model.sites[i] for i in keep]
     rho = parts[0]
     for part in parts[1:]:
         rho = np.kron(rho, part)
-    return _reorder(rho, order, list(sites))
+    return _reorder(rho, order, list(sites), dim)
 
 
-def _reorder(rho: np.ndarray, have: list[str], want: list[str]) -> np.ndarray:
+def _reorder(rho: np.ndarray, have: list[str], want: list[str], dim: int = DIM) -> np.ndarray:
     n = len(have)
     perm = [have.index(s) for s in want]
-    tensor = rho.reshape([DIM] * (2 * n)).transpose(perm + [p + n for p in perm])
+    tensor = rho.reshape([dim] * (2 * n)).transpose(perm + [p + n for p in perm])
     return tensor.reshape(rho.shape)
 
 
@@ -209,18 +229,19 @@ class _ClusterRunner:
             return noise.nominal_shots(model)
         return noise.sample(self.program, model, self.sources, noise.draw(model, self.shots, self.rng))
 
-    def _basis(self, model: Model) -> Basis:
+    def _basis(self, model: Model, jumps, density: bool) -> Basis:
         rydberg = {c.site for seg in model.segments for c in seg.couplings if RYD in (c.lower, c.upper)}
         ladder = {c.site for seg in model.segments for c in seg.couplings if INTERMEDIATE in (c.lower, c.upper)}
         lossy = noise.lossy_sites(self.program, model, self.sources)
-        if self.density:  # density matrices carry |x⟩ explicitly wherever decay or scattering can lead
-            lossy |= {j.site for j in noise.jumps(self.program, model, self.sources) if j.target == LOST}
+        if density:  # density matrices carry |x⟩ explicitly wherever decay or scattering can lead
+            lossy |= {j.site for j in jumps if j.target == LOST}
             lossy |= {x.site for seg in model.segments for x in seg.shifts if x.loss_rate > 0}
         allowed = [(G0, G1) + ((RYD,) if i in rydberg else ()) + ((LOST,) if i in lossy else ())
                    + ((INTERMEDIATE,) if i in ladder else ()) for i in range(model.size)]
-        pairs, bound = (fast.blockade_truncation(model, TRUNCATION_TOLERANCE) if self.options["truncate"]
+        candidates = replace(model, interactions={p: v for p, v in model.interactions.items()
+                                                  if p[0] in rydberg and p[1] in rydberg})
+        pairs, bound = (fast.blockade_truncation(candidates, TRUNCATION_TOLERANCE) if self.options["truncate"]
                         else ((), 0.0))
-        pairs = tuple(p for p in pairs if p[0] in rydberg and p[1] in rydberg)
         basis = reduced_basis(allowed, model.dim, pairs, bound)
         r = self.reduction
         r["truncated_pairs"] += [[model.sites[i], model.sites[j]] for i, j in pairs]
@@ -230,8 +251,7 @@ class _ClusterRunner:
         return basis
 
     def _fast(self, model: Model, shots: noise.Shots, jumps, density: bool):
-        self.density = density
-        basis = self._basis(model)
+        basis = self._basis(model, jumps, density)
         loss = noise.image_loss(self.program, self.sources)
         merged: dict[tuple, list[np.ndarray]] = {}
         history = ()
@@ -331,17 +351,34 @@ def _with_errors(expectation: dict, clusters, repetitions: int, shots: int) -> d
 
 
 def _shot_fidelity(cluster: ClusterResult, shot: int, expectation) -> float:
-    rho = reduced_density([cluster], tuple(expectation["sites"]), shot=shot)
+    block = reduced_density([cluster], tuple(expectation["sites"]), shot=shot, dim=2)
     state = expectation["state"]
-    return observables.fidelity(rho, len(expectation["sites"]), state.strip("|>"), state.startswith("|"))
+    target = observables.target_state(state.strip("|>"), state.startswith("|"))
+    return float(np.real(np.vdot(target, block @ target)))
 
 
 def _expectation(program, clusters, expect) -> dict:
-    rho = reduced_density(clusters, expect.sites)
     out = {"sites": list(expect.sites), "state": expect.state if not expect.is_ket else f"|{expect.state}>"}
-    out.update(observables.summarize(rho, len(expect.sites), expect.state, expect.is_ket))
+    if len(expect.sites) <= FULL_DENSITY_SITES:
+        rho = reduced_density(clusters, expect.sites)
+        out.update(observables.summarize(rho, len(expect.sites), expect.state, expect.is_ket))
+    else:  # many atoms: the qubit block only, and the level probabilities from the states
+        block = reduced_density(clusters, expect.sites, dim=2)
+        out.update(observables.summarize_block(block, len(expect.sites), expect.state, expect.is_ket,
+                                               _any_level(clusters, expect.sites, RYD),
+                                               _any_level(clusters, expect.sites, LOST)))
     out["conditioned"] = _conditioned(program, clusters, expect)
     return out
+
+
+def _any_level(clusters, sites, level: int) -> float:
+    """P(at least one of `sites` in `level`), clusters being independent."""
+    none = 1.0
+    for c in clusters:
+        keep = [i for i, s in enumerate(c.model.sites) if s in sites]
+        if keep:
+            none *= 1.0 - c.level_probability(keep, level)
+    return 1.0 - none
 
 
 def _conditioned(program, clusters, expect) -> list[dict]:
@@ -349,7 +386,7 @@ def _conditioned(program, clusters, expect) -> list[dict]:
     out = []
     for cluster in clusters:
         labels = sorted({lab[:2] for o in cluster.outcomes for lab in o if lab[1] not in expect.sites})
-        for record, site in labels:
+        for record, site in labels if len(expect.sites) <= FULL_DENSITY_SITES else ():
             for bit in (0, 1):
                 condition = (record, site, bit)
                 weight = cluster.weight(condition)

@@ -98,7 +98,8 @@ def site_populations(basis: Basis, probabilities: np.ndarray, dim: int = DIM) ->
 def _split(basis: Basis, keep: list[int], dim: int) -> tuple[np.ndarray, np.ndarray, int]:
     """Row index of the kept sites' state (in dim^len(keep)) and of the rest, per basis state."""
     rest = [i for i in range(basis.sites) if i not in keep]
-    inner = np.ravel_multi_index(basis.levels[:, keep].T, [dim] * len(keep)) if keep else np.zeros(basis.size, int)
+    kept = np.minimum(basis.levels[:, keep], dim - 1)  # rows with a level ≥ dim are masked out later
+    inner = np.ravel_multi_index(kept.T, [dim] * len(keep)) if keep else np.zeros(basis.size, int)
     if rest:
         _, outer = np.unique(basis.levels[:, rest], axis=0, return_inverse=True)
         outer = outer.ravel()
@@ -107,10 +108,16 @@ def _split(basis: Basis, keep: list[int], dim: int) -> tuple[np.ndarray, np.ndar
     return inner, outer, int(outer.max()) + 1
 
 
+def _inside(basis: Basis, keep: list[int], dim: int) -> np.ndarray:
+    """States whose kept sites lie in the first `dim` levels and with no atom in the
+    ladder's intermediate level (what is left there leaves the reported numbers)."""
+    return (basis.levels[:, keep] < dim).all(axis=1) & (basis.levels < DIM).all(axis=1)
+
+
 def partial_trace_kets(basis: Basis, kets: np.ndarray, keep: list[int], dim: int = DIM) -> np.ndarray:
     """Σ over kets of Tr_rest |ψ⟩⟨ψ| on the `keep` sites (levels ≥ dim must be empty)."""
     inner, outer, count = _split(basis, keep, dim)
-    inside = basis.levels.max(axis=1) < dim if basis.base > dim else np.ones(basis.size, bool)
+    inside = _inside(basis, keep, dim)
     rho = np.zeros((dim ** len(keep),) * 2, dtype=complex)
     for psi in kets.reshape(-1, basis.size):
         block = np.zeros((dim ** len(keep), count), dtype=complex)
@@ -122,7 +129,7 @@ def partial_trace_kets(basis: Basis, kets: np.ndarray, keep: list[int], dim: int
 def partial_trace_density(basis: Basis, rhos: np.ndarray, keep: list[int], dim: int = DIM) -> np.ndarray:
     """Σ over density matrices of Tr_rest ρ on the `keep` sites."""
     inner, outer, count = _split(basis, keep, dim)
-    inside = basis.levels.max(axis=1) < dim if basis.base > dim else np.ones(basis.size, bool)
+    inside = _inside(basis, keep, dim)
     total = rhos.reshape(-1, basis.size, basis.size).sum(axis=0)
     rho = np.zeros((dim ** len(keep),) * 2, dtype=complex)
     for r in range(count):

@@ -9,31 +9,40 @@ samples (shots) of a segment are taken in one batched call. Two forms:
   ends in the loss level: the lost norm is the loss (of the whole cluster).
 * ``lindblad``: density matrices under the full Lindblad equation, vectorised
   (row-major vec(AρB) = (A ⊗ Bᵀ) vec ρ), for dissipation that returns into the
-  qubit space (decay branching, pure dephasing). Loss to |x⟩ is again lost trace.
+  qubit space (decay branching, pure dephasing); |x⟩ is kept where decay or
+  scattering can lead, so every probability is exact.
 
-Small problems use dense batched exponentials; large ones the exponential
-action of the sparse generator (scipy's expm_multiply, Al-Mohy & Higham 2011).
-Segments without drives are diagonal for kets and propagated as phases.
+The states a segment's couplings connect form blocks (an atom in |0⟩ sits out a
+Rydberg pulse); each block holding amplitude is exponentiated on its own, densely
+in batches, or, when large or cheaper so, by the exponential action of its sparse
+generator (scipy's expm_multiply, Al-Mohy & Higham 2011). Segments without drives
+are diagonal for kets and propagated as phases.
 """
 from __future__ import annotations
 
 import math
+import os
+from concurrent.futures import ThreadPoolExecutor
 from dataclasses import dataclass
 
 import numpy as np
 import scipy.sparse as sp
 from scipy.sparse.csgraph import connected_components
 from scipy.sparse.linalg import expm_multiply
-from threadpoolctl import threadpool_limits
+from threadpoolctl import ThreadpoolController
 
 from .basis import Basis
 from .model import G1, LOST, RYD, Model, Segment
 from .noise import Jump, Shots
 
 DENSE_LIMIT = 700  # largest generator dimension exponentiated densely
+SPARSE_MIN = 64  # blocks at least this large may use the sparse exponential action
+MAX_LINDBLAD_BLOCK = 4000  # density-matrix elements in one exponentiated group
 BATCH_BYTES = 2**27  # memory allowed for one batch of dense propagators
 MIN_WEIGHT = 1e-14
 HISTORY_STEPS = 40
+WORKERS = min(2, os.cpu_count() or 1)  # threads sharing a large stack of exponentials
+PARALLEL_WORK = 2**18  # matrices × size³ above which a stack is split over the threads
 
 
 @dataclass
@@ -51,9 +60,13 @@ def needs_lindblad(jumps: list[Jump]) -> bool:
 
 
 def run(basis: Basis, shots: Shots, jumps: list[Jump], density: bool,
-        image_loss: dict[str, float] | None = None, record_history: bool = False,
-        progress=None) -> Run:
+        image_loss: dict[str, float] | None = None, record_history: bool = False) -> Run:
     """Propagate all shots through the model's segments, branching at each imaging."""
+    with single_threaded_blas():
+        return _run(basis, shots, jumps, density, image_loss, record_history)
+
+
+def _run(basis, shots, jumps, density, image_loss, record_history) -> Run:
     stepper = _Stepper(basis, shots, jumps, density)
     kets = np.stack([basis.state(levels) for levels in shots.initial])
     states = [np.einsum("bi,bj->bij", kets, kets.conj()) if density else kets]
@@ -73,8 +86,6 @@ def run(basis: Basis, shots: Shots, jumps: list[Jump], density: bool,
                 states = stepper.step(k, t0, dt, states)
                 if record_history:
                     history.append((t0 + dt, _populations(basis, states, density)))
-        if progress is not None:
-            progress(k + 1, len(segments))
     return Run(outcomes, states, history)
 
 
@@ -98,6 +109,7 @@ class _Stepper:
                           if j.target != LOST or density]
         self.pair_masks = {}
         self.block_cache: dict[tuple, list[np.ndarray]] = {}
+        self.label_cache: dict[tuple, np.ndarray] = {}
         self.transitions: dict[tuple[int, int, int], tuple[np.ndarray, np.ndarray]] = {}
 
     # -- generator ------------------------------------------------------------------
@@ -143,38 +155,6 @@ class _Stepper:
         h[:, idx, idx] += diag
         return h
 
-    def sparse_hamiltonian(self, seg: Segment, couplings, diag: np.ndarray, row: int) -> sp.csr_matrix:
-        parts_r, parts_c, parts_v = [np.arange(self.basis.size)], [np.arange(self.basis.size)], [diag[row]]
-        for j, c in enumerate(seg.couplings):
-            lower, upper = self._transition(c.site, c.lower, c.upper)
-            value = 0.5 * couplings[row, j, 0] * np.exp(1j * couplings[row, j, 2])
-            parts_r += [upper, lower]
-            parts_c += [lower, upper]
-            parts_v += [np.full(len(lower), value), np.full(len(lower), np.conj(value))]
-        return sp.csr_matrix((np.concatenate(parts_v), (np.concatenate(parts_r), np.concatenate(parts_c))),
-                             shape=(self.basis.size,) * 2)
-
-    def liouvillian(self, h: np.ndarray, shifts: np.ndarray, levels) -> np.ndarray:
-        """Dense vectorised Lindblad generator per shot row, from H_eff (rows, D, D), with the
-        jumps into |x⟩ of the segment's scattering levels."""
-        d = self.basis.size
-        eye = np.eye(d)
-        gen = -1j * np.einsum("bij,kl->bikjl", h, eye).reshape(-1, d * d, d * d)
-        gen += 1j * np.einsum("ij,bkl->bikjl", eye, h.conj()).reshape(-1, d * d, d * d)
-        for (sources, targets), rate in self.returning:
-            rows = (targets[:, None] * d + targets[None, :]).ravel()
-            cols = (sources[:, None] * d + sources[None, :]).ravel()
-            gen[:, rows, cols] += rate
-        for j, (site, level) in enumerate(levels):
-            rate = shifts[:, j, 1]
-            if np.any(rate > 0):
-                sources, targets = self._transition(site, level, LOST)
-                rows = (targets[:, None] * d + targets[None, :]).ravel()
-                cols = (sources[:, None] * d + sources[None, :]).ravel()
-                gen[:, rows, cols] += rate[:, None]
-        return gen
-
-    # -- propagation ------------------------------------------------------------------
     def step(self, k: int, t0: float, dt: float, states: list[np.ndarray]) -> list[np.ndarray]:
         seg, couplings, shifts, levels, pairs, interactions = self.parameters(k)
         diag, frame = self.diagonal(seg, couplings, shifts, levels, pairs, interactions)
@@ -197,31 +177,66 @@ class _Stepper:
         return stacked * phase[..., :, None] * phase.conj()[..., None, :]
 
     def _ket_step(self, seg, couplings, diag, dt, stacked):
-        blocks = self.blocks(seg)
-        if max(idx.shape[1] for idx in blocks) > DENSE_LIMIT:
-            return self._sparse_ket_step(seg, couplings, diag, dt, stacked)
-        out = np.empty_like(stacked)
-        for idx in blocks:
-            for lo, hi in _chunks(diag.shape[0], idx.shape[1], idx.shape[0]):
+        occupied = np.any(stacked != 0, axis=(0, 1))
+        out = np.zeros_like(stacked)
+        rows = diag.shape[0]
+        for idx in self.blocks(seg):
+            idx = idx[occupied[idx].any(axis=1)]  # blocks holding no amplitude stay empty
+            if not len(idx):
+                continue
+            if idx.shape[1] > DENSE_LIMIT or self._sparse_is_cheaper(seg, couplings, diag, dt, idx, stacked.shape[0]):
+                for block in idx:
+                    out[..., block] = self._sparse_block_step(seg, couplings, diag, dt, stacked[..., block], block)
+                continue
+            for lo, hi in _chunks(rows, idx.shape[1], idx.shape[0]):
                 u = batched_expm(-1j * dt * self.block_hamiltonian(seg, couplings[lo:hi], diag[lo:hi], idx))
-                # u: (rows, blocks, k, k); states: (branches, rows, D)
-                part = stacked[:, lo:hi] if diag.shape[0] > 1 else stacked
-                block_states = part[..., idx]  # (K, rows, blocks, k)
-                out_rows = slice(lo, hi) if diag.shape[0] > 1 else slice(None)
-                out[:, out_rows][..., idx] = np.einsum("rmij,krmj->krmi", u, block_states) if diag.shape[0] > 1 \
-                    else np.einsum("mij,krmj->krmi", u[0], block_states)
+                if rows > 1:  # u: (rows, blocks, k, k); states: (branches, rows, D)
+                    out[:, lo:hi, idx] = np.einsum("rmij,krmj->krmi", u, stacked[:, lo:hi][..., idx])
+                else:
+                    out[..., idx] = np.einsum("mij,krmj->krmi", u[0], stacked[..., idx])
         return out
 
-    def _sparse_ket_step(self, seg, couplings, diag, dt, stacked):
-        rows, d = diag.shape[0], self.basis.size
-        out = np.empty_like(stacked)
+    def _sparse_is_cheaper(self, seg, couplings, diag, dt, idx, branches) -> bool:
+        """Compare flop estimates: scaling and squaring (~k³ per squaring) against the
+        exponential action of the sparse block (~nnz per matrix-vector product, about
+        one product per unit of ‖H·dt‖ plus a fixed overhead; Al-Mohy & Higham 2011)."""
+        k = idx.shape[1]
+        if k < SPARSE_MIN:
+            return False
+        norm = dt * (np.abs(diag[:, idx.ravel()]).max() + 0.5 * np.abs(couplings[..., 0]).sum(axis=-1).max())
+        dense = 2 * k**3 * (14 + max(0.0, math.log2(max(norm, 1e-300))))
+        sparse = k * (len(seg.couplings) + 1) * (norm + 40) * 8 * branches
+        return sparse < dense
+
+    def _sparse_block_step(self, seg, couplings, diag, dt, part, block) -> np.ndarray:
+        """One large block: the exponential action of its sparse H_eff (Al-Mohy & Higham 2011)."""
+        rows, k = diag.shape[0], len(block)
+        out = np.empty_like(part)
         for r in range(rows):
-            gen = -1j * dt * self.sparse_hamiltonian(seg, couplings, diag, r)
+            gen = -1j * dt * self.sparse_block_hamiltonian(seg, couplings, diag, block, r)
+            chosen = part if rows == 1 else part[:, r:r + 1]
+            result = expm_multiply(gen, chosen.reshape(-1, k).T).T.reshape(chosen.shape)
             if rows == 1:
-                flat = stacked.reshape(-1, d).T
-                return expm_multiply(gen, flat).T.reshape(stacked.shape)
-            out[:, r] = expm_multiply(gen, stacked[:, r].T).T
+                return result
+            out[:, r:r + 1] = result
         return out
+
+    def sparse_block_hamiltonian(self, seg: Segment, couplings, diag: np.ndarray, block: np.ndarray,
+                                 row: int) -> sp.csr_matrix:
+        k = len(block)
+        where = np.full(self.basis.size, -1)
+        where[block] = np.arange(k)
+        parts_r, parts_c, parts_v = [np.arange(k)], [np.arange(k)], [diag[row, block]]
+        for j, c in enumerate(seg.couplings):
+            lower, upper = self._transition(c.site, c.lower, c.upper)
+            lo, up = where[lower], where[upper]
+            inside = lo >= 0
+            value = 0.5 * couplings[row, j, 0] * np.exp(1j * couplings[row, j, 2])
+            parts_r += [up[inside], lo[inside]]
+            parts_c += [lo[inside], up[inside]]
+            parts_v += [np.full(inside.sum(), value), np.full(inside.sum(), np.conj(value))]
+        return sp.csr_matrix((np.concatenate(parts_v), (np.concatenate(parts_r), np.concatenate(parts_c))),
+                             shape=(k, k))
 
     def blocks(self, seg: Segment) -> list[np.ndarray]:
         """Index arrays (blocks, k) of the states the segment's couplings connect, grouped by size k."""
@@ -238,7 +253,13 @@ class _Stepper:
                                   shape=(d, d))
             _, labels = connected_components(graph, directed=False)
             self.block_cache[key] = _group_by_size(labels)
+            self.label_cache[key] = labels
         return self.block_cache[key]
+
+    def labels(self, seg: Segment) -> np.ndarray:
+        """Block number of every state under the segment's couplings."""
+        self.blocks(seg)
+        return self.label_cache[tuple((c.site, c.lower, c.upper) for c in seg.couplings)]
 
     def block_hamiltonian(self, seg: Segment, couplings, diag: np.ndarray, idx: np.ndarray) -> np.ndarray:
         """H_eff restricted to equal-size blocks `idx`: shape (rows, blocks, k, k)."""
@@ -259,37 +280,101 @@ class _Stepper:
         return h.reshape(diag.shape[0], m, k, k)
 
     def _lindblad_step(self, seg, couplings, diag, dt, stacked, shifts, levels):
+        """Density matrices: the Lindblad generator, restricted to groups of elements ρ_ab.
+
+        With a, b in blocks A, B of the segment's couplings, H keeps ρ_ab inside A×B;
+        jumps link A×B to the blocks of their targets. Each linked group of block
+        pairs is exponentiated on its own, and only groups holding population.
+        """
         rows, d = diag.shape[0], self.basis.size
-        kb = stacked.shape[:2]
-        vec = stacked.reshape(kb[0], kb[1], d * d)
-        out = np.empty_like(vec)
-        shifts = np.broadcast_to(shifts, (rows,) + shifts.shape[1:])
-        for lo, hi in _chunks(rows, d * d):
-            gen = self.liouvillian(self.hamiltonian(seg, couplings[lo:hi], diag[lo:hi]), shifts[lo:hi], levels) * dt
-            part = vec[:, lo:hi] if rows > 1 else vec
-            result = out[:, lo:hi] if rows > 1 else out
-            for idx in _superop_blocks(gen):
-                if idx.shape[1] > DENSE_LIMIT:
-                    for r in range(hi - lo):
-                        sub = sp.csr_matrix(gen[r][np.ix_(idx.ravel(), idx.ravel())])
-                        cols = slice(None) if rows == 1 else slice(r, r + 1)
-                        block = part[:, cols][..., idx.ravel()].reshape(-1, idx.size).T
-                        result[:, cols][..., idx.ravel()] = expm_multiply(sub, block).T.reshape(
-                            part[:, cols].shape[:2] + (idx.size,))
-                    continue
-                u = batched_expm(gen[:, idx[:, :, None], idx[:, None, :]])  # (rows, blocks, k, k)
+        labels = self.labels(seg)
+        jumps = self._segment_jumps(shifts, levels, rows)
+        occupied = np.any(stacked != 0, axis=(0, 1))
+        out = np.zeros_like(stacked)
+        flat = stacked.reshape(stacked.shape[:2] + (d * d,))
+        target = out.reshape(flat.shape)
+        for group in _pair_groups(labels, jumps, occupied):
+            elements, pairs = _group_elements(labels, group, d)
+            if len(elements) > MAX_LINDBLAD_BLOCK:
+                raise MemoryError(f"the Lindblad engine would need a block of {len(elements)} density-matrix "
+                                  "elements; use the fast engine (no pure dephasing or decay back into the "
+                                  "qubit space) or fewer atoms per cluster")
+            for lo, hi in _chunks(rows, len(elements)):
+                h = self.hamiltonian(seg, couplings[lo:hi], diag[lo:hi])
+                u = batched_expm(_group_generator(h, pairs, elements, jumps, d, lo, hi) * dt)
                 if rows > 1:
-                    result[..., idx] = np.einsum("rmij,krmj->krmi", u, part[..., idx])
+                    target[:, lo:hi, elements] = np.einsum("rij,krj->kri", u, flat[:, lo:hi][..., elements])
                 else:
-                    result[..., idx] = np.einsum("mij,krmj->krmi", u[0], part[..., idx])
-        return out.reshape(stacked.shape)
+                    target[..., elements] = np.einsum("ij,krj->kri", u[0], flat[..., elements])
+        return out
+
+    def _segment_jumps(self, shifts, levels, rows) -> list[tuple[np.ndarray, np.ndarray, np.ndarray]]:
+        """(sources, targets, rate per shot row) of every jump acting in the segment."""
+        out = [(src, tgt, np.full(rows, rate)) for (src, tgt), rate in self.returning]
+        for j, (site, level) in enumerate(levels):
+            rate = np.broadcast_to(shifts[:, j, 1], (rows,))
+            if np.any(rate > 0):
+                src, tgt = self._transition(site, level, LOST)
+                out.append((src, tgt, rate))
+        return out
 
 
-def _superop_blocks(gen: np.ndarray) -> list[np.ndarray]:
-    """Equal-size groups of the vectorised density-matrix elements the generator connects."""
-    pattern = sp.csr_matrix(np.any(gen != 0, axis=0))
-    _, labels = connected_components(pattern, directed=False)
-    return _group_by_size(labels)
+def _pair_groups(labels: np.ndarray, jumps, occupied: np.ndarray) -> list[list[tuple[int, int]]]:
+    """Groups of block pairs (A, B) linked by jumps, keeping those that hold any ρ_ab ≠ 0."""
+    count = int(labels.max()) + 1
+    parent = list(range(count * count))
+
+    def root(x: int) -> int:
+        while parent[x] != x:
+            parent[x] = parent[parent[x]]
+            x = parent[x]
+        return x
+    for src, tgt, _ in jumps:
+        a = (labels[src][:, None] * count + labels[src][None, :]).ravel()
+        b = (labels[tgt][:, None] * count + labels[tgt][None, :]).ravel()
+        for x, y in set(zip(a.tolist(), b.tolist())):
+            parent[root(x)] = root(y)
+    rows, cols = np.nonzero(occupied)
+    held = {root(x) for x in set((labels[rows] * count + labels[cols]).tolist())}
+    groups: dict[int, list[tuple[int, int]]] = {}
+    for x in range(count * count):
+        r = root(x)
+        if r in held:
+            groups.setdefault(r, []).append(divmod(x, count))
+    return list(groups.values())
+
+
+def _group_elements(labels: np.ndarray, group, d: int) -> tuple[np.ndarray, list]:
+    """Flat indices a·D + b of the group's elements, and per pair (A states, B states, offset)."""
+    order = np.argsort(labels, kind="stable")
+    starts = np.concatenate([[0], np.cumsum(np.bincount(labels))])
+    elements, pairs, offset = [], [], 0
+    for a, b in group:
+        sa, sb = order[starts[a]:starts[a + 1]], order[starts[b]:starts[b + 1]]
+        elements.append((sa[:, None] * d + sb[None, :]).ravel())
+        pairs.append((sa, sb, offset))
+        offset += len(sa) * len(sb)
+    return np.concatenate(elements), pairs
+
+
+def _group_generator(h, pairs, elements, jumps, d, lo, hi) -> np.ndarray:
+    """The Lindblad generator on one group of elements, per shot row: −i[H_eff, ·] plus jumps."""
+    k = len(elements)
+    gen = np.zeros((h.shape[0], k, k), dtype=complex)
+    for sa, sb, offset in pairs:
+        p, q = len(sa), len(sb)
+        ha, hb = h[:, sa][:, :, sa], h[:, sb][:, :, sb]
+        block = -1j * np.einsum("rij,kl->rikjl", ha, np.eye(q)) + 1j * np.einsum("ij,rkl->rikjl", np.eye(p), hb.conj())
+        gen[:, offset:offset + p * q, offset:offset + p * q] = block.reshape(-1, p * q, p * q)
+    where = np.full(d * d, -1)
+    where[elements] = np.arange(k)
+    for src, tgt, rate in jumps:
+        to = where[(tgt[:, None] * d + tgt[None, :]).ravel()]
+        frm = where[(src[:, None] * d + src[None, :]).ravel()]
+        inside = (to >= 0) & (frm >= 0)
+        rates = rate[lo:hi]
+        gen[:, to[inside], frm[inside]] += rates[:, None]
+    return gen
 
 
 def _chunks(rows: int, n: int, blocks: int = 1) -> list[tuple[int, int]]:
@@ -327,22 +412,41 @@ def batched_expm(a: np.ndarray) -> np.ndarray:
     if shape[-1] == 1:
         return np.exp(a)
     m = a.reshape(-1, shape[-2], shape[-1])
+    if WORKERS > 1 and m.shape[0] * shape[-1] ** 3 >= PARALLEL_WORK:
+        with ThreadPoolExecutor(WORKERS) as pool:  # numpy's batched kernels release the GIL
+            return np.concatenate(list(pool.map(_expm_stack, np.array_split(m, WORKERS)))).reshape(shape)
+    return _expm_stack(m).reshape(shape)
+
+
+def _expm_stack(m: np.ndarray) -> np.ndarray:
+    shape = m.shape
     norms = np.abs(m).sum(axis=1).max(axis=1)
     squarings = np.maximum(0, np.ceil(np.log2(np.maximum(norms, 1e-300) / _THETA13))).astype(int)
     m = m / (2.0 ** squarings)[:, None, None]
     b = _PADE13
     eye = np.eye(shape[-1])
-    with threadpool_limits(1):
-        m2 = m @ m
-        m4 = m2 @ m2
-        m6 = m4 @ m2
-        u = m @ (m6 @ (b[13] * m6 + b[11] * m4 + b[9] * m2) + b[7] * m6 + b[5] * m4 + b[3] * m2 + b[1] * eye)
-        v = m6 @ (b[12] * m6 + b[10] * m4 + b[8] * m2) + b[6] * m6 + b[4] * m4 + b[2] * m2 + b[0] * eye
-        r = np.linalg.solve(v - u, v + u)
-        for step in range(int(squarings.max(initial=0))):
-            more = squarings > step
-            r[more] = r[more] @ r[more]
-    return r.reshape(shape)
+    m2 = m @ m
+    m4 = m2 @ m2
+    m6 = m4 @ m2
+    u = m @ (m6 @ (b[13] * m6 + b[11] * m4 + b[9] * m2) + b[7] * m6 + b[5] * m4 + b[3] * m2 + b[1] * eye)
+    v = m6 @ (b[12] * m6 + b[10] * m4 + b[8] * m2) + b[6] * m6 + b[4] * m4 + b[2] * m2 + b[0] * eye
+    r = np.linalg.solve(v - u, v + u)
+    for step in range(int(squarings.max(initial=0))):
+        more = squarings > step
+        r[more] = r[more] @ r[more]
+    return r
+
+
+_BLAS = None
+
+
+def single_threaded_blas():
+    """BLAS limited to one thread: stacks of small matrices run much faster so (the
+    engine shares big stacks between cores itself)."""
+    global _BLAS
+    if _BLAS is None:
+        _BLAS = ThreadpoolController()
+    return _BLAS.limit(limits=1)
 
 
 def _rotate(stacked: np.ndarray, phases: np.ndarray, density: bool) -> np.ndarray:
@@ -409,21 +513,28 @@ def _populations(basis: Basis, states: list[np.ndarray], density: bool) -> np.nd
 
 
 def blockade_truncation(model: Model, tolerance: float) -> tuple[tuple[tuple[int, int], ...], float]:
-    """Pairs whose |rr⟩ can be dropped, and the bound Σ 2Ω²/V² on its population.
+    """Pairs whose |rr⟩ can be dropped, and an estimate of the error that makes.
 
     A pair driven from its singly excited states couples to |rr⟩ with √2·Ω/2 and
-    is detuned by V, so |rr⟩ never holds more than 2Ω²/(2Ω² + V²) ≤ 2Ω²/V² (derived;
-    Ω the largest Rydberg Rabi frequency of the sequence).
+    is detuned by V: |rr⟩ never holds more than 2Ω²/(2Ω² + V²) ≤ 2Ω²/V², and the
+    singly excited states shift by ~Ω²/2V, a phase Ω²T/2V over the time T the
+    Rydberg drives play (second-order perturbation theory, derived). Pairs are
+    dropped from the most strongly shifted down while (Σ phases)² + Σ populations,
+    the estimated infidelity, stays within `tolerance`.
     """
-    omega = max((abs(c.omega) for seg in model.segments for c in seg.couplings if RYD in (c.lower, c.upper)),
-                default=0.0)
-    pairs, bound = [], 0.0
-    for pair, v in sorted(model.interactions.items()):
-        share = 2 * omega**2 / v**2 if v else math.inf
-        if share <= tolerance:
-            pairs.append(pair)
-            bound += share
-    return tuple(pairs), bound
+    rydberg = [seg for seg in model.segments if any(RYD in (c.lower, c.upper) for c in seg.couplings)]
+    omega = max((abs(c.omega) for seg in rydberg for c in seg.couplings if RYD in (c.lower, c.upper)), default=0.0)
+    drive_time = sum(seg.duration_s for seg in rydberg)
+    pairs, phase, population = [], 0.0, 0.0
+    for pair, v in sorted(model.interactions.items(), key=lambda kv: -abs(kv[1])):
+        if not v:
+            break
+        more_phase, more_population = omega**2 * drive_time / (2 * abs(v)), 2 * omega**2 / v**2
+        if (phase + more_phase) ** 2 + population + more_population > tolerance:
+            break
+        pairs.append(pair)
+        phase, population = phase + more_phase, population + more_population
+    return tuple(sorted(pairs)), (phase**2 + population if pairs else 0.0)
 
 
 __all__ = ["Run", "batched_expm", "blockade_truncation", "needs_lindblad", "run"]

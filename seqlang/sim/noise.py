@@ -158,24 +158,29 @@ def prepare(program: Program, model: Model, sources: tuple[str, ...]) -> Model:
         return widths[model.species[x.site]] * x.scatter if scattering and x.scatter else 0.0
     segments = tuple(replace(s, shifts=tuple(replace(x, loss_rate=rate(x)) for x in s.shifts))
                      for s in model.segments)
-    step = _noise_step(program, model, sources)
-    if step < math.inf:
-        segments = tuple(piece for s in segments for piece in _split(s, step))
-    return replace(model, segments=segments)
+    laser, field = _noise_steps(program, model, sources)
+    bumped = set(_bumped_drives(program, model)) if "laser_noise" in sources else set()
+    out = []
+    for seg in segments:
+        step = laser if any(c.drive in bumped for c in seg.couplings) else math.inf
+        out += _split(seg, min(step, field))
+    return replace(model, segments=tuple(out))
 
 
-def _noise_step(program: Program, model: Model, sources: tuple[str, ...]) -> float:
-    """Longest driven sub-step that still follows the fastest time-dependent noise."""
-    fastest = 0.0
+def _noise_steps(program: Program, model: Model, sources: tuple[str, ...]) -> tuple[float, float]:
+    """Longest driven sub-steps that still follow the laser's servo bump and the field noise."""
+    laser = field = math.inf
     if "laser_noise" in sources:
         for drive in _bumped_drives(program, model):
             d = program.rig.drives[drive]
-            fastest = max(fastest, d.extra["servo_bump"] + BUMP_SPAN * d.extra.get("servo_width", 0.0))
+            fastest = d.extra["servo_bump"] + BUMP_SPAN * d.extra.get("servo_width", 0.0)
+            laser = min(laser, 1 / (STEPS_PER_PERIOD * fastest))
     if "field_noise" in sources:
-        fastest = max([fastest] + [program.rig.species[s].extra.get("field_noise_freq", 0.0)
-                                   for s in set(model.species)
-                                   if program.rig.species[s].extra.get("field_noise", 0.0) > 0])
-    return 1 / (STEPS_PER_PERIOD * fastest) if fastest > 0 else math.inf
+        for sp in set(model.species):
+            extra = program.rig.species[sp].extra
+            if extra.get("field_noise", 0.0) > 0 and extra.get("field_noise_freq", 0.0) > 0:
+                field = min(field, 1 / (STEPS_PER_PERIOD * extra["field_noise_freq"]))
+    return laser, field
 
 
 def _split(segment: Segment, step: float) -> list[Segment]:

@@ -67,10 +67,19 @@ def level_probability(rho: np.ndarray, count: int, level: int) -> float:
     return float(np.real(np.trace(rho)) - none.sum())
 
 
-def fidelity(rho: np.ndarray, count: int, state: str, is_ket: bool) -> float:
-    """⟨target|ρ|target⟩ over the computational block of `count` atoms."""
+def summarize_block(block: np.ndarray, count: int, state: str, is_ket: bool, rydberg: float, lost: float) -> dict:
+    """As `summarize`, from the qubit block and the probabilities of |r⟩ and loss."""
     target = target_state(state, is_ket)
-    return float(np.real(np.vdot(target, qubit_block(rho, count) @ target)))
+    out = {
+        "fidelity": clean(np.real(np.vdot(target, block @ target))),
+        "populations": {"".join(map(str, bits)): clean(np.real(block[i, i]))
+                        for i, bits in enumerate(itertools.product((0, 1), repeat=count))},
+        "residual_rydberg": clean(rydberg),
+        "loss": clean(lost),
+    }
+    if count == 2:
+        out["correlators"] = correlators(block)
+    return out
 
 
 def summarize(rho: np.ndarray, count: int, state: str, is_ket: bool) -> dict:

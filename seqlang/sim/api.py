@@ -88,7 +88,13 @@ class ClusterResult:
         return float(hit + (max(0.0, 1.0 - probs.sum()) if level == LOST else 0.0))
 
     def weight(self, condition) -> float:
-        return float(sum(f * _norms(s, self.is_density).mean() for f, s in zip(self.factors(condition), self.states)))
+        """Probability of a reported outcome; norm lost before imaging counts as a dark atom."""
+        norms = [_norms(s, self.is_density).mean() for s in self.states]
+        total = float(sum(f * n for f, n in zip(self.factors(condition), norms)))
+        if condition is not None and condition[1] in self.model.sites:
+            fp = self.readout.get(condition[1], (0.0, 0.0))[0]
+            total += (fp if condition[2] == 1 else 1 - fp) * max(0.0, 1.0 - float(sum(norms)))
+        return total
 
     def populations(self) -> np.ndarray:
         """populations[site, level] (4 levels), averaged over shots and branches.

@@ -1,4 +1,4 @@
-"""Propagate a model segment by segment, branching at every imaging.
+"""The QuTiP reference path: propagate a model segment by segment, one shot at a time.
 
 Each segment has a constant Hamiltonian, so it is propagated on its own and
 exactly, with QuTiP's matrix exponential (or the exponential of the Liouvillian
@@ -196,15 +196,6 @@ def _lose_bright(model: Model, state: np.ndarray, site: int, loss: float, draw: 
     return x @ state if draw < loss else state
 
 
-def density_matrix(branches: list[Branch]) -> np.ndarray:
-    """Σ over branches: the state averaged over measurement outcomes."""
-    total = None
-    for b in branches:
-        rho = np.outer(b.state, b.state.conj()) if b.state.ndim == 1 else b.state
-        total = rho if total is None else total + rho
-    return total
-
-
 def level_populations(model: Model, branches: list[Branch]) -> np.ndarray:
     """populations[site, level] summed over branches."""
     probs = np.zeros(model.dim**model.size)
@@ -214,21 +205,4 @@ def level_populations(model: Model, branches: list[Branch]) -> np.ndarray:
     return np.array([[grid.take(level, axis=i).sum() for level in range(model.dim)] for i in range(model.size)])
 
 
-def drop_intermediate(model: Model, branches: list[Branch]) -> list[Branch]:
-    """Ladder-mode states restricted to the four levels of the effective model.
-
-    What is left in |e⟩ at the end (of order (Ω₁/2Δ)²) leaves the reported
-    numbers, as population outside the qubit space would.
-    """
-    if model.dim == DIM:
-        return branches
-    keep = [i for i in range(model.dim**model.size)
-            if all(level < DIM for level in np.unravel_index(i, [model.dim] * model.size))]
-    out = []
-    for b in branches:
-        state = b.state[keep] if b.state.ndim == 1 else b.state[np.ix_(keep, keep)]
-        out.append(Branch(b.outcomes, state))
-    return out
-
-
-__all__ = ["Branch", "density_matrix", "initial_state", "level_populations", "propagate"]
+__all__ = ["Branch", "initial_state", "level_populations", "propagate"]

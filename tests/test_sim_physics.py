@@ -280,3 +280,11 @@ def test_explicit_ladder_agrees_with_effective_model(tmp_path, duration_ns):
     # Leaving out the differential light shift (legs not declared) gives a visibly different answer.
     bare = _ladder_run(tmp_path, "", False, duration_ns)
     assert abs(bare - explicit) > 0.05
+
+
+def test_ladder_mode_without_leg_rabi_frequencies_warns():
+    """--ladder needs the legs' Rabi frequencies; without them it would silently be the effective model."""
+    path = os.path.join(os.path.dirname(__file__), "..", "programs", "bell_pair.seq")
+    result = seqlang.simulate(path, ladder=True)
+    assert any("ladder mode" in w.message for w in result.warnings)
+    assert not any("ladder mode" in w.message for w in seqlang.simulate(path).warnings)

@@ -16,7 +16,7 @@ from . import engine as fast
 from . import noise, observables
 from .basis import Basis, full_basis, partial_trace_density, partial_trace_kets, reduced_basis, site_populations
 from .clusters import clusters as find_clusters
-from .model import DIM, G0, G1, INTERMEDIATE, LOST, RYD, Model, build_model, pair_interactions_hz
+from .model import DIM, G0, G1, INTERMEDIATE, LOST, RYD, Model, build_model, leg_rabi, pair_interactions_hz
 from .solve import propagate
 
 ENGINES = ("auto", "fast", "lindblad", "qutip")
@@ -187,6 +187,9 @@ def simulate(source, **options) -> SimulationResult:
     if interactions is None:
         interactions = pair_interactions_hz(program, tuple(program.sites))
         warnings = _forster_warnings(program)
+    if options["ladder"] and not any(leg_rabi(d, 1.0) for d in program.rig.drives.values()):
+        warnings.append(warning("ladder mode: no Rydberg drive declares `intermediate`, `lower_rabi` and "
+                                "`upper_rabi`, so the explicit ladder is the effective model", program.rig.span))
     sources = noise.parse_sources(options["noise"]) if isinstance(options["noise"], str) else tuple(options["noise"])
     shots = options["shots"] if noise.is_sampled(sources) else 1
     rng = np.random.default_rng(options["seed"])

@@ -485,20 +485,27 @@ def did_close(ls: SeqlangServer, params: lsp.DidCloseTextDocumentParams) -> None
 
 @SERVER.feature(lsp.TEXT_DOCUMENT_HOVER)
 def hover(ls: SeqlangServer, params: lsp.HoverParams) -> lsp.Hover | None:
-    analysis, symbols = ls.context(params.text_document.uri)
-    if analysis is None or analysis.source is None:
+    analysis, symbol, offset = _under_cursor(ls, params)
+    if analysis is None:
         return None
-    offset = offset_of(analysis.text, params.position)
     parts = []
     pulse = statement_at(analysis.source, offset, ast.PulseStmt)
     events = ls.events_of(pulse) if pulse else []
     if events:
         parts.append(pulse_hover(events))
-    found = word_at(analysis.text, offset)
-    symbol = find_symbol(symbols, found[0], analysis.path, offset) if found else None
     if symbol is not None:
         parts.append(_symbol_hover(ls, symbol, analysis))
     return lsp.Hover(lsp.MarkupContent(lsp.MarkupKind.Markdown, "\n\n---\n\n".join(parts))) if parts else None
+
+
+def _under_cursor(ls: SeqlangServer, params):
+    """(analysis, the symbol under the cursor or None, offset); analysis is None for an unparsed file."""
+    analysis, symbols = ls.context(params.text_document.uri)
+    if analysis is None or analysis.source is None:
+        return None, None, 0
+    offset = offset_of(analysis.text, params.position)
+    found = word_at(analysis.text, offset)
+    return analysis, find_symbol(symbols, found[0], analysis.path, offset) if found else None, offset
 
 
 def _symbol_hover(ls: SeqlangServer, symbol: Symbol, analysis: Analysis) -> str:
@@ -514,12 +521,7 @@ def _symbol_hover(ls: SeqlangServer, symbol: Symbol, analysis: Analysis) -> str:
 
 @SERVER.feature(lsp.TEXT_DOCUMENT_DEFINITION)
 def definition(ls: SeqlangServer, params: lsp.DefinitionParams) -> lsp.Location | None:
-    analysis, symbols = ls.context(params.text_document.uri)
-    if analysis is None or analysis.source is None:
-        return None
-    offset = offset_of(analysis.text, params.position)
-    found = word_at(analysis.text, offset)
-    symbol = find_symbol(symbols, found[0], analysis.path, offset) if found else None
+    _, symbol, _ = _under_cursor(ls, params)
     return lsp.Location(from_fs_path(symbol.span.file), lsp_range(symbol.span)) if symbol else None
 
 

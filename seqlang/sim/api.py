@@ -14,7 +14,8 @@ import numpy as np
 from ..lang.diagnostics import Diagnostic, warning
 from . import engine as fast
 from . import noise, observables
-from .basis import Basis, full_basis, partial_trace_density, partial_trace_kets, reduced_basis, site_populations
+from .basis import (Basis, full_basis, norms, partial_trace_density, partial_trace_kets, probabilities, reduced_basis,
+                    site_populations)
 from .clusters import clusters as find_clusters
 from .model import DIM, G0, G1, INTERMEDIATE, LOST, RYD, Model, build_model, leg_rabi, pair_interactions_hz
 from .solve import propagate
@@ -82,31 +83,27 @@ class ClusterResult:
 
     def level_probability(self, keep: list[int], level: int) -> float:
         """Probability that at least one of the sites `keep` is in `level` (lost norm: LOST)."""
-        probs = sum((np.real(np.diagonal(s, axis1=1, axis2=2)) if self.is_density else np.abs(s) ** 2).mean(axis=0)
-                    for s in self.states)
+        probs = self._probabilities()
         hit = probs[(self.basis.levels[:, keep] == level).any(axis=1)].sum()
         return float(hit + (max(0.0, 1.0 - probs.sum()) if level == LOST else 0.0))
 
     def weight(self, condition) -> float:
         """Probability of a reported outcome; norm lost before imaging counts as a dark atom."""
-        norms = [_norms(s, self.is_density).mean() for s in self.states]
-        total = float(sum(f * n for f, n in zip(self.factors(condition), norms)))
+        kept = [norms(s, self.is_density).mean() for s in self.states]
+        total = float(sum(f * n for f, n in zip(self.factors(condition), kept)))
         if condition is not None and condition[1] in self.model.sites:
             fp = self.readout.get(condition[1], (0.0, 0.0))[0]
-            total += (fp if condition[2] == 1 else 1 - fp) * max(0.0, 1.0 - float(sum(norms)))
+            total += (fp if condition[2] == 1 else 1 - fp) * max(0.0, 1.0 - float(sum(kept)))
         return total
 
     def populations(self) -> np.ndarray:
-        """populations[site, level] (4 levels), averaged over shots and branches.
+        """populations[site, level] (4 levels), averaged over shots and branches
+        (lost norm counts in |x⟩, see basis.site_populations)."""
+        return site_populations(self.basis, self._probabilities())
 
-        Norm lost to decay or scattering (fast engine) is counted in |x⟩ of every
-        atom of the cluster: such a shot is a lost shot for the whole cluster.
-        """
-        probs = sum((np.real(np.diagonal(s, axis1=1, axis2=2)) if self.is_density else np.abs(s) ** 2).mean(axis=0)
-                    for s in self.states)
-        out = site_populations(self.basis, probs)
-        out[:, LOST] += np.maximum(0.0, 1.0 - out.sum(axis=1))
-        return out
+    def _probabilities(self) -> np.ndarray:
+        """Probability of each kept state, summed over branches and averaged over shots."""
+        return sum(probabilities(s, self.is_density).mean(axis=0) for s in self.states)
 
     def density(self, condition=None) -> np.ndarray:
         return self.reduced(list(range(self.model.size)), condition)
@@ -120,10 +117,6 @@ class ClusterResult:
         full = full_basis(self.model.size, DIM)
         ket[full.find(full.key_of(self.basis.levels[inside]))] = self.states[0][0, inside]
         return ket
-
-
-def _norms(state: np.ndarray, density: bool) -> np.ndarray:
-    return np.real(np.trace(state, axis1=1, axis2=2)) if density else np.sum(np.abs(state) ** 2, axis=1)
 
 
 @dataclass(frozen=True)

@@ -15,7 +15,7 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
-from .model import DIM, RYD
+from .model import DIM, LOST, RYD
 
 
 @dataclass(frozen=True)
@@ -87,11 +87,26 @@ def reduced_basis(allowed: list[tuple[int, ...]], base: int = DIM,
     return Basis(levels, base, tuple(truncated_pairs), neglected_bound)
 
 
-def site_populations(basis: Basis, probabilities: np.ndarray, dim: int = DIM) -> np.ndarray:
-    """populations[site, level] from the probability of each kept state."""
+def probabilities(states: np.ndarray, density: bool) -> np.ndarray:
+    """Probability of each kept state: |ψ_k|² of kets (..., D), or ρ_kk of density matrices (..., D, D)."""
+    return np.real(np.diagonal(states, axis1=-2, axis2=-1)) if density else np.abs(states) ** 2
+
+
+def norms(states: np.ndarray, density: bool) -> np.ndarray:
+    """Norm of each ket, trace of each density matrix (the probability not lost)."""
+    return probabilities(states, density).sum(axis=-1)
+
+
+def site_populations(basis: Basis, probs: np.ndarray, dim: int = DIM) -> np.ndarray:
+    """populations[site, level] from the probability of each kept state.
+
+    Norm missing from `probs` (lost to decay or scattering in the fast engine) is
+    counted in |x⟩ of every atom: such a shot is lost for the whole cluster.
+    """
     out = np.zeros((basis.sites, dim))
     for site in range(basis.sites):
-        out[site] = np.bincount(basis.levels[:, site], weights=probabilities, minlength=basis.base)[:dim]
+        out[site] = np.bincount(basis.levels[:, site], weights=probs, minlength=basis.base)[:dim]
+    out[:, LOST] += max(0.0, 1.0 - float(probs.sum()))
     return out
 
 
@@ -138,5 +153,5 @@ def partial_trace_density(basis: Basis, rhos: np.ndarray, keep: list[int], dim: 
     return rho
 
 
-__all__ = ["Basis", "full_basis", "partial_trace_density", "partial_trace_kets", "reduced_basis",
-           "site_populations"]
+__all__ = ["Basis", "full_basis", "norms", "partial_trace_density", "partial_trace_kets", "probabilities",
+           "reduced_basis", "site_populations"]

@@ -31,7 +31,7 @@ from scipy.sparse.csgraph import connected_components
 from scipy.sparse.linalg import expm_multiply
 from threadpoolctl import ThreadpoolController
 
-from .basis import Basis
+from .basis import Basis, norms, probabilities, site_populations
 from .model import G1, LOST, RYD, Model, Segment
 from .noise import Jump, Shots
 
@@ -142,18 +142,6 @@ class _Stepper:
         for j, pair in enumerate(pairs):
             diag += interactions[:, j:j + 1] * self._pair_mask(pair)
         return diag - 0.5j * self.loss_diag, frame
-
-    def hamiltonian(self, seg: Segment, couplings, diag: np.ndarray) -> np.ndarray:
-        """Dense H_eff per shot row, shape (rows, D, D)."""
-        h = np.zeros((diag.shape[0], self.basis.size, self.basis.size), dtype=complex)
-        for j, c in enumerate(seg.couplings):
-            lower, upper = self._transition(c.site, c.lower, c.upper)
-            value = 0.5 * couplings[:, j, 0] * np.exp(1j * couplings[:, j, 2])
-            h[:, upper, lower] += value[:, None]
-            h[:, lower, upper] += value.conj()[:, None]
-        idx = np.arange(self.basis.size)
-        h[:, idx, idx] += diag
-        return h
 
     def step(self, k: int, t0: float, dt: float, states: list[np.ndarray]) -> list[np.ndarray]:
         seg, couplings, shifts, levels, pairs, interactions = self.parameters(k)
@@ -300,7 +288,8 @@ class _Stepper:
                                   "elements; use the fast engine (no pure dephasing or decay back into the "
                                   "qubit space) or fewer atoms per cluster")
             for lo, hi in _chunks(rows, len(elements)):
-                h = self.hamiltonian(seg, couplings[lo:hi], diag[lo:hi])
+                whole = np.arange(self.basis.size)[None]  # all states as one block: the dense H_eff
+                h = self.block_hamiltonian(seg, couplings[lo:hi], diag[lo:hi], whole)[:, 0]
                 u = batched_expm(_group_generator(h, pairs, elements, jumps, d, lo, hi) * dt)
                 if rows > 1:
                     target[:, lo:hi, elements] = np.einsum("rij,krj->kri", u, flat[:, lo:hi][..., elements])
@@ -468,7 +457,7 @@ def _image(basis: Basis, model: Model, k: int, outcomes, states, density: bool, 
             for site, bit in zip(sites, bits):
                 keep &= bright[site] if bit else ~bright[site]
             projected = state * keep if not density else state * keep[:, None] * keep[None, :]
-            if _weights(projected, density).max() <= MIN_WEIGHT:
+            if norms(projected, density).max() <= MIN_WEIGHT:
                 continue
             for n, (site, bit) in enumerate(zip(sites, bits)):
                 loss = image_loss.get(model.species[site], 0.0)
@@ -499,17 +488,8 @@ def _lose(basis: Basis, state: np.ndarray, site: int, loss: float, draws: np.nda
     return out
 
 
-def _weights(state: np.ndarray, density: bool) -> np.ndarray:
-    if density:
-        return np.real(np.trace(state, axis1=-2, axis2=-1))
-    return np.sum(np.abs(state) ** 2, axis=-1)
-
-
 def _populations(basis: Basis, states: list[np.ndarray], density: bool) -> np.ndarray:
-    from .basis import site_populations
-    probs = sum(np.real(np.diagonal(s, axis1=-2, axis2=-1)).mean(axis=0) if density
-                else (np.abs(s) ** 2).mean(axis=0) for s in states)
-    return site_populations(basis, probs)
+    return site_populations(basis, sum(probabilities(s, density).mean(axis=0) for s in states))
 
 
 def blockade_truncation(model: Model, tolerance: float) -> tuple[tuple[tuple[int, int], ...], float]:

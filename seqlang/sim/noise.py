@@ -46,11 +46,10 @@ import numpy as np
 from ..program.model import Program
 from .model import G0, G1, INTERMEDIATE, LADDER_DIM, LOST, RYD, LevelShift, Model, Segment
 
-SOURCES = ("decay", "dephasing", "scattering", "laser_noise", "intensity", "doppler", "motion",
-           "detuning_error", "t2_star", "field_noise", "preparation", "imaging")
-MARKOVIAN = ("decay", "dephasing", "scattering")
+MARKOVIAN = ("decay", "dephasing", "scattering")  # Lindblad jumps
 SAMPLED = ("laser_noise", "intensity", "doppler", "motion", "detuning_error", "t2_star", "field_noise",
-           "preparation", "imaging")
+           "preparation", "imaging")  # drawn per shot
+SOURCES = MARKOVIAN + SAMPLED
 BOLTZMANN = 1.380649e-23  # J/K (SI, exact)
 BUMP_COMPONENTS = 48  # quadratures spanning a servo bump
 BUMP_SPAN = 3.0  # the bump is sampled over f_b ± BUMP_SPAN·w
@@ -192,8 +191,7 @@ def _split(segment: Segment, step: float) -> list[Segment]:
 
 
 def _bumped_drives(program: Program, model: Model) -> list[str]:
-    names = sorted({c.drive for seg in model.segments for c in seg.couplings if c.drive})
-    return [n for n in names if program.rig.drives[n].kind == "rydberg"
+    return [n for n in model_drives(model) if program.rig.drives[n].kind == "rydberg"
             and program.rig.drives[n].extra.get("servo_bump", 0.0) > 0
             and program.rig.drives[n].extra.get("servo_height", 0.0) > 0]
 

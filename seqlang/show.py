@@ -40,7 +40,8 @@ def compile_summary(checked: Checked) -> str:
         f"({_f(plan.shift_s, units.DURATION)})" if plan.shift_ticks else "no latency shift needed",
         f"largest residual pulse-area error after tick and amplitude rounding: {report.max_area_error_rad:.3g} rad",
         f"largest timing rounding: {_f(report.max_timing_error_s, units.DURATION)}"
-        + (f"; {report.stretched} pulse(s) lengthened by one tick to stay under the drive maximum"
+        + (f"; {report.stretched} pulse(s) lengthened by one tick to stay under the drive maximum, "
+           f"moving later events by up to {_f(report.max_stretch_shift_s, units.DURATION)}"
            if report.stretched else ""),
     ])
 

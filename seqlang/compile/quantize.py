@@ -24,8 +24,9 @@ class QuantizeReport:
 
     area_errors_rad: tuple[tuple[int, float], ...]  # (event index, played − wanted)
     max_area_error_rad: float
-    max_timing_error_s: float
+    max_timing_error_s: float  # rounding to the tick grid alone (at most half a tick)
     stretched: int  # pulses lengthened by a tick to stay under the drive's maximum
+    max_stretch_shift_s: float = 0.0  # how far those stretches moved later events
 
 
 def quantize(program: Program, timeline: Timeline) -> tuple[Timeline, QuantizeReport, list[Diagnostic]]:
@@ -38,11 +39,12 @@ def quantize(program: Program, timeline: Timeline) -> tuple[Timeline, QuantizeRe
     stretch_ends = sorted(end for (_, end), grow in zip(rounded, grows) if grow)
     events, errors, diags, worst_time = [], [], [], 0.0
     for event, (start, end), grow in zip(timeline.events, rounded, grows):
+        # Rounding and the deliberate stretch shifts are reported apart: they have different causes.
+        worst_time = max(worst_time, abs(start * tick - event.start_s), abs(end * tick - event.end_s))
         start = start + bisect.bisect_right(stretch_ends, start)
         end = end + bisect.bisect_left(stretch_ends, end) + grow
         if not _representable(event, end - start, limit, tick, diags):
             continue
-        worst_time = max(worst_time, abs(start * tick - event.start_s), abs(end * tick - event.end_s))
         if event.kind == PULSE:
             event, error_rad = _pulse(program.rig.drives[event.drive], event, start, end, tick)
             errors.append((event.index, error_rad))
@@ -52,7 +54,7 @@ def quantize(program: Program, timeline: Timeline) -> tuple[Timeline, QuantizeRe
     total = (math.ceil(round(timeline.duration_s / tick, 6)) + len(stretch_ends)) * tick
     total = max([total] + [e.end_s for e in events])
     report = QuantizeReport(tuple(errors), max((abs(e) for _, e in errors), default=0.0), worst_time,
-                            len(stretch_ends))
+                            len(stretch_ends), len(stretch_ends) * tick)
     return Timeline(tuple(events), total, tick, quantized=True), report, diags
 
 

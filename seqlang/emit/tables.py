@@ -106,6 +106,7 @@ def timing_json(checked: Checked) -> str:
             "max_area_error_rad": _num(report.max_area_error_rad),
             "max_timing_error_ns": _num(report.max_timing_error_s * 1e9),
             "pulses_stretched_one_tick": report.stretched,
+            "max_stretch_shift_ns": _num(report.max_stretch_shift_s * 1e9),
             "area_error_rad": {str(i): _num(err) for i, err in report.area_errors_rad},
         },
         "ports": {port: [_port_entry(checked, e) for e in events] for port, events in plan.ports.items()},

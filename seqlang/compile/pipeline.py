@@ -28,12 +28,18 @@ class Checked:
     warnings: tuple[Diagnostic, ...]
 
 
-def check(path: str, sources: Mapping[str, str] | None = None) -> Checked:
+def check(path: str, sources: Mapping[str, str] | None = None, point: int | None = None) -> Checked:
     """Run every pass; raise :class:`SeqlangError` with all errors found.
 
-    `sources` optionally maps paths to unsaved texts (see :func:`resolve`).
+    `sources` optionally maps paths to unsaved texts (see :func:`resolve`);
+    `point` picks a scan point of a file with scans (default: the first).
     """
-    program, diags = resolve(path, sources)
+    program, diags = resolve(path, sources, point)
+    return check_program(program, diags)
+
+
+def check_program(program: Program, diags: list[Diagnostic]) -> Checked:
+    """The passes after resolution (lowering, timing checks, quantization, hardware plan)."""
     timeline = lower(program)
     diags = diags + check_timeline(program, timeline)
     quantized, report, quant_diags = quantize(program, timeline)

@@ -17,6 +17,7 @@ from ..lang.diagnostics import ERROR, Diagnostic, SeqlangError, Span, did_you_me
 from ..lang.parser import parse_text
 from .evaluate import EvalError, Scope, evaluate, evaluate_any, expect_kind
 from .model import Expectation, Program, Rig, SerialOp, Site
+from .scans import bind_point, override_rig, resolve_scans
 from .sequence import SequenceResolver
 
 BELL_STATES = ("phi_plus", "phi_minus", "psi_plus", "psi_minus")
@@ -35,15 +36,26 @@ class Loaded:
     sources: Mapping[str, str] = field(default_factory=dict)
 
 
-def resolve(path: str, sources: Mapping[str, str] | None = None) -> tuple[Program, list[Diagnostic]]:
+def resolve(path: str, sources: Mapping[str, str] | None = None,
+            point: int | None = None) -> tuple[Program, list[Diagnostic]]:
     """Parse, resolve and check the sequence file at `path` (warnings returned).
 
     `sources` maps paths to texts that replace the files on disk (an editor's
-    unsaved buffers); paths are matched as the resolver forms them.
+    unsaved buffers); paths are matched as the resolver forms them. A file with
+    scans is resolved at scan point `point` (default: the first point).
     """
+    return resolve_point(load_files(path, sources), point)
+
+
+def load_files(path: str, sources: Mapping[str, str] | None = None) -> Loaded:
+    """Read and parse a program's files once, so that scan points re-use them."""
+    return _load(path, [], sources or {})
+
+
+def resolve_point(loaded: Loaded, point: int | None = None) -> tuple[Program, list[Diagnostic]]:
+    """Resolve parsed files at one scan point (an index; None for the first point)."""
     diags: list[Diagnostic] = []
-    loaded = _load(path, diags, sources or {})
-    program = _resolve_loaded(loaded, diags)
+    program = _resolve_loaded(loaded, diags, point or 0)
     errors = [d for d in diags if d.severity == ERROR]
     if errors or program is None:
         raise SeqlangError(diags)
@@ -125,14 +137,17 @@ def _load_imports(source: ast.SourceFile, loaded: Loaded, seen: set[str], depth:
             _load_imports(imported, loaded, seen, depth + 1, diags)
 
 
-def _resolve_loaded(loaded: Loaded, diags: list[Diagnostic]) -> Program | None:
+def _resolve_loaded(loaded: Loaded, diags: list[Diagnostic], point: int = 0) -> Program | None:
     from .rig import resolve_rig
     scope = Scope()
     if loaded.rig is None:
         diags.append(error("no rig: add `use \"lab.rig\"` at the top of the file",
                            Span(loaded.main.path, 1, 1, 1, 1)))
         return None
-    rig = resolve_rig(loaded.rig, loaded.rig_path, scope, diags)
+    space = resolve_scans(loaded.main, diags)
+    values = space.point(point) if space is not None else {}
+    bind_point(space, values, scope)
+    rig = resolve_rig(override_rig(loaded.rig, space, diags), loaded.rig_path, scope, diags)
     files = loaded.imports + [loaded.main]
     _bind_lets(files, scope, diags)
     sites = _sites(loaded.main, rig, scope, diags)
@@ -147,12 +162,16 @@ def _resolve_loaded(loaded: Loaded, diags: list[Diagnostic]) -> Program | None:
         else SerialOp((), Span(loaded.main.path, 1, 1, 1, 1))
     expects = _expects(loaded.main, sites, groups, diags)
     return Program(name, loaded.main.path, rig, sites, groups, body, expects,
-                   dict(sorted(loaded.hashes.items())), dict(scope.values))
+                   dict(sorted(loaded.hashes.items())), dict(scope.values), space, values, point)
 
 
 def _bind_lets(files, scope: Scope, diags: list[Diagnostic]) -> None:
     for source in files:
         for let in (i for i in source.items if isinstance(i, ast.LetStmt)):
+            if let.name.name in scope.pinned:
+                diags.append(error(f"`{let.name.name}` is scanned; a `let` cannot redefine it", let.name.span,
+                                   "remove this `let` or rename the scan"))
+                continue
             if let.name.name in units.UNITS:
                 diags.append(error(f"`{let.name.name}` is a unit and cannot be a constant's name", let.name.span))
                 continue

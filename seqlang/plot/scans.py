@@ -47,6 +47,7 @@ def plot_variable(ds, name: str):
         axes.errorbar(x.values, var.values, yerr=err, fmt="o-", ms=3, capsize=2, lw=1)
         axes.set_xlabel(_label(x))
         axes.set_ylabel(_label(var))
+        axes.set_xscale("log" if x.attrs.get("spacing") == "log" else "linear")
         axes.grid(alpha=0.3)
     else:
         y, x = var[var.dims[0]], var[var.dims[1]]

@@ -37,6 +37,7 @@ class ScanAxis:
     dim: tuple[int, ...]
     unit: str
     span: Span
+    spacing: str = "listed"  # "linear" or "log" for ranges
 
     @property
     def factor(self) -> float:
@@ -125,8 +126,10 @@ def _axis(decl: ast.ScanDecl, diags: list[Diagnostic]) -> ScanAxis | None:
             diags.append(error(f"every value of a scan needs the same kind: expected {units.kind_name(dim)}, "
                                f"got {q.kind}", expr.span))
             return None
+    spacing = "listed" if isinstance(decl.values, ast.ScanList) else \
+        (decl.values.spacing.name if decl.values.spacing else "linear")
     return ScanAxis(decl.target.name, tuple(float(q.value) for q in quantities), dim,
-                    _display_unit(first, dim), decl.span)
+                    _display_unit(first, dim), decl.span, spacing)
 
 
 def _items(values) -> list[ast.Expr]:

@@ -6,9 +6,11 @@ point's numbers depend only on the job and its index, never on the executor.
 """
 from __future__ import annotations
 
+import contextlib
 import multiprocessing
 import os
 import signal
+import sys
 from typing import Iterable, Iterator
 
 from .work import Job, run_point
@@ -45,17 +47,39 @@ def _run_one(args) -> dict:
     return run_point(*args)
 
 
+@contextlib.contextmanager
+def _workers_skip_main():
+    """New worker processes would re-run the caller's script (``__main__``) before their first
+    task, looping forever in a script without an ``if __name__ == "__main__"`` guard. The
+    task lives in seqlang, so the workers are started without it."""
+    main = sys.modules.get("__main__")
+    saved = {k: getattr(main, k) for k in ("__file__", "__spec__") if hasattr(main, k)}
+    if "__file__" in saved:
+        del main.__file__
+    main.__spec__ = None
+    try:
+        yield
+    finally:
+        for key, value in saved.items():
+            setattr(main, key, value)
+
+
 def _pool(job: Job, indices: list[int], workers: int) -> Iterator[dict]:
     # forkserver: workers start from a clean, pre-imported process, not a fork of a driver
     # that may hold threads (the store's I/O loop).
     context = multiprocessing.get_context("forkserver")
     context.set_forkserver_preload(["seqlang.scan.work", "seqlang.sim.api"])
-    pool = context.Pool(min(workers, len(indices)), initializer=_ignore_interrupts)
+    with _workers_skip_main():
+        pool = context.Pool(min(workers, len(indices)), initializer=_ignore_interrupts)
+    finished = False
     try:
         yield from pool.imap_unordered(_run_one, ((job, i) for i in indices), chunksize=1)
-        pool.close()
+        finished = True
     finally:
-        pool.terminate()
+        if finished:
+            pool.close()
+        else:  # interrupted: the points in flight are given up
+            pool.terminate()
         pool.join()
 
 
@@ -63,8 +87,9 @@ def _dask(job: Job, indices: list[int], scheduler: str, workers: int, processes:
     from distributed import Client, LocalCluster, as_completed
     cluster = None
     if scheduler == "local":
-        cluster = LocalCluster(n_workers=workers, threads_per_worker=1, processes=processes,
-                               dashboard_address=None)
+        with _workers_skip_main():
+            cluster = LocalCluster(n_workers=workers, threads_per_worker=1, processes=processes,
+                                   dashboard_address=None)
     client = Client(cluster if cluster is not None else scheduler)
     try:
         limit = max(1, IN_FLIGHT_PER_WORKER * len(client.scheduler_info()["workers"]))

@@ -18,7 +18,7 @@ from . import store
 from .check import check_points
 from .executors import run_points
 from .progress import Progress
-from .work import Job, point_name
+from .work import Job, point_name, run_point
 
 TABLES = ("timing.csv", "timing.json", "waveforms.npz")
 OPTIONS = {"simulate": False, "noise": "off", "shots": 200, "seed": 1, "engine": "auto", "truncate": True,
@@ -42,16 +42,30 @@ def run_scan(path: str, output: str, **options):
     job = _job(path, output, checked.first.program, space, o)
     store_path = os.path.join(output, store.STORE)
     indices = _todo(store_path, space, job, o)
-    writer = store.Writer(store_path, space)
     progress = Progress(space.count, space.count - len(_missing(store_path)), o["progress"])
     try:
-        for result in run_points(job, indices, o["workers"], o["scheduler"], o["dask_processes"]):
-            writer.write(result)
+        # The first point runs here: it tells the store which numbers there are.
+        for result in _chain(run_point(job, i) for i in indices[:1]):
+            _keep(result, store_path, space)
+            progress.step()
+        for result in run_points(job, indices[1:], o["workers"], o["scheduler"], o["dask_processes"]):
+            _keep(result, store_path, space)
             progress.step()
     finally:
         progress.close()
         write_points_csv(output, space, store_path, job)
     return store.open_dataset(store_path)
+
+
+def _chain(results):
+    yield from results
+
+
+def _keep(result: dict, store_path: str, space: ScanSpace) -> None:
+    """Workers store their own points; one with numbers new to the store is stored here."""
+    if not result["written"]:
+        store.add_variables(store_path, space, result["numbers"])
+        store.write_point(store_path, space.position(result["index"]), result["numbers"])
 
 
 def _job(path: str, output: str, program, space: ScanSpace, o: dict) -> Job:
@@ -67,8 +81,8 @@ def _job(path: str, output: str, program, space: ScanSpace, o: dict) -> Job:
     if tables:
         os.makedirs(tables, exist_ok=True)
     width = max(4, len(str(space.count - 1)))
-    job = Job(os.path.abspath(path), fingerprint, tables, width, bool(o["simulate"]), sources, o["shots"],
-              o["seed"], o["engine"], bool(o["truncate"]), repetitions)
+    job = Job(os.path.abspath(path), fingerprint, tables, width, os.path.abspath(os.path.join(output, store.STORE)),
+              bool(o["simulate"]), sources, o["shots"], o["seed"], o["engine"], bool(o["truncate"]), repetitions)
     job_attrs = store.provenance(program, recorded, fingerprint)
     _prepare_store(os.path.join(output, store.STORE), space, o, fingerprint, job_attrs)
     return job

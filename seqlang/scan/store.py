@@ -3,10 +3,11 @@
 Dimensions are the scan's (one per scan, or per lockstep group), coordinates
 the scanned values in the units they were written in, data variables the
 reported numbers with ``NAME_error`` beside them, and attributes the units and
-the provenance. The store is a Zarr directory (format 2) written point by point
-by the driver alone: each chunk is replaced atomically, and ``point_done`` is set
-only after a point's numbers are in, so an interrupted scan (Ctrl-C or kill -9)
-loses at most the points in flight. Read it with ``xarray.open_zarr``.
+the provenance. The store is a Zarr directory (format 2) with one chunk per point,
+so each worker writes its own point's chunks and no two writers share a file;
+every chunk file is replaced atomically, and ``point_done`` is set only after a
+point's numbers are in, so an interrupted scan (Ctrl-C or kill -9) loses at most
+the points in flight. Read it with ``xarray.open_zarr``.
 """
 from __future__ import annotations
 
@@ -21,7 +22,6 @@ from ..program.scans import ScanSpace
 from .seeds import RULE, point_seed
 
 STORE = "results.zarr"
-CHUNK = 64  # points per chunk along the last dimension; the other dimensions are chunked by 1
 NOTE = ("model prediction for the played (tick-quantized) timeline of each point; not a guarantee of the "
         "apparatus. The timing tables in tables/ drive lasers, RF and electrodes: review them before use "
         "and follow local safety rules.")
@@ -37,7 +37,7 @@ def dims(space: ScanSpace) -> tuple[str, ...]:
 
 
 def _chunks(shape: tuple[int, ...]) -> tuple[int, ...]:
-    return tuple(1 for _ in shape[:-1]) + ((min(shape[-1], CHUNK),) if shape else ())
+    return tuple(1 for _ in shape)  # one point per chunk: writers never share a chunk file
 
 
 def _lazy(shape, fill, dtype):
@@ -55,7 +55,7 @@ def create(path: str, space: ScanSpace, seed: int, attrs: dict) -> None:
             axis = space.axes[k]
             coords[axis.name] = (dim, [axis.shown(v) for v in axis.values],
                                  {"units": axis.unit or "1", "long_name": axis.name,
-                                  "si_factor": axis.factor})
+                                  "si_factor": axis.factor, "spacing": axis.spacing})
     index = np.arange(space.count, dtype=np.int64).reshape(shape)
     seeds = np.array([point_seed(seed, i) for i in range(space.count)], dtype=np.int64).reshape(shape)
     data = {"point_index": (names, index, {"long_name": "point index (tables/<index>/)"}),
@@ -92,33 +92,49 @@ def done_mask(path: str) -> np.ndarray:
     return np.asarray(zarr.open_group(path, mode="r", zarr_format=2)["point_done"][...]).ravel() == 1
 
 
-class Writer:
-    """Writes finished points into the store; adds the variables on the first point."""
+def add_variables(path: str, space: ScanSpace, numbers: dict) -> None:
+    """Declare (NaN-filled, no chunk written) every number of `numbers` not yet in the store."""
+    import xarray as xr
+    import zarr
+    have = set(zarr.open_group(path, mode="r", zarr_format=2).array_keys())
+    names = [n for n in numbers if n not in have]
+    if not names:
+        return
+    shape, dim_names = space.shape, dims(space)
+    data = {n: (dim_names, _lazy(shape, math.nan, np.float64), _attributes(n, numbers)) for n in names}
+    encoding = {n: {"chunks": _chunks(shape)} for n in names}
+    xr.Dataset(data).to_zarr(path, mode="a", compute=False, zarr_format=2, consolidated=True, encoding=encoding)
+    _ARRAYS.clear()
 
-    def __init__(self, path: str, space: ScanSpace):
-        import zarr
-        self.path, self.space = path, space
-        self.group = zarr.open_group(path, mode="r+", zarr_format=2)
 
-    def write(self, result: dict) -> None:
-        at = self.space.position(result["index"])
-        numbers = result["numbers"]
-        missing = [n for n in numbers if n not in self.group]
-        if missing:
-            self._add_variables(missing, numbers)
-        for name, value in numbers.items():
-            self.group[name][at] = value
-        self.group["point_done"][at] = 1
+_ARRAYS: dict[str, dict] = {}  # per process: store path → its arrays, opened once
 
-    def _add_variables(self, names: list[str], numbers: dict) -> None:
-        import xarray as xr
-        import zarr
-        shape, dim_names = self.space.shape, dims(self.space)
-        data = {n: (dim_names, _lazy(shape, math.nan, np.float64), _attributes(n, numbers)) for n in names}
-        encoding = {n: {"chunks": _chunks(shape)} for n in names}
-        xr.Dataset(data).to_zarr(self.path, mode="a", compute=False, zarr_format=2, consolidated=True,
-                                 encoding=encoding)
-        self.group = zarr.open_group(self.path, mode="r+", zarr_format=2)
+
+def write_point(path: str, position: tuple[int, ...], numbers: dict) -> bool:
+    """Write one point's numbers, then its done flag; False (nothing written) if a number has
+    no variable in the store yet."""
+    from zarr.core.sync import sync
+    arrays = _ARRAYS.get(path)
+    if arrays is None or not set(numbers) <= set(arrays):
+        arrays = _ARRAYS[path] = sync(_open_arrays(path))
+        if not set(numbers) <= set(arrays):
+            return False
+    sync(_put(arrays, position, numbers))
+    sync(_put(arrays, position, {"point_done": 1}))
+    return True
+
+
+async def _open_arrays(path: str) -> dict:
+    import zarr.api.asynchronous as zarr_async
+    group = await zarr_async.open_group(path, mode="r+", zarr_format=2)
+    return {name: array async for name, array in group.arrays()}
+
+
+async def _put(arrays: dict, position: tuple[int, ...], values: dict) -> None:
+    import asyncio
+    # All of a point's chunks in one round trip: one small file each, written concurrently.
+    await asyncio.gather(*(arrays[n].setitem(position, np.asarray(v, dtype=arrays[n].dtype))
+                           for n, v in values.items()))
 
 
 def _attributes(name: str, numbers: dict) -> dict:

@@ -24,6 +24,7 @@ class Job:
     fingerprint: str  # of the sources and options; keys the parsed-file cache
     tables: str | None  # DIR/tables, or None to skip writing tables
     width: int  # digits of the point directories' names
+    store: str | None = None  # DIR/results.zarr: the worker writes its point there itself
     simulate: bool = False
     noise: tuple[str, ...] = ()
     shots: int = 200
@@ -52,7 +53,11 @@ def run_point(job: Job, index: int) -> dict:
         _write_tables(checked, os.path.join(job.tables, point_name(job, index)))
     seed = point_seed(job.seed, index)
     numbers = _simulate(job, checked, seed) if job.simulate else {}
-    return {"index": index, "seed": seed, "numbers": numbers}
+    written = False
+    if job.store is not None:
+        from .store import write_point
+        written = write_point(job.store, program.scans.position(index) if program.scans else (), numbers)
+    return {"index": index, "seed": seed, "numbers": numbers, "written": written}
 
 
 def _write_tables(checked, directory: str) -> None:

@@ -10,6 +10,7 @@ import csv
 import hashlib
 import json
 import os
+import shutil
 import tempfile
 
 from ..program.scans import ScanSpace
@@ -80,12 +81,21 @@ def _job(path: str, output: str, program, space: ScanSpace, o: dict) -> Job:
     tables = os.path.join(output, "tables") if o["tables"] else None
     if tables:
         os.makedirs(tables, exist_ok=True)
+    _remove_partials(output, tables)
     width = max(4, len(str(space.count - 1)))
     job = Job(os.path.abspath(path), fingerprint, tables, width, os.path.abspath(os.path.join(output, store.STORE)),
               bool(o["simulate"]), sources, o["shots"], o["seed"], o["engine"], bool(o["truncate"]), repetitions)
     job_attrs = store.provenance(program, recorded, fingerprint)
     _prepare_store(os.path.join(output, store.STORE), space, o, fingerprint, job_attrs)
     return job
+
+
+def _remove_partials(*directories) -> None:
+    """Half-written point directories and stores of an interrupted run (never a finished one)."""
+    for directory in filter(None, directories):
+        for entry in os.listdir(directory):
+            if ".partial-" in entry:
+                shutil.rmtree(os.path.join(directory, entry), ignore_errors=True)
 
 
 def _fingerprint(program, space: ScanSpace, recorded: dict) -> str:

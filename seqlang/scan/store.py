@@ -14,6 +14,7 @@ from __future__ import annotations
 import json
 import math
 import os
+import shutil
 
 import numpy as np
 
@@ -63,8 +64,12 @@ def create(path: str, space: ScanSpace, seed: int, attrs: dict) -> None:
             "point_done": (names, _lazy(shape, 0, np.int8), {"long_name": "1 once the point is stored"})}
     ds = xr.Dataset(data, coords=coords, attrs=attrs)
     encoding = {name: {"chunks": _chunks(shape)} for name in data}
-    ds.to_zarr(path, mode="w-", compute=False, zarr_format=2, consolidated=True, encoding=encoding)
-    _fill_eager(path, ds)
+    # Built beside and renamed into place: a store either is whole or is not there at all.
+    partial = f"{path}.partial-{os.getpid()}"
+    shutil.rmtree(partial, ignore_errors=True)
+    ds.to_zarr(partial, mode="w-", compute=False, zarr_format=2, consolidated=True, encoding=encoding)
+    _fill_eager(partial, ds)
+    os.rename(partial, path)
 
 
 def _fill_eager(path: str, ds) -> None:
@@ -96,14 +101,15 @@ def add_variables(path: str, space: ScanSpace, numbers: dict) -> None:
     """Declare (NaN-filled, no chunk written) every number of `numbers` not yet in the store."""
     import xarray as xr
     import zarr
-    have = set(zarr.open_group(path, mode="r", zarr_format=2).array_keys())
+    group = zarr.open_group(path, mode="r", zarr_format=2)
+    have, attrs = set(group.array_keys()), dict(group.attrs)
     names = [n for n in numbers if n not in have]
     if not names:
         return
     shape, dim_names = space.shape, dims(space)
     data = {n: (dim_names, _lazy(shape, math.nan, np.float64), _attributes(n, numbers)) for n in names}
     encoding = {n: {"chunks": _chunks(shape)} for n in names}
-    xr.Dataset(data).to_zarr(path, mode="a", compute=False, zarr_format=2, consolidated=True, encoding=encoding)
+    xr.Dataset(data, attrs=attrs).to_zarr(path, mode="a", compute=False, zarr_format=2, consolidated=True, encoding=encoding)
     _ARRAYS.clear()
 
 
@@ -167,6 +173,7 @@ def provenance(program, options: dict, fingerprint: str) -> dict:
 
 
 def open_dataset(path: str):
-    """The store as an xarray Dataset (lazily loaded)."""
+    """The store as an xarray Dataset (read lazily, without dask: one chunk per point would
+    make a large task graph)."""
     import xarray as xr
-    return xr.open_zarr(path, consolidated=True)
+    return xr.open_zarr(path, consolidated=True, chunks=None)

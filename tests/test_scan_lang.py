@@ -143,3 +143,15 @@ def test_scan_values_must_be_constants():
     diags = []
     resolve_scans(parse_text("let a = 1 us\nscan t = [a]", "x.seq"), diags)
     assert diags and "numbers and units only" in diags[0].message
+
+
+def test_scanned_name_in_wait_repeat_and_block_bodies(tmp_path):
+    path = bench_program(tmp_path, "  repeat n { do flip(pi) }", "")
+    text = open(path).read().replace('use "bench.rig"', 'use "bench.rig"\nscan t = [1 us, 2 us]\nscan n = [1, 3]\n'
+                                     "block flip(x) {\n  pulse mw_cs area x\n  wait t\n}")
+    open(path, "w").write(text)
+    one, three = seqlang.load(path, point=2), seqlang.load(path, point=3)  # t = 2 us; n = 1 and 3
+    assert len(one.timeline.events) == 1 and len(three.timeline.events) == 3
+    pulse = one.timeline.events[0].duration_s
+    assert one.timeline.duration_s == pytest.approx(pulse + 2e-6)
+    assert three.timeline.duration_s == pytest.approx(3 * (pulse + 2e-6))

@@ -4,7 +4,7 @@ Every model is a probability (or a frequency, for `sqrt_n`) against the scanned 
 in the scan's own unit (times in the unit the scan was written in, e.g. us, so a
 fitted frequency comes out in 1/us = MHz). Formulas:
 
-* `rabi`: P = offset + contrast/2 · (1 − e^(−x/decay) · cos(2π·frequency·x + phase))
+* `rabi`: P = offset + contrast/2 · (1 − e^(−damping·x) · cos(2π·frequency·x + phase))
   (damped Rabi oscillation; Rabi formula on resonance, Foot, Atomic Physics, OUP 2005)
 * `ramsey`: P = offset + contrast/2 · (1 + env(x) · cos(2π·detuning·x + phase)), with
   env = exp(−(x/t2)²) (`gaussian`, Doppler-like dephasing) or exp(−x/t2) (`exponential`)
@@ -21,8 +21,8 @@ import numpy as np
 MODELS = ("rabi", "ramsey", "resonance", "blockade", "sqrt_n")
 
 
-def rabi(x, frequency, contrast, offset, decay, phase):
-    return offset + contrast / 2 * (1 - np.exp(-x / decay) * np.cos(2 * np.pi * frequency * x + phase))
+def rabi(x, frequency, contrast, offset, damping, phase):
+    return offset + contrast / 2 * (1 - np.exp(-damping * x) * np.cos(2 * np.pi * frequency * x + phase))
 
 
 def ramsey_gaussian(x, detuning, t2, contrast, offset, phase):
@@ -67,12 +67,11 @@ def _rabi(lmfit, x, y, envelope):
     span = float(np.ptp(x)) or 1.0
     # Starting phase: 0 if the curve starts low (excitation), π if it starts high (survival).
     phase = 0.0 if y[np.argmin(x)] < np.mean(y) else np.pi
+    # No bounds but on the frequency: a parameter held at a bound (contrast 1, no damping)
+    # would distort its uncertainty, and these are what the fits are for.
     params = model.make_params(frequency=_dominant_frequency(x, y), contrast=float(np.ptp(y)) or 1.0,
-                               offset=float(y.min()), decay=10 * span, phase=phase)
+                               offset=float(y.min()), damping=0.1 / span, phase=phase)
     params["frequency"].min = 0
-    params["contrast"].set(min=0, max=1)
-    params["offset"].set(min=0, max=1)
-    params["decay"].set(min=span / 100)
     return model, params
 
 
@@ -82,8 +81,6 @@ def _ramsey(lmfit, x, y, envelope):
     params = model.make_params(detuning=_dominant_frequency(x, y), t2=span, contrast=float(np.ptp(y)) or 1.0,
                                offset=float(y.min()), phase=0.0)
     params["t2"].min = span / 100
-    params["contrast"].set(min=0, max=1)
-    params["offset"].set(min=0, max=1)
     return model, params
 
 

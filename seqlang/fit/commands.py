@@ -29,6 +29,17 @@ def register(sub) -> None:
     c.add_argument("--write", action="store_true", help="apply the change (atomically; the old file is kept)")
     c.set_defaults(run=cmd_calibrate)
 
+    o = sub.add_parser("optimise", help="vary the sequence's `free` values to maximise the fidelity of its expect")
+    o.add_argument("file", help="a sequence file (*.seq) with `free` declarations and an `expect`")
+    o.add_argument("--noise", default="off", metavar="off|all|SOURCE,...", help="noise sources (default off)")
+    o.add_argument("--shots", type=int, default=200, help="Monte Carlo shots per trial for sampled noise")
+    o.add_argument("--seed", type=int, default=1, help="seed (the same for every trial: common random numbers)")
+    o.add_argument("--tolerance", type=float, default=1e-8, help="stop when the simplex is this small (in units "
+                                                                   "of each free range)")
+    o.add_argument("-o", "--output", metavar="FILE", help="write the optimum as a `let` block to FILE")
+    o.add_argument("--no-budget", dest="budget", action="store_false", help="skip the error budget at the optimum")
+    o.set_defaults(run=cmd_optimise)
+
 
 def cmd_fit(args) -> int:
     from ..cli import UsageError, _existing
@@ -119,4 +130,27 @@ def cmd_calibrate(args) -> int:
         print(f"wrote {change.path} (the old file is kept as {kept})")
     else:
         print("(not applied: add --write to change the rig file)")
+    return 0
+
+
+def cmd_optimise(args) -> int:
+    from ..cli import UsageError, _existing
+    from ..emit.atomic import write_text
+    from ..sim.noise import parse_sources
+    from .optimise import optimise, sequence_at
+    try:
+        sources = parse_sources(args.noise)
+        best = optimise(_existing(args.file), noise=sources, shots=args.shots, seed=args.seed,
+                        tolerance=args.tolerance)
+    except ValueError as exc:
+        raise UsageError(str(exc)) from None
+    print(f"{args.file}: fidelity {best.fidelity:.8f} at the optimum (start {best.start_fidelity:.8f}; "
+          f"{best.evaluations} simulations; noise {', '.join(sources) or 'off'})")
+    print(best.let_block(), end="")
+    if args.output:
+        write_text(args.output, best.let_block())
+        print(f"wrote {args.output}")
+    if args.budget:
+        from ..sim.budget import budget, budget_table
+        print(budget_table(budget(sequence_at(args.file, best.values), shots=args.shots, seed=args.seed)))
     return 0

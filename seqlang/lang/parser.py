@@ -375,3 +375,8 @@ class _Builder(Transformer):
     @v_args(meta=True)
     def lockstep_def(self, meta, children):
         return ast.LockstepDecl(tuple(children), self._span(meta))
+
+    @v_args(meta=True)
+    def free_def(self, meta, children):
+        name, low, high, start = children
+        return ast.FreeDecl(self._ident(name), low, high, start, self._span(meta))

@@ -408,8 +408,19 @@ class LockstepDecl:
     span: Span
 
 
+@dataclass(frozen=True)
+class FreeDecl:
+    """``free NAME = low .. high [start value]``: a value the optimiser may vary within bounds."""
+
+    name: Ident
+    low: "Expr"
+    high: "Expr"
+    start: "Expr | None"
+    span: Span
+
+
 Item = Union[UseStmt, ImportStmt, RigDef, LetStmt, SiteStmt, GroupStmt, BlockDef,
-             SequenceDef, ExpectStmt, ScanDecl, LockstepDecl]
+             SequenceDef, ExpectStmt, ScanDecl, LockstepDecl, FreeDecl]
 
 
 @dataclass(frozen=True)

@@ -17,7 +17,7 @@ from ..lang.diagnostics import ERROR, Diagnostic, SeqlangError, Span, did_you_me
 from ..lang.parser import parse_text
 from .evaluate import EvalError, Scope, evaluate, evaluate_any, expect_kind
 from .model import Expectation, Program, Rig, SerialOp, Site
-from .scans import bind_point, override_rig, resolve_scans
+from .scans import bind_free, bind_point, override_rig, resolve_free, resolve_scans
 from .sequence import SequenceResolver
 
 BELL_STATES = ("phi_plus", "phi_minus", "psi_plus", "psi_minus")
@@ -52,10 +52,12 @@ def load_files(path: str, sources: Mapping[str, str] | None = None) -> Loaded:
     return _load(path, [], sources or {})
 
 
-def resolve_point(loaded: Loaded, point: int | None = None) -> tuple[Program, list[Diagnostic]]:
-    """Resolve parsed files at one scan point (an index; None for the first point)."""
+def resolve_point(loaded: Loaded, point: int | None = None,
+                  free: dict[str, float] | None = None) -> tuple[Program, list[Diagnostic]]:
+    """Resolve parsed files at one scan point (an index; None for the first point), with the
+    `free` values given (SI; the others at their start)."""
     diags: list[Diagnostic] = []
-    program = _resolve_loaded(loaded, diags, point or 0)
+    program = _resolve_loaded(loaded, diags, point or 0, free)
     errors = [d for d in diags if d.severity == ERROR]
     if errors or program is None:
         raise SeqlangError(diags)
@@ -137,7 +139,8 @@ def _load_imports(source: ast.SourceFile, loaded: Loaded, seen: set[str], depth:
             _load_imports(imported, loaded, seen, depth + 1, diags)
 
 
-def _resolve_loaded(loaded: Loaded, diags: list[Diagnostic], point: int = 0) -> Program | None:
+def _resolve_loaded(loaded: Loaded, diags: list[Diagnostic], point: int = 0,
+                    free_values: dict[str, float] | None = None) -> Program | None:
     from .rig import resolve_rig
     scope = Scope()
     if loaded.rig is None:
@@ -147,6 +150,8 @@ def _resolve_loaded(loaded: Loaded, diags: list[Diagnostic], point: int = 0) -> 
     space = resolve_scans(loaded.main, diags)
     values = space.point(point) if space is not None else {}
     bind_point(space, values, scope)
+    free = resolve_free(loaded.main, set(values), diags)
+    bind_free(free, free_values, scope)
     rig = resolve_rig(override_rig(loaded.rig, space, diags), loaded.rig_path, scope, diags)
     files = loaded.imports + [loaded.main]
     _bind_lets(files, scope, diags)
@@ -162,7 +167,7 @@ def _resolve_loaded(loaded: Loaded, diags: list[Diagnostic], point: int = 0) -> 
         else SerialOp((), Span(loaded.main.path, 1, 1, 1, 1))
     expects = _expects(loaded.main, sites, groups, diags)
     return Program(name, loaded.main.path, rig, sites, groups, body, expects,
-                   dict(sorted(loaded.hashes.items())), dict(scope.values), space, values, point)
+                   dict(sorted(loaded.hashes.items())), dict(scope.values), space, values, point, free)
 
 
 def _bind_lets(files, scope: Scope, diags: list[Diagnostic]) -> None:

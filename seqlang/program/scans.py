@@ -250,3 +250,50 @@ def _with_prop(decl, key: str, axis: ScanAxis):
     props = [p for p in decl.props if p.key.name != key]
     props.append(ast.Prop(ast.Ident(key, axis.span), value, axis.span))
     return replace(decl, props=tuple(props))
+
+
+# ---- free parameters (for the optimiser) ----------------------------------------
+@dataclass(frozen=True)
+class FreeParam:
+    """A value the optimiser may vary: bounds and start (SI), the unit it was written in."""
+
+    name: str
+    low: float
+    high: float
+    start: float
+    dim: tuple[int, ...]
+    unit: str
+    span: Span
+
+
+def resolve_free(source: ast.SourceFile, taken: set[str], diags: list[Diagnostic]) -> tuple[FreeParam, ...]:
+    """The `free` declarations of `source` (names in `taken` are already scans)."""
+    out: list[FreeParam] = []
+    for decl in (i for i in source.items if isinstance(i, ast.FreeDecl)):
+        name = decl.name.name
+        if name in taken or any(f.name == name for f in out) or name in units.UNITS:
+            diags.append(error(f"`{name}` is already declared, or is a unit", decl.name.span))
+            continue
+        try:
+            low, high = _constant(decl.low), _constant(decl.high)
+            start = _constant(decl.start) if decl.start is not None else Quantity((low.value + high.value) / 2,
+                                                                                   low.dim)
+        except EvalError as exc:
+            diags.append(exc.diagnostic)
+            continue
+        if not low.dim == high.dim == start.dim:
+            diags.append(error("the bounds and start of a free value need one kind", decl.span))
+        elif not low.value < high.value or not low.value <= start.value <= high.value:
+            diags.append(error("a free value needs low < high and the start between them", decl.span))
+        else:
+            out.append(FreeParam(name, low.value, high.value, start.value, low.dim,
+                                 _display_unit(decl.low, low.dim), decl.span))
+    return tuple(out)
+
+
+def bind_free(free: tuple[FreeParam, ...], values: dict[str, float] | None, scope: Scope) -> None:
+    """Bind each free value (its start unless `values` gives it), pinned like a scan."""
+    for param in free:
+        value = (values or {}).get(param.name, param.start)
+        scope.values[param.name] = Quantity(value, param.dim)
+    scope.pinned = scope.pinned | frozenset(p.name for p in free)

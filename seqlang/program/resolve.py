@@ -147,6 +147,10 @@ def _resolve_loaded(loaded: Loaded, diags: list[Diagnostic], point: int = 0,
         diags.append(error("no rig: add `use \"lab.rig\"` at the top of the file",
                            Span(loaded.main.path, 1, 1, 1, 1)))
         return None
+    for imported in loaded.imports:  # a scan or free value belongs to the file that is run
+        for decl in (i for i in imported.items if isinstance(i, (ast.ScanDecl, ast.LockstepDecl, ast.FreeDecl))):
+            diags.append(error("`scan` and `free` are declared in the sequence file that is run, "
+                               "not in an imported one", decl.span))
     space = resolve_scans(loaded.main, diags)
     values = space.point(point) if space is not None else {}
     bind_point(space, values, scope)

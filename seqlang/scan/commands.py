@@ -45,14 +45,13 @@ def _indices(text: str | None) -> list[int] | None:
 
 def cmd_scan(args) -> int:
     from ..cli import UsageError, _existing, _print_warnings
-    from .check import check_points
     from .run import ScanUsageError, run_scan
     if args.workers is not None and args.workers < 1:
         raise UsageError("--workers must be at least 1")
     if args.repetitions is not None and args.repetitions < 1:
         raise UsageError("--repetitions must be at least 1")
-    _print_warnings(check_points(_existing(args.file)).warnings)
-    options = dict(simulate=args.simulate, noise=args.noise, shots=args.shots, seed=args.seed,
+    _existing(args.file)
+    options = dict(on_checked=lambda checked: _print_warnings(checked.warnings),simulate=args.simulate, noise=args.noise, shots=args.shots, seed=args.seed,
                    engine=args.engine, truncate=args.truncate, repetitions=args.repetitions,
                    workers=args.workers, scheduler=args.scheduler, resume=args.resume,
                    only=_indices(args.only), progress=args.progress)

@@ -24,7 +24,7 @@ from .work import Job, point_name, run_point
 TABLES = ("timing.csv", "timing.json", "waveforms.npz")
 OPTIONS = {"simulate": False, "noise": "off", "shots": 200, "seed": 1, "engine": "auto", "truncate": True,
            "repetitions": None, "workers": None, "scheduler": None, "dask_processes": True, "resume": False,
-           "only": None, "progress": None, "tables": True}
+           "only": None, "progress": None, "tables": True, "on_checked": None}
 EMPTY = ScanSpace((), ())
 
 
@@ -39,6 +39,8 @@ def run_scan(path: str, output: str, **options):
         raise TypeError(f"unknown scan option(s): {', '.join(sorted(unknown))}")
     o = {**OPTIONS, **options}
     checked = check_points(path)
+    if o["on_checked"] is not None:
+        o["on_checked"](checked)  # e.g. the command line prints the warnings
     space = checked.space or EMPTY
     job = _job(path, output, checked.first.program, space, o)
     store_path = os.path.join(output, store.STORE)

@@ -75,6 +75,15 @@ def test_pool_and_dask_give_the_serial_store(serial, tmp_path):
     xr.testing.assert_identical(dask, expected)
 
 
+@pytest.mark.slow
+def test_an_existing_dask_cluster_by_address(serial, tmp_path):
+    from distributed import LocalCluster
+    path, expected = serial
+    with LocalCluster(n_workers=2, threads_per_worker=1, processes=False, dashboard_address=None) as cluster:
+        remote = seqlang.scan(path, str(tmp_path / "remote"), scheduler=cluster.scheduler_address, **NOISY).load()
+    xr.testing.assert_identical(remote, expected)
+
+
 def test_one_point_rerun_alone_gets_the_same_numbers(serial, tmp_path):
     path, expected = serial
     alone = seqlang.scan(path, str(tmp_path / "alone"), only=[4], workers=1, **NOISY).load()
@@ -108,6 +117,7 @@ def test_existing_store_needs_resume_and_the_same_options(tmp_path):
     assert "Traceback" not in again.stderr + other.stderr
 
 
+@pytest.mark.slow
 def test_kill_9_then_resume_equals_an_uninterrupted_scan(tmp_path):
     path = _program(tmp_path, n=10)
     args = [sys.executable, "-m", "seqlang", "scan", path, "--simulate", "--noise", "intensity", "--shots", "40",

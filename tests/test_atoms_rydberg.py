@@ -162,7 +162,7 @@ def test_second_c6_call_does_not_touch_arc(monkeypatch):
 
 # ----------------------------------------------------------------- lifetimes
 # Beterov, Ryabtsev, Tretyakov & Entin, PRA 79, 052504 (2009), nS fits (coefficients
-# from transcriptions: from memory). docs/references.md: ARC's sums differ from the fit by
+# copied by hand: from memory). docs/references.md: ARC's sums differ from the fit by
 # up to ~10 % at 0 K and ~3 % at 300 K; tolerances 12 % (0 K) and 8 % (300 K).
 BETEROV_NS = {
     "Rb87": (1.368e-9, 3.0008, 0.134, 0.251, 2.567, 4.426),

@@ -106,12 +106,17 @@ def test_parser_stops_at_the_first_syntax_error():
     assert diags[0].message == "unexpected number `1`; expected a name"
 
 
-def test_missing_brace_names_the_brace_first():
-    diags = _syntax_error("sequence s {\n  wait 1 us\n")
-    assert diags[0].message.startswith("unexpected end of file; expected `}`")
-    assert diags[0].hint == "a closing `}` is probably missing"
-    # the caret sits just after the last character written
-    assert (diags[0].span.line, diags[0].span.column) == (2, 12)
+def test_missing_brace_is_reported_at_the_brace_never_closed():
+    diags = _syntax_error("sequence s {\n  together {\n    wait 1 us\n  }\n  wait 2 us\n")
+    assert diags[0].message == "this `{` is never closed: the file ends before its `}`"
+    assert diags[0].hint == "add `}` where the block opened on line 1 should end"
+    assert (diags[0].span.line, diags[0].span.column, diags[0].span.end_column) == (1, 12, 13)
+
+
+def test_missing_brace_before_a_top_level_keyword():
+    diags = _syntax_error("sequence s {\n  wait 1 us\n\nexpect a as |0>\n")
+    assert diags[0].message == "this `{` is never closed: `expect` on line 4 comes before its `}`"
+    assert (diags[0].span.line, diags[0].span.column) == (1, 12)
 
 
 def test_no_lark_internal_names_in_messages():

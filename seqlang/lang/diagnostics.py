@@ -141,8 +141,18 @@ def render(diagnostic: Diagnostic, sources: SourceRegistry = SOURCES) -> str:
     return "\n".join(out)
 
 
+# Characters shown as one visible character each, so that the caret stays under its column:
+# blanks as a space, other control characters (a null byte, separators) as U+FFFD.
+_VISIBLE = {c: " " for c in "\t\f\v"}
+_VISIBLE.update({chr(c): "\ufffd" for c in list(range(32)) + list(range(0x7f, 0xa0)) + [0x2028, 0x2029]
+                 if chr(c) not in _VISIBLE})
+_VISIBLE_TABLE = str.maketrans(_VISIBLE)
+
+
 def _excerpt(text: str, column: int, width: int) -> tuple[str, int, int]:
-    """A long source line cut to a window around the caret; the caret's new column and width."""
+    """The source line as shown: invisible characters made visible, and a long line cut to a
+    window around the caret; the caret's new column and width."""
+    text = text.translate(_VISIBLE_TABLE)
     if len(text) <= MAX_EXCERPT:
         return text, column, width
     width = min(width, MAX_EXCERPT // 2)

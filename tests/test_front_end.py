@@ -152,3 +152,22 @@ def test_planted_grammar_cache_is_never_loaded(tmp_path):
                          env=env, capture_output=True, text=True, timeout=120)
     assert run.returncode == 0 and run.stdout.strip() == "1", run.stderr
     assert not marker.exists()
+
+
+def test_command_line_lists_match_the_simulator():
+    """seqlang/sim/commands.py writes these lists out to keep start-up free of numpy: keep them equal."""
+    from seqlang.sim import api, commands, noise
+    assert commands.ENGINES == api.ENGINES
+    assert commands.SOURCES == noise.SOURCES
+
+
+def test_checking_imports_neither_numpy_nor_scipy():
+    """`seqlang check` of square pulses and `seqlang --help` start without the numerical libraries."""
+    code = ("import sys\nfrom seqlang import cli\n"
+            "assert cli.main(['check', 'programs/bell_pair.seq']) == 0\n"
+            "heavy = sorted(m for m in ('numpy', 'scipy', 'qutip', 'arc', 'matplotlib') if m in sys.modules)\n"
+            "print('heavy:' + ','.join(heavy))")
+    run = subprocess.run([sys.executable, "-c", code], cwd=ROOT, capture_output=True, text=True, timeout=120,
+                         env=dict(os.environ, PYTHONPATH=str(ROOT)))
+    assert run.returncode == 0, run.stderr
+    assert run.stdout.strip().splitlines()[-1] == "heavy:"

@@ -16,11 +16,13 @@ from __future__ import annotations
 import contextlib
 import functools
 import gc
+import sys
 from importlib import resources
 
 from lark import Lark, Token, Transformer, Tree, v_args
 from lark.exceptions import UnexpectedInput
 # The LALR driver is lark's own; we only hand it our reduce callbacks (see _callbacks).
+from lark.parsers.lalr_analysis import Reduce
 from lark.parsers.lalr_parser import _Parser as _LalrDriver
 from lark.visitors import _vargs_meta
 
@@ -55,7 +57,7 @@ def parse_text(text: str, path: str) -> ast.SourceFile:
     SOURCES.add(path, text)
     lark = _lark()
     frontend = lark.parser
-    driver = _LalrDriver(frontend.parser._parse_table, _callbacks(lark, _Builder(path)))
+    driver = _LalrDriver(_fast_table(lark)[0], _callbacks(lark, _Builder(path)))
     try:
         with cyclic_gc_paused():
             result = driver.parse(frontend._make_lexer_thread(text), "start")
@@ -111,24 +113,57 @@ def _callbacks(lark: Lark, builder: "_Builder") -> dict:
     return {rule: _reducer(plan, builder) for rule, plan in _plans(lark)}
 
 
+class _TableRule:
+    """A rule as lark's LALR driver reads it from the table (``origin.name``, ``expansion``),
+    hashed and compared by identity: lark's own Rule and Token objects compare in Python
+    code, which the driver would call at every step."""
+
+    __slots__ = ("origin", "expansion")
+
+    def __init__(self, rule):
+        self.origin = _Name(sys.intern(str(rule.origin.name)))
+        self.expansion = rule.expansion
+
+
+class _Name:
+    __slots__ = ("name",)
+
+    def __init__(self, name: str):
+        self.name = name
+
+
+class _Table:
+    """The parts of a parse table the driver reads, with plain-string keys."""
+
+    __slots__ = ("states", "start_states", "end_states")
+
+    def __init__(self, states, start_states, end_states):
+        self.states, self.start_states, self.end_states = states, start_states, end_states
+
+
 @functools.lru_cache(maxsize=1)
-def _table_rules(lark: Lark) -> dict:
-    """The parse table's own Rule objects: keyed by them, the driver's callback lookup
-    succeeds on identity instead of calling Rule.__eq__ at every reduction."""
-    rules = {}
-    for actions in lark.parser.parser._parse_table.states.values():
-        for _action, arg in actions.values():
-            if not isinstance(arg, int):
-                rules.setdefault(arg, arg)
-    return rules
+def _fast_table(lark: Lark) -> tuple[_Table, dict]:
+    """Lark's parse table with plain keys, and the map from lark's rules to its rules."""
+    table = lark.parser.parser._parse_table
+    rules: dict = {}
+    for actions in table.states.values():
+        for action, arg in actions.values():
+            if action is Reduce and arg not in rules:
+                rules[arg] = _TableRule(arg)
+    states = {state: {sys.intern(str(symbol)): (action, rules[arg] if action is Reduce else arg)
+                      for symbol, (action, arg) in actions.items()}
+              for state, actions in table.states.items()}
+    return _Table(states, dict(table.start_states), dict(table.end_states)), rules
 
 
 @functools.lru_cache(maxsize=1)
 def _plans(lark: Lark) -> tuple:
     """Per rule: its name, what to do with each symbol, placeholders, and how to build it."""
     plans = []
-    table = _table_rules(lark)
-    for rule in (table.get(r, r) for r in lark.rules):
+    table_rules = _fast_table(lark)[1]
+    for rule in lark.rules:
+        if rule not in table_rules:
+            continue  # a rule the parser never reduces
         name = rule.alias or rule.origin.name
         modes = [_DROP if sym.is_term and sym.filter_out
                  else _SPLICE if (not sym.is_term and sym.name.startswith("_")) else _KEEP
@@ -136,7 +171,7 @@ def _plans(lark: Lark) -> tuple:
         nones = _placeholders(rule)
         kind = "splice" if name.startswith("_") else \
             "expand1" if rule.options.expand1 and not rule.alias else "node"
-        plans.append((rule, (name, tuple(modes), nones, kind, name in _NESTING_RULES)))
+        plans.append((table_rules[rule], (name, tuple(modes), nones, kind, name in _NESTING_RULES)))
     return tuple(plans)
 
 

@@ -143,3 +143,40 @@ def test_rendered_diagnostics_match_golden(name, monkeypatch, capsys):
     err = capsys.readouterr().err
     assert "Traceback" not in err
     check_golden(f"errors/{name}.txt", err)
+
+
+def test_a_new_rule_needs_only_a_builder_method(monkeypatch):
+    """The recipe of DEVELOPERS.md ("How to add a statement"): a grammar rule plus a method."""
+    from dataclasses import dataclass
+    from importlib import resources
+
+    from lark import Lark, v_args
+
+    from seqlang.lang import parser
+
+    grammar = resources.files("seqlang").joinpath("grammar/seqlang.lark").read_text("utf-8")
+    grammar = grammar.replace("_stmt: pulse_stmt", "_stmt: hold_stmt\n     | pulse_stmt")
+    grammar += '\nhold_stmt: "hold" NAME [expr]\n'
+    extended = Lark(grammar, parser="lalr", maybe_placeholders=True)
+
+    @dataclass(frozen=True)
+    class Hold:
+        name: ast.Ident
+        time: object
+        span: object
+
+    class Builder(parser._Builder):
+        @v_args(meta=True)
+        def hold_stmt(self, meta, children):
+            return Hold(self._ident(children[0]), children[1], self._span(meta))
+
+    monkeypatch.setattr(parser, "_lark", lambda: extended)
+    monkeypatch.setattr(parser, "_Builder", Builder)
+    tree = parse_text("sequence s {\n  wait 1 us\n  hold coil 2 ms\n  hold coil\n}\n", "h.seq")
+    hold, bare = tree.items[0].body[1:]
+    assert isinstance(hold, Hold) and hold.name.name == "coil" and hold.time.unit == "ms"
+    assert (hold.span.line, hold.span.column, hold.span.end_column) == (3, 3, 17)
+    assert bare.time is None
+    with pytest.raises(SeqlangError) as info:
+        parse_text("sequence s {\n  = 1\n}\n", "h.seq")
+    assert "a statement (hold, pulse, wait" in info.value.diagnostics[0].message

@@ -139,7 +139,7 @@ print(len(planted))
 
 def test_planted_grammar_cache_is_never_loaded(tmp_path):
     """A pickle planted where lark's cache lived in the shared temporary directory is never read."""
-    env = dict(os.environ, TMPDIR=str(tmp_path), PYTHONPATH=str(ROOT))
+    env = dict(os.environ, TMPDIR=str(tmp_path), PYTHONPATH=str(ROOT), SEQLANG_CACHE_DIR=str(tmp_path / "c"))
     marker = tmp_path / "payload-ran"
     planted = subprocess.run([sys.executable, "-c", _PLANT, str(marker), str(ROOT / "grammar" / "seqlang.lark")],
                              env=env, capture_output=True, text=True, timeout=120)
@@ -171,3 +171,50 @@ def test_checking_imports_neither_numpy_nor_scipy():
                          env=dict(os.environ, PYTHONPATH=str(ROOT)))
     assert run.returncode == 0, run.stderr
     assert run.stdout.strip().splitlines()[-1] == "heavy:"
+
+
+def _fresh_cache(tmp_path, monkeypatch):
+    from seqlang.lang import grammar_cache, parser
+    monkeypatch.setenv("SEQLANG_CACHE_DIR", str(tmp_path / "cache"))
+    text = (ROOT / "grammar" / "seqlang.lark").read_text(encoding="utf-8")
+    build = lambda: parser.Lark(text, parser="lalr", maybe_placeholders=True)  # noqa: E731
+    first = grammar_cache.cached_lark(text, build)
+    files = list((tmp_path / "cache" / "parser").glob("grammar-*.json"))
+    assert len(files) == 1
+    return grammar_cache, text, build, first, files[0]
+
+
+def test_grammar_cache_is_private_json_and_loads_the_same_tables(tmp_path, monkeypatch):
+    grammar_cache, text, build, first, path = _fresh_cache(tmp_path, monkeypatch)
+    assert os.stat(path.parent).st_mode & 0o777 == 0o700
+    assert os.stat(path).st_mode & 0o077 == 0
+    assert path.read_bytes().startswith(b"{")  # JSON, not a pickle
+    loaded = grammar_cache._load(path)
+    assert loaded is not None
+    assert loaded.parser.parser._parse_table.states == first.parser.parser._parse_table.states
+
+
+def test_grammar_cache_file_writable_by_others_or_linked_is_not_read(tmp_path, monkeypatch):
+    grammar_cache, text, build, first, path = _fresh_cache(tmp_path, monkeypatch)
+    os.chmod(path, 0o666)
+    assert grammar_cache._load(path) is None
+    os.chmod(path, 0o600)
+    link = path.with_name("grammar-link.json")
+    link.symlink_to(path)
+    assert grammar_cache._load(link) is None
+    path.write_text('{"data": "damaged"}')
+    assert grammar_cache._load(path) is None
+    rebuilt = grammar_cache.cached_lark(text, build)  # a damaged file only costs a rebuild
+    assert rebuilt is not first and rebuilt.parse("let t = 2 ns") == first.parse("let t = 2 ns")
+
+
+def test_grammar_cache_directory_of_another_owner_is_not_used(tmp_path, monkeypatch):
+    grammar_cache, text, build, first, path = _fresh_cache(tmp_path, monkeypatch)
+    if os.getuid() != 0:
+        os.chmod(path.parent, 0o777)  # cannot give it away without root: loosen it instead
+    else:
+        os.chown(path.parent, 65534, -1)
+    assert grammar_cache._private_directory() is None
+    calls = []
+    grammar_cache.cached_lark(text, lambda: calls.append(1) or build())
+    assert calls == [1]

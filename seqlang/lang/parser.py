@@ -29,6 +29,7 @@ from lark.visitors import _vargs_meta
 from . import syntax as ast
 from . import source_text
 from .diagnostics import SOURCES, SeqlangError, Span, error
+from .grammar_cache import cached_lark
 from .syntax_errors import syntax_error, token_span as _token_span
 
 # Blocks (`{ }` bodies) and expression operators nest at most this deep; deeper text
@@ -42,9 +43,9 @@ _NESTING_RULES = frozenset({"body", "add", "sub", "mul", "div", "pow", "neg", "w
 @functools.lru_cache(maxsize=1)
 def _lark() -> Lark:
     text = resources.files("seqlang").joinpath("grammar/seqlang.lark").read_text("utf-8")
-    # No cache: building the tables takes about 0.1 s, and lark's cache would unpickle a
-    # file from the shared temporary directory (a planted file there could run code).
-    return Lark(text, parser="lalr", maybe_placeholders=True, cache=False)
+    # Not lark's own cache: it unpickles a file from the shared temporary directory, where
+    # a planted file could run code. Ours is JSON in a private directory (grammar_cache).
+    return cached_lark(text, lambda: Lark(text, parser="lalr", maybe_placeholders=True, cache=False))
 
 
 def parse_text(text: str, path: str) -> ast.SourceFile:

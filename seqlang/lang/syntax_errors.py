@@ -15,7 +15,7 @@ from lark import Lark, Token
 from lark.exceptions import UnexpectedCharacters, UnexpectedEOF, UnexpectedInput, UnexpectedToken
 from lark.lexer import PatternStr
 
-from .diagnostics import Diagnostic, Span, error, shorten
+from .diagnostics import Diagnostic, SeqlangError, Span, error, shorten
 from .source_text import NOT_LINE_ENDS, split_lines
 
 _WORDS = {
@@ -40,7 +40,7 @@ def syntax_error(exc: UnexpectedInput, text: str, path: str, lark: Lark) -> Diag
     """The diagnostic for one lark exception."""
     if isinstance(exc, UnexpectedCharacters):
         return _bad_character(exc, text, path)
-    expected = set(getattr(exc, "accepts", None) or getattr(exc, "expected", None) or ())
+    expected = _expected_terminals(exc)
     token = getattr(exc, "token", None)
     at_end = isinstance(exc, UnexpectedEOF) or token is None or token.type == "$END"
     if "RBRACE" in expected and (at_end or token.type in _top_level_keywords(lark)):
@@ -56,6 +56,14 @@ def syntax_error(exc: UnexpectedInput, text: str, path: str, lark: Lark) -> Diag
         return error(f"unexpected end of file; expected {_describe_expected(expected, lark)}", span)
     return error(f"unexpected {_token_words(token)}; expected {_describe_expected(expected, lark)}",
                  token_span(token, path), _token_hint(token, expected))
+
+
+def _expected_terminals(exc: UnexpectedInput) -> set[str]:
+    """What the parser could have taken here (lark tries each terminal on a copy of the parse)."""
+    try:
+        return set(getattr(exc, "accepts", None) or getattr(exc, "expected", None) or ())
+    except SeqlangError:  # trying a terminal crossed the nesting limit: take lark's raw list
+        return set(getattr(exc, "expected", None) or ())
 
 
 # ---- characters -------------------------------------------------------------------

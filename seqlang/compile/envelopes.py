@@ -7,11 +7,12 @@ from __future__ import annotations
 
 import functools
 import math
-
-import numpy as np
-from scipy import integrate, optimize
+from typing import TYPE_CHECKING
 
 from ..program.model import Shape
+
+if TYPE_CHECKING:
+    import numpy as np
 
 SHAPES = ("square", "ramped", "gaussian", "blackman")
 # Parameters each shape accepts; durations in seconds.
@@ -21,6 +22,7 @@ DEFAULT_GAUSSIAN_SIGMA_FRACTION = 0.25  # σ = T/4: the pulse spans ±2σ
 
 def envelope(shape: Shape, duration_s: float, t: np.ndarray | float) -> np.ndarray:
     """Envelope values (peak 1) at times t within [0, duration]."""
+    import numpy as np  # imported where used: `seqlang check` of square pulses starts without it
     t = np.asarray(t, dtype=float)
     if shape.kind == "square":
         return np.ones_like(t)
@@ -37,6 +39,7 @@ def envelope(shape: Shape, duration_s: float, t: np.ndarray | float) -> np.ndarr
 
 def _ramped(ramp: float, duration: float, t: np.ndarray) -> np.ndarray:
     """Flat top with sin² ramps of length `ramp` at both ends (common practice)."""
+    import numpy as np
     if ramp <= 0:
         return np.ones_like(t)
     up = np.clip(t / ramp, 0.0, 1.0)
@@ -49,6 +52,7 @@ def area_factor(shape: Shape, duration_s: float) -> float:
     """∫₀ᵀ f(t) dt in seconds for the envelope of peak 1."""
     if shape.kind == "square":
         return duration_s
+    from scipy import integrate
     value, _ = integrate.quad(lambda t: float(envelope(shape, duration_s, t)), 0.0, duration_s,
                               epsabs=0.0, epsrel=1e-12, limit=200)
     return value
@@ -72,6 +76,7 @@ def duration_for_area(shape: Shape, area_rad: float, rabi_hz: float) -> float:
         if high > 1e6 * target:
             raise ValueError(f"a {shape.kind} envelope with these parameters cannot reach this area")
         high *= 2
+    from scipy import optimize
     return optimize.brentq(lambda T: area_factor(shape, T) - target, 1e-15, high, xtol=1e-18, rtol=1e-13)
 
 

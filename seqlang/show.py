@@ -38,7 +38,9 @@ def compile_summary(checked: Checked) -> str:
         f"total {_f(checked.quantized.duration_s, units.DURATION)}",
         f"latency compensation shifted the sequence by {plan.shift_ticks} ticks "
         f"({_f(plan.shift_s, units.DURATION)})" if plan.shift_ticks else "no latency shift needed",
-        f"largest residual pulse-area error after tick and amplitude rounding: {report.max_area_error_rad:.3g} rad",
+        f"largest residual pulse-area error after tick and amplitude rounding: {report.max_area_error_rad:.3g} rad"
+        + (f"; detuning scaled with the Rabi frequency on {len(report.detuning_changes_hz)} pulse(s), "
+           f"by up to {_f(report.max_detuning_change_hz, units.FREQUENCY)}" if report.detuning_changes_hz else ""),
         f"largest timing rounding: {_f(report.max_timing_error_s, units.DURATION)}"
         + (f"; {report.stretched} pulse(s) lengthened by one tick to stay under the drive maximum, "
            f"moving later events by up to {_f(report.max_stretch_shift_s, units.DURATION)}"

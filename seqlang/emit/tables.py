@@ -108,6 +108,8 @@ def timing_json(checked: Checked) -> str:
             "pulses_stretched_one_tick": report.stretched,
             "max_stretch_shift_ns": _num(report.max_stretch_shift_s * 1e9),
             "area_error_rad": {str(i): _num(err) for i, err in report.area_errors_rad},
+            "max_detuning_change_hz": _num(report.max_detuning_change_hz),
+            "detuning_change_hz": {str(i): _num(d) for i, d in report.detuning_changes_hz},
         },
         "ports": {port: [_port_entry(checked, e) for e in events] for port, events in plan.ports.items()},
         "timeline": [timeline_entry(checked, e) for e in checked.quantized.events],

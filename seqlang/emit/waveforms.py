@@ -21,7 +21,7 @@ _FIXED_TIME = (1980, 1, 1, 0, 0, 0)
 
 def sample(event: Event, sample_rate_hz: float) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
     """Sample times (s from pulse start), Rabi frequency (Hz) and phase (rad)."""
-    count = max(2, int(round(event.duration_s * sample_rate_hz)) + 1)
+    count = envelopes.sample_count(event.duration_s, sample_rate_hz)
     t = np.linspace(0.0, event.duration_s, count)
     rabi = event.rabi_hz * envelopes.envelope(event.shape, event.duration_s, t)
     return t, rabi, np.full(count, event.phase_rad)

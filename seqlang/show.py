@@ -45,7 +45,9 @@ def compile_summary(checked: Checked) -> str:
         + (f"; {report.stretched} pulse(s) lengthened by one tick to stay under the drive maximum, "
            f"moving later events by up to {_f(report.max_stretch_shift_s, units.DURATION)}"
            if report.stretched else ""),
-    ])
+    ] + ([f"{plan.holds} hold row(s) split gaps longer than the sequencer's duration counter "
+          f"({2 ** checked.program.rig.counter_bits - 1:,} ticks = "
+          f"{_f((2 ** checked.program.rig.counter_bits - 1) * plan.tick_s, units.DURATION)})"] if plan.holds else []))
 
 
 def pair_table(program: Program) -> str:

@@ -8,7 +8,7 @@ from ..lang.diagnostics import SeqlangError, error
 from ..program.model import ImageOp, PortOp, Program, PulseOp, RepeatOp, SerialOp, TogetherOp, WaitOp
 from .timeline import IMAGE, PULSE, Event, Timeline
 
-MAX_EVENTS = 5_000_000
+MAX_EVENTS = 5_000_000  # after expanding repeats; waits count too (each is work to place)
 
 
 def lower(program: Program) -> Timeline:
@@ -36,6 +36,7 @@ def duration_of(op) -> float:
 class _Placer:
     def __init__(self, program: Program, events: list[Event]):
         self.program, self.events = program, events
+        self.placed = 0  # events and waits placed so far
 
     def place(self, op, start: float) -> None:
         if isinstance(op, SerialOp):
@@ -46,7 +47,10 @@ class _Placer:
             self._together(op, start)
         elif isinstance(op, RepeatOp):
             self._repeat(op, start)
-        elif not isinstance(op, WaitOp):
+        elif isinstance(op, WaitOp):
+            self.placed += 1
+        else:
+            self.placed += 1
             self._emit(op, start)
 
     def _together(self, op: TogetherOp, start: float) -> None:
@@ -58,8 +62,11 @@ class _Placer:
 
     def _repeat(self, op: RepeatOp, start: float) -> None:
         period = duration_of(op.body)
-        if op.count * _count_events(op.body) + len(self.events) > MAX_EVENTS:
-            raise SeqlangError([error(f"this repetition makes more than {MAX_EVENTS:,} events", op.span)])
+        if _count_events(op.body) == 0:
+            return  # an empty body places nothing, however often
+        if op.count * _count_events(op.body) + self.placed > MAX_EVENTS:
+            raise SeqlangError([error(f"this repetition makes more than {MAX_EVENTS:,} events "
+                                      "(waits included)", op.span)])
         for i in range(op.count):
             self.place(op.body, start + i * period)
 
@@ -83,7 +90,8 @@ class _Placer:
 
 
 def _count_events(op) -> int:
-    if isinstance(op, (PulseOp, ImageOp, PortOp)):
+    """Events and waits after expansion (waits cost placing time even though they make no event)."""
+    if isinstance(op, (PulseOp, ImageOp, PortOp, WaitOp)):
         return 1
     if isinstance(op, (SerialOp, TogetherOp)):
         return sum(_count_events(o) for o in op.body)

@@ -107,6 +107,7 @@ def timing_json(checked: Checked) -> str:
             "max_timing_error_ns": _num(report.max_timing_error_s * 1e9),
             "pulses_stretched_one_tick": report.stretched,
             "max_stretch_shift_ns": _num(report.max_stretch_shift_s * 1e9),
+            "hold_rows": plan.holds,
             "area_error_rad": {str(i): _num(err) for i, err in report.area_errors_rad},
             "max_detuning_change_hz": _num(report.max_detuning_change_hz),
             "detuning_change_hz": {str(i): _num(d) for i, d in report.detuning_changes_hz},

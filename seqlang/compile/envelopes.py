@@ -35,7 +35,7 @@ def envelope(shape: Shape, duration_s: float, t: np.ndarray | float) -> np.ndarr
         return np.ones_like(t)
     if shape.kind == "gaussian":
         sigma = _sigma(shape, duration_s)
-        return np.exp(-((t - duration_s / 2) ** 2) / (2 * sigma**2))
+        return np.exp(-0.5 * ((t - duration_s / 2) / sigma) ** 2)  # σ² itself may overflow
     if shape.kind == "blackman":
         x = 2 * np.pi * t / duration_s
         return 0.42 - 0.5 * np.cos(x) + 0.08 * np.cos(2 * x)
@@ -79,8 +79,10 @@ def _closed_form_area(shape: Shape, duration: float) -> float | None:
             return duration
         if duration >= 2 * ramp:
             return duration - ramp  # each sin² ramp holds half its length
-        # The ramps meet before reaching the top: 2·∫₀^{T/2} sin²(πt/2r) dt.
-        return duration / 2 - ramp / math.pi * math.sin(math.pi * duration / (2 * ramp))
+        # The ramps meet before reaching the top: 2·∫₀^{T/2} sin²(πt/2r) dt = (r/π)(u − sin u).
+        u = math.pi * duration / (2 * ramp)
+        u_minus_sin = u**3 / 6 * (1 - u**2 / 20 + u**4 / 840) if u < 1e-2 else u - math.sin(u)
+        return ramp / math.pi * u_minus_sin
     return None
 
 
@@ -106,6 +108,8 @@ def pulse_area(shape: Shape, duration_s: float, rabi_hz: float) -> float:
 def duration_for_area(shape: Shape, area_rad: float, rabi_hz: float) -> float:
     """The duration whose pulse area is `area_rad` at peak Rabi frequency `rabi_hz`."""
     target = area_rad / (2 * math.pi * rabi_hz)
+    if not math.isfinite(target):
+        raise OverflowError("the duration for this area is not a finite number")
     if shape.kind == "square":
         return target
     if _scales_with_duration(shape):

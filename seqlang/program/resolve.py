@@ -54,6 +54,10 @@ def _read(path: str, span: Span | None, hashes: dict[str, str], diags: list[Diag
           sources: Mapping[str, str]) -> ast.SourceFile | None:
     try:
         raw = sources[path].encode("utf-8") if path in sources else _read_bytes(path)
+    except ValueError:  # a path holding a null byte
+        diags.append(error("this file name holds a character that no file name can hold",
+                           span or Span(path, 1, 1, 1, 1)))
+        return None
     except OSError as exc:
         where = span or Span(path, 1, 1, 1, 1)
         diags.append(error(f"cannot read `{path}`: {exc.strerror or exc}", where))

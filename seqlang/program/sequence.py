@@ -267,6 +267,19 @@ class SequenceResolver:
         return names
 
     def _timing(self, v: dict, shape: Shape, drive: Drive, stmt: ast.PulseStmt):
+        """Two of area, duration and Rabi frequency give the third; all three finite and positive."""
+        try:
+            duration, rabi, area = self._derive_timing(v, shape, drive, stmt)
+        except (ZeroDivisionError, OverflowError):
+            duration, rabi, area = math.nan, math.nan, math.nan
+        for name, value in (("duration", duration), ("Rabi frequency", rabi), ("area", area)):
+            if not (math.isfinite(value) and value > 0):
+                raise EvalError(error(f"the {name} this pulse would need is not a positive finite number "
+                                      "(the other values given are too far apart)", stmt.span,
+                                      "check the `area`, `duration` and `rabi` given"))
+        return duration, rabi, area
+
+    def _derive_timing(self, v: dict, shape: Shape, drive: Drive, stmt: ast.PulseStmt):
         """Two of area, duration and Rabi frequency give the third."""
         area, duration, rabi = v["area"], v["duration"], v["rabi"]
         spans = v["__spans__"]

@@ -185,7 +185,7 @@ def generated_dir(tmp_path_factory):
     return folder
 
 
-@settings(max_examples=250, deadline=None, derandomize=True, database=None,
+@settings(max_examples=150, deadline=None, derandomize=True, database=None,
           suppress_health_check=[HealthCheck.too_slow, HealthCheck.function_scoped_fixture])
 @given(text=programs())
 def test_well_formed_programs_compile_to_finite_tables_or_are_diagnosed(generated_dir, text):

@@ -67,7 +67,8 @@ def quantize(program: Program, timeline: Timeline) -> tuple[Timeline, QuantizeRe
         else:
             event = evolve(event, start_s=start * tick, duration_s=(end - start) * tick)
         events.append(event)
-    total = (math.ceil(round(timeline.duration_s / tick, 6)) + len(stretch_ends)) * tick
+    # The end of the sequence is rounded like every event end, so a last pulse ending on it ends the total.
+    total = (round(timeline.duration_s / tick) + len(stretch_ends)) * tick
     total = max([total] + [e.end_s for e in events])
     report = QuantizeReport(tuple(errors), max((abs(e) for _, e in errors), default=0.0), worst_time,
                             len(stretch_ends), len(stretch_ends) * tick, tuple(detunings),

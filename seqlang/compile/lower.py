@@ -4,16 +4,23 @@
 """
 from __future__ import annotations
 
+from ..lang import units
 from ..lang.diagnostics import SeqlangError, error
 from ..program.model import ImageOp, PortOp, Program, PulseOp, RepeatOp, SerialOp, TogetherOp, WaitOp
 from .timeline import IMAGE, PULSE, Event, Timeline
 
 MAX_EVENTS = 5_000_000  # after expanding repeats; waits count too (each is work to place)
+MAX_TICKS = 2 ** 53  # exact integer arithmetic on tick numbers (float mantissa)
 
 
 def lower(program: Program) -> Timeline:
     """Place every operation in time; the result is sorted by start."""
     events: list[Event] = []
+    culprit = _too_long(program.body, program.rig.tick_s)
+    if culprit is not None:
+        raise SeqlangError([error(f"this makes the sequence last {units.format_quantity(duration_of(culprit), units.DURATION)}"
+                                  f", beyond 2^53 ticks ({units.format_quantity(MAX_TICKS * program.rig.tick_s, units.DURATION)})"
+                                  ", where tick arithmetic stops being exact", culprit.span)])
     _Placer(program, events).place(program.body, 0.0)
     total = duration_of(program.body)
     events.sort(key=lambda e: (e.start_s, e.index))
@@ -62,11 +69,13 @@ class _Placer:
 
     def _repeat(self, op: RepeatOp, start: float) -> None:
         period = duration_of(op.body)
-        if _count_events(op.body) == 0:
-            return  # an empty body places nothing, however often
-        if op.count * _count_events(op.body) + self.placed > MAX_EVENTS:
+        work = op.count * _count_events(op.body)
+        if work + self.placed > MAX_EVENTS:
             raise SeqlangError([error(f"this repetition makes more than {MAX_EVENTS:,} events "
                                       "(waits included)", op.span)])
+        if not _makes_events(op.body):
+            self.placed += work  # waits only: nothing to place, however often
+            return
         for i in range(op.count):
             self.place(op.body, start + i * period)
 
@@ -87,6 +96,30 @@ class _Placer:
             port = rig.ports[op.port]
             self.events.append(Event(index, op.action, start, op.duration_s, port.channel, op.span,
                                      value=op.value))
+
+
+def _makes_events(op) -> bool:
+    if isinstance(op, (PulseOp, ImageOp, PortOp)):
+        return True
+    if isinstance(op, (SerialOp, TogetherOp)):
+        return any(_makes_events(o) for o in op.body)
+    if isinstance(op, RepeatOp):
+        return _makes_events(op.body)
+    return False
+
+
+def _too_long(op, tick: float):
+    """The innermost operation that takes the sequence beyond MAX_TICKS, or None."""
+    if duration_of(op) / tick < MAX_TICKS:
+        return None
+    children = op.body.body if isinstance(op, RepeatOp) else getattr(op, "body", ())
+    if isinstance(op, RepeatOp) and duration_of(op.body) / tick < MAX_TICKS:
+        return op
+    for child in children:
+        found = _too_long(child, tick)
+        if found is not None:
+            return found
+    return op
 
 
 def _count_events(op) -> int:

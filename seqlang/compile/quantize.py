@@ -18,6 +18,7 @@ from ..lang import units
 from ..lang.diagnostics import Diagnostic, error
 from ..program.model import Drive, Program
 from . import envelopes
+from .lower import MAX_TICKS  # exact integer tick arithmetic up to 2**53
 from .timeline import PULSE, Event, Timeline, evolve
 
 
@@ -34,8 +35,6 @@ class QuantizeReport:
     max_detuning_change_hz: float = 0.0
 
 
-# Exact integer arithmetic on tick numbers holds up to 2**53 (float mantissa).
-MAX_TICKS = 2 ** 53
 
 
 def quantize(program: Program, timeline: Timeline) -> tuple[Timeline, QuantizeReport, list[Diagnostic]]:

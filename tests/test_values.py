@@ -117,3 +117,12 @@ def test_sixty_four_nested_blocks_are_fine(tmp_path):
     blocks = "".join(f"block b{i}() {{\n  do b{i + 1}()\n}}\n" for i in range(63)) + \
         "block b63() {\n  pulse mw_cs area pi\n}\n"
     assert len(check(bench_program(tmp_path, "  do b0()", tail=blocks)).quantized.events) == 1
+
+
+def test_total_ends_with_the_last_pulse(tmp_path):
+    """385 ns is 192.5 ticks: the pulse ends at tick 192 (384 ns) and so does the sequence (issue 17)."""
+    from seqlang.show import compile_summary
+    checked = check(bench_program(tmp_path, "  pulse mw_cs duration 385 ns rabi 10 kHz"))
+    assert checked.quantized.events[-1].end_s == pytest.approx(384e-9, abs=1e-15)
+    assert checked.quantized.duration_s == pytest.approx(384e-9, abs=1e-15)
+    assert "total 384 ns (written 385 ns −" in compile_summary(checked)

@@ -13,6 +13,7 @@ from __future__ import annotations
 
 import argparse
 import collections
+import os
 import random
 import sys
 import tempfile
@@ -37,7 +38,9 @@ def main(argv: list[str] | None = None) -> int:
     slowest = (0.0, "")
     started = time.perf_counter()
     with tempfile.TemporaryDirectory(prefix="seqlang-fuzz-") as scratch:
-        tree = fuzzing.scratch_tree(Path(scratch))
+        # Mutated Rydberg levels must not fill the user's atomic-data cache.
+        os.environ["SEQLANG_CACHE_DIR"] = str(Path(scratch) / "atomic-cache")
+        tree = fuzzing.scratch_tree(Path(scratch) / "corpus")
         for number in range(args.cases):
             case = fuzzing.make_case(rng, tree, number)
             began = time.perf_counter()

@@ -35,6 +35,15 @@ TIME_BOUND_S = 10.0  # per case; normal cases take ~10 ms
 GOOD = ("ok", "diagnosed")
 
 
+@pytest.fixture(scope="module", autouse=True)
+def private_atomic_data_cache(tmp_path_factory):
+    """Mutated Rydberg levels must not fill the user's atomic-data cache."""
+    from seqlang.atoms import cache
+    with pytest.MonkeyPatch.context() as patch:
+        patch.setenv(cache.CACHE_DIR_ENV, str(tmp_path_factory.mktemp("atomic-cache")))
+        yield
+
+
 @pytest.fixture(scope="module")
 def tree(tmp_path_factory):
     return fuzzing.scratch_tree(tmp_path_factory.mktemp("corpus"))

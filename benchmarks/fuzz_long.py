@@ -54,8 +54,9 @@ def main(argv: list[str] | None = None) -> int:
                 if args.save and not outcome.kind.startswith("known:"):
                     args.save.mkdir(parents=True, exist_ok=True)
                     (args.save / f"case{number}.txt").write_text(case.text, encoding="utf-8", newline="")
-            if (number + 1) % 5000 == 0:
-                print(f"  {number + 1:,} cases, {time.perf_counter() - started:.0f} s", file=sys.stderr)
+            if (number + 1) % 2500 == 0:
+                print(f"  {number + 1:,} cases, {time.perf_counter() - started:.0f} s: "
+                      f"{dict(sorted(counts.items()))}", file=sys.stderr, flush=True)
     elapsed = time.perf_counter() - started
     _print_summary(args, counts, places, elapsed, slowest)
     failures = sum(n for kind, n in counts.items() if kind not in ("ok", "diagnosed") and not kind.startswith("known:"))

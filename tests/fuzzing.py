@@ -43,6 +43,7 @@ CORPUS_DIRS = ("programs", "tests/bad", "tests/golden/inputs", "benchmarks/progr
 
 HEADER = re.compile(r"^(?P<file>.+?):(?P<line>\d+):(?P<col>\d+): (?P<sev>error|warning|note): (?P<msg>.+)$")
 COUNT_LINE = re.compile(r"^\d+ errors?$")
+INTERNAL_ERROR = 70  # the command line's exit code for a bug in seqlang
 
 # Characters where str.splitlines() and the parser's line counting may disagree.
 ODD_LINE_BREAKS = "\r\x0b\x0c\x1c\x1d\x1e\x85\u2028\u2029"
@@ -86,8 +87,8 @@ class Outcome:
     detail: str = ""  # where a crash happened, or what was wrong with a message
 
 
-class _Hang(Exception):
-    pass
+class _Hang(BaseException):
+    """Raised by the time bound; a BaseException so that no `except Exception` in seqlang swallows it."""
 
 
 def corpus_files() -> list[Path]:
@@ -202,17 +203,30 @@ def run_check(path: Path, time_bound_s: float) -> tuple[int | None, str, str, Ba
     def on_alarm(signum, frame):
         raise _Hang()
 
+    # The command line turns an uncaught exception into exit 70 ("a bug in seqlang");
+    # keep the exception itself, so that its place can be named.
+    internal: list[BaseException] = []
+    report_internal = getattr(cli, "_internal_error", None)
+
+    def keep(exc):
+        internal.append(exc)
+        return report_internal(exc)
+
     previous = signal.signal(signal.SIGALRM, on_alarm)
     signal.setitimer(signal.ITIMER_REAL, time_bound_s)
+    if report_internal is not None:
+        cli._internal_error = keep
     try:
         with contextlib.redirect_stdout(out), contextlib.redirect_stderr(err):
             code = cli.main(["check", str(path)])
-        return code, out.getvalue(), err.getvalue(), None
+        return code, out.getvalue(), err.getvalue(), (internal[0] if internal else None)
     except BaseException as exc:  # noqa: BLE001 - classifying every escape is the point
         return None, out.getvalue(), err.getvalue(), exc
     finally:
         signal.setitimer(signal.ITIMER_REAL, 0)
         signal.signal(signal.SIGALRM, previous)
+        if report_internal is not None:
+            cli._internal_error = report_internal
 
 
 def classify(text: str, code: int | None, stdout: str, stderr: str, exc: BaseException | None) -> Outcome:
@@ -226,6 +240,11 @@ def classify(text: str, code: int | None, stdout: str, stderr: str, exc: BaseExc
         return _known_or(text, "crash", f"{type(exc).__name__} at {where}: {str(exc)[:120]}", in_parser)
     if code == 0:
         return Outcome("ok") if ": ok (" in stdout else Outcome("bad-shape", "exit 0 without `ok`")
+    if code == INTERNAL_ERROR:  # from a subprocess run with SEQLANG_TRACEBACK=1
+        frames = re.findall(r'File "[^"]*/(seqlang/[^"]+)", line (\d+)', stderr)
+        where = ":".join(frames[-1]) if frames else "outside seqlang"
+        in_parser = "seqlang/lang/" in where or "RecursionError" in stderr
+        return _known_or(text, "crash", f"exit {code} at {where}", in_parser)
     if code != 1:
         return Outcome(f"exit-{code}", stderr[-300:])
     problem = message_shape_problem(stderr)

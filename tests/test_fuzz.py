@@ -18,6 +18,7 @@ from __future__ import annotations
 import collections
 import json
 import math
+import os
 import random
 import subprocess
 import sys
@@ -81,10 +82,12 @@ def test_real_command_line_on_mutants(tree):
     for number in range(CLI_MUTANTS):
         case = fuzzing.make_case(rng, tree, number)
         run = subprocess.run([sys.executable, "-m", "seqlang", "check", str(case.path)],
-                             capture_output=True, text=True, timeout=60)
+                             capture_output=True, text=True, timeout=60,
+                             env={**os.environ, "SEQLANG_TRACEBACK": "1"})
         outcome = fuzzing.classify(case.text, run.returncode, run.stdout, run.stderr, None)
         if outcome.kind.startswith("known:"):
             continue
+        assert outcome.kind in GOOD, (outcome, case.text[:500], run.stderr[-2000:])
         assert "Traceback" not in run.stderr, run.stderr[-2000:]
         assert outcome.kind in GOOD, (outcome, case.text[:500], run.stderr[-1000:])
 

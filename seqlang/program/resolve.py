@@ -60,6 +60,10 @@ def _read(path: str, span: Span | None, hashes: dict[str, str], diags: list[Diag
     except includes.FileRefused as exc:
         diags.append(error(str(exc), span or Span(path, 1, 1, 1, 1)))
         return None
+    except ValueError:  # a path holding a null byte
+        diags.append(error("this file name holds a character that no file name can hold",
+                           span or Span(path, 1, 1, 1, 1)))
+        return None
     except OSError as exc:
         where = span or Span(path, 1, 1, 1, 1)
         diags.append(error(f"cannot read `{path}`: {exc.strerror or exc}", where))

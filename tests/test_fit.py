@@ -121,11 +121,11 @@ def _cli(*args, cwd):
 
 def test_fit_then_calibrate_the_rig(rabi_scan):
     tmp, _, _ = rabi_scan
-    data = ROOT / "programs/measured_rydberg_rabi.csv"
+    data = ROOT / "programs/measured/rydberg_rabi.csv"
     fitted = _cli("fit", "out", "--data", str(data), "--model", "rabi", cwd=tmp)
     assert fitted.returncode == 0, fitted.stderr
     assert "chi2 against the simulation" in fitted.stdout and (tmp / "out/fit/bright_bright_a.png").exists()
-    # The invented measurement was drawn at 1.24 MHz (programs/measured_rydberg_rabi.csv).
+    # The invented measurement was drawn at 1.24 MHz (programs/measured/rydberg_rabi.csv).
     dry = _cli("calibrate", "out/fit/fit.json", "--rig", "millpond.rig", "--drive", "ryd_na", cwd=tmp)
     assert dry.returncode == 0, dry.stderr
     assert "-    rabi 1.3 MHz" in dry.stdout and "not applied" in dry.stdout

@@ -16,8 +16,6 @@ from __future__ import annotations
 import math
 from dataclasses import dataclass, replace
 
-import numpy as np
-
 from ..lang import syntax as ast
 from ..lang import units
 from ..lang.diagnostics import Diagnostic, Span, did_you_mean, error
@@ -69,7 +67,11 @@ class ScanSpace:
 
     def position(self, index: int) -> tuple[int, ...]:
         """Position of point `index` along each dimension; the first declared varies slowest."""
-        return tuple(int(i) for i in np.unravel_index(index, self.shape))
+        out = []
+        for size in reversed(self.shape):  # C order, as numpy.unravel_index
+            index, at = divmod(index, size)
+            out.append(at)
+        return tuple(reversed(out))
 
     def point(self, index: int) -> dict[str, float]:
         """The SI value of every scanned name at point `index`."""
@@ -158,6 +160,7 @@ def _range(spec: ast.ScanRange) -> list[Quantity]:
     if spacing not in SPACINGS:
         raise EvalError(error(f"unknown spacing `{spacing}`", spec.spacing.span,
                               did_you_mean(spacing, SPACINGS) or "use `linear` or `log`"))
+    import numpy as np  # here: checking a file without ranges stays free of numpy
     if spacing == "log":
         if low.value * high.value <= 0:
             raise EvalError(error("a log-spaced scan needs both ends nonzero and of one sign", spec.span))

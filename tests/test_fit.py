@@ -147,3 +147,8 @@ def test_fit_rejects_a_malformed_measurement_with_a_caret(rabi_scan, tmp_path):
     assert result.returncode == 1
     assert "bad.csv:2:5: error: `bright_bright_a` takes whole numbers from 0, not -3" in result.stderr
     assert "^^" in result.stderr and "Traceback" not in result.stderr
+
+
+def test_command_line_model_list_matches_the_models():
+    from seqlang.fit import commands, models
+    assert commands.MODELS == models.MODELS

@@ -4,9 +4,7 @@ from __future__ import annotations
 import json
 import os
 
-import numpy as np
-
-from .models import MODELS
+MODELS = ("rabi", "ramsey", "resonance", "blockade", "sqrt_n")  # as fit.models.MODELS, without numpy
 
 
 def register(sub) -> None:
@@ -70,6 +68,7 @@ def cmd_fit(args) -> int:
 
 def compare(ds, measured, model: str | None, envelope: str = "gaussian") -> dict:
     """χ² of the measured counts against the simulated scan, and the fits of `model`."""
+    import numpy as np
     from ..lang.diagnostics import SeqlangError, Span, error
     from ..lang import units
     from .fitting import binomial_sigma, fit_counts

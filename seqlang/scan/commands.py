@@ -6,8 +6,7 @@ import sys
 
 
 def register(sub) -> None:
-    from ..sim.api import ENGINES
-    from ..sim.noise import SOURCES
+    from ..sim.commands import ENGINES, SOURCES  # written-out lists: start-up without numpy
     p = sub.add_parser("scan", help="compile (and simulate) every point of a scan into DIR: tables, "
                                     "points.csv, results.zarr")
     p.add_argument("file", help="a sequence file (*.seq) with `scan` declarations")

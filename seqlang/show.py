@@ -9,24 +9,35 @@ from .lang import units
 from .program.model import Program
 
 
-def _f(value: float, dim) -> str:
-    return units.format_quantity(value, dim)
+def pretty_unit(unit: str) -> str:
+    """The printed form of a unit: the input language writes `us`, people read `µs`."""
+    return "µ" + unit[1:] if unit in ("us", "um", "uK", "uW") else unit
+
+
+def quantity(value: float, dim) -> str:
+    """`value` (SI) with the largest unit that keeps it at or above 1, µ written as µ."""
+    text = units.format_quantity(value, dim)
+    number, _, unit = text.partition(" ")
+    return f"{number} {pretty_unit(unit)}" if unit else text
+
+
+_f = quantity
 
 
 def timeline_table(checked: Checked) -> str:
     """One line per event of the played timeline."""
     head = f"{'#':>4}  {'start':>12}  {'duration':>11}  {'kind':<7} {'drive/port':<12} {'targets':<10} " \
-           f"{'rabi':>11}  {'detuning':>11}  {'phase':>8}  {'area':>9}  {'shape':<9} line"
+           f"{'rabi':>11}  {'detuning':>11}  {'phase/rad':>9}  {'area':>9}  {'shape':<9} line"
     lines = [head, "-" * len(head)]
     for e in checked.quantized.events:
         who = e.drive or e.port
         rabi = _f(e.rabi_hz, units.FREQUENCY) if e.kind == "pulse" else ""
         det = _f(e.detuning_hz, units.FREQUENCY) if e.kind == "pulse" else ""
-        phase = f"{e.phase_rad:.4f}" if e.kind == "pulse" else ""
-        area = f"{e.area_rad / math.pi:.5f}pi" if e.kind == "pulse" else ""
+        phase = f"{e.phase_rad:+.4f}" if e.kind == "pulse" else ""
+        area = f"{e.area_rad / math.pi:.5f}π" if e.kind == "pulse" else ""
         shape = e.shape.kind if e.kind == "pulse" else (e.record or "")
         lines.append(f"{e.index:>4}  {_f(e.start_s, units.DURATION):>12}  {_f(e.duration_s, units.DURATION):>11}  "
-                     f"{e.kind:<7} {who:<12} {','.join(e.targets):<10} {rabi:>11}  {det:>11}  {phase:>8}  "
+                     f"{e.kind:<7} {who:<12} {','.join(e.targets):<10} {rabi:>11}  {det:>11}  {phase:>9}  "
                      f"{area:>9}  {shape:<9} {e.span.line}")
     return "\n".join(lines)
 
@@ -59,7 +70,7 @@ def pair_table(program: Program) -> str:
                     if d.kind == "rydberg" and d.species in (a.species, b.species)), default=1e6)
         radius = rydberg.blockade_radius_m(c6, rabi)
         flag = "  near a Förster resonance: C6 not to be trusted" if c6.near_forster else ""
-        rows.append(f"{a.name}-{b.name}: R = {_f(distance, units.LENGTH)}, C6/h = {c6.c6_hz_m6 * 1e27:.4g} GHz·um^6, "
+        rows.append(f"{a.name}-{b.name}: R = {_f(distance, units.LENGTH)}, C6/h = {c6.c6_hz_m6 * 1e27:.4g} GHz·µm⁶, "
                     f"V/h = {_f(rydberg.interaction_hz(c6, distance), units.FREQUENCY)}, "
                     f"blockade radius {_f(radius, units.LENGTH)} at {_f(rabi, units.FREQUENCY)}{flag}")
     return "\n".join(rows)

@@ -71,12 +71,25 @@ def cmd_plot(args) -> int:
     sequence = _load(args.file)
     if args.what == "timeline":
         from .plot.timeline import plot_timeline
-        plot_timeline(sequence.checked, args.output)
+        plot_timeline(sequence.checked, args.output, piecewise=not args.linear_time)
     else:
         from .plot.results import plot_results
-        plot_results(sequence, args.what, args.output)
+        plot_results(sequence, args.what, args.output, piecewise=not args.linear_time,
+                     **_plot_simulation_options(args))
     print(f"wrote {args.output}")
     return EXIT_OK
+
+
+def _plot_simulation_options(args) -> dict:
+    """simulate() options from `plot`'s flags; error bars stand for --shots repetitions."""
+    from .sim.noise import parse_sources
+    try:
+        sources = parse_sources(args.noise)
+    except ValueError as exc:
+        raise UsageError(str(exc)) from None
+    if args.shots < 1:
+        raise UsageError("--shots must be at least 1")
+    return {"noise": sources, "shots": args.shots, "seed": args.seed, "repetitions": args.shots}
 
 
 def _add_file(parser: argparse.ArgumentParser) -> None:
@@ -111,6 +124,13 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("-o", "--output", required=True, metavar="PNG", help="image file to write")
     p.add_argument("--what", choices=("timeline", "populations", "correlators"), default="timeline",
                    help="what to draw (default: timeline)")
+    p.add_argument("--linear-time", action="store_true",
+                   help="a plain linear time axis (default: long stretches compressed so short pulses show)")
+    p.add_argument("--noise", default="off", metavar="off|all|SOURCE,...",
+                   help="noise sources for populations/correlators (default off; see `simulate --help`)")
+    p.add_argument("--shots", type=int, default=200,
+                   help="Monte Carlo shots, and the repetitions N behind the error bars (default 200)")
+    p.add_argument("--seed", type=int, default=1, help="random seed (default 1); shown on the figure")
     p.set_defaults(run=cmd_plot)
 
     _add_optional_commands(sub)

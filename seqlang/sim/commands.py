@@ -28,6 +28,8 @@ def register(sub) -> None:
     b.add_argument("file", help="a sequence file (*.seq)")
     b.add_argument("--json", action="store_true", help="print one JSON object instead of the table")
     b.add_argument("-o", "--output", metavar="PNG", help="also draw the budget as a bar chart")
+    b.add_argument("--what-if", action="store_true",
+                   help="add a panel: the all-sources infidelity with each source halved (first-order estimate)")
     _run_options(b)
     b.set_defaults(run=cmd_budget)
 
@@ -150,7 +152,7 @@ def cmd_budget(args) -> int:
         raise UsageError(str(exc)) from None
     print(json.dumps(numbers, indent=1) if args.json else budget_table(numbers))
     if args.output:
-        plot_budget(numbers, args.output)
+        plot_budget(numbers, args.output, what_if=args.what_if)
         if not args.json:
             print(f"wrote {args.output}")
     return 0

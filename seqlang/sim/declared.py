@@ -33,7 +33,7 @@ def not_declared(sequence) -> dict[str, str]:
         "decay": (bool(rydberg), "no Rydberg pulse in the sequence"),
         "dephasing": (extra(rydberg, "linewidth"), "no Rydberg drive in use declares `linewidth`"),
         "scattering": (any(leg_rabi(d, 1.0) for d in rydberg),
-                       "no Rydberg drive in use declares `intermediate`, `lower_rabi` and `upper_rabi`"),
+                       "no leg Rabi frequencies (`lower_rabi`, `upper_rabi`, `intermediate`)"),
         "laser_noise": (extra(rydberg, "linewidth", "servo_bump", "servo_height"),
                         "no Rydberg drive in use declares `linewidth`, `servo_bump` and `servo_height`"),
         "intensity": (extra(drives, "intensity_noise") or (extra(drives, "waist") and bool(hot)),

@@ -140,7 +140,7 @@ def build_parser() -> argparse.ArgumentParser:
 def _add_optional_commands(sub) -> None:
     """Commands whose modules register themselves (simulation, editor support)."""
     import importlib
-    for module in ("seqlang.sim.commands", "seqlang.editor.commands"):
+    for module in ("seqlang.sim.commands", "seqlang.editor.commands", "seqlang.report.commands"):
         try:
             importlib.import_module(module).register(sub)
         except ModuleNotFoundError as exc:

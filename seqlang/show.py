@@ -57,8 +57,8 @@ def compile_summary(checked: Checked) -> str:
     ])
 
 
-def pair_table(program: Program) -> str:
-    """Interaction C6/R⁶ and blockade radius of every pair of Rydberg-capable sites."""
+def pair_rows(program: Program) -> list[dict]:
+    """Every pair of Rydberg-capable sites: distance, C6, interaction and blockade radius (SI)."""
     from .atoms import rydberg
     rows = []
     sites = [s for s in program.sites.values() if program.rig.species[s.species].rydberg is not None]
@@ -68,9 +68,22 @@ def pair_table(program: Program) -> str:
         distance = math.dist(a.position_m, b.position_m)
         rabi = max((d.max_rabi_hz for d in program.rig.drives.values()
                     if d.kind == "rydberg" and d.species in (a.species, b.species)), default=1e6)
-        radius = rydberg.blockade_radius_m(c6, rabi)
-        flag = "  near a Förster resonance: C6 not to be trusted" if c6.near_forster else ""
-        rows.append(f"{a.name}-{b.name}: R = {_f(distance, units.LENGTH)}, C6/h = {c6.c6_hz_m6 * 1e27:.4g} GHz·µm⁶, "
-                    f"V/h = {_f(rydberg.interaction_hz(c6, distance), units.FREQUENCY)}, "
-                    f"blockade radius {_f(radius, units.LENGTH)} at {_f(rabi, units.FREQUENCY)}{flag}")
-    return "\n".join(rows)
+        rows.append({"pair": f"{a.name}-{b.name}", "levels": f"{sa.rydberg.label} + {sb.rydberg.label}",
+                     "distance_m": distance, "c6_hz_m6": c6.c6_hz_m6,
+                     "interaction_hz": rydberg.interaction_hz(c6, distance),
+                     "blockade_radius_m": rydberg.blockade_radius_m(c6, rabi), "rabi_hz": rabi,
+                     "near_forster": bool(c6.near_forster)})
+    return rows
+
+
+def pair_table(program: Program) -> str:
+    """Interaction C6/R⁶ and blockade radius of every pair of Rydberg-capable sites."""
+    lines = []
+    for r in pair_rows(program):
+        flag = "  near a Förster resonance: C6 not to be trusted" if r["near_forster"] else ""
+        lines.append(f"{r['pair']}: R = {_f(r['distance_m'], units.LENGTH)}, "
+                     f"C6/h = {r['c6_hz_m6'] * 1e27:.4g} GHz·µm⁶, "
+                     f"V/h = {_f(r['interaction_hz'], units.FREQUENCY)}, "
+                     f"blockade radius {_f(r['blockade_radius_m'], units.LENGTH)} at "
+                     f"{_f(r['rabi_hz'], units.FREQUENCY)}{flag}")
+    return "\n".join(lines)

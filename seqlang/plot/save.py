@@ -21,7 +21,7 @@ def figure_bytes(fig, fmt: str = "png") -> bytes:
     """The figure rendered as PNG or SVG; the figure is closed afterwards."""
     buffer = io.BytesIO()
     metadata = {"Software": None} if fmt == "png" else {"Date": None, "Creator": None}
-    with matplotlib.rc_context({"svg.hashsalt": "seqlang", "svg.fonttype": "path"}):
+    with matplotlib.rc_context({"svg.hashsalt": "seqlang", "svg.fonttype": "none"}):
         fig.savefig(buffer, format=fmt, dpi=DPI, metadata=metadata)
     plt.close(fig)
     return buffer.getvalue()

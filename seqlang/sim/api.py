@@ -141,6 +141,21 @@ class SimulationResult:
         """Density matrix of each cluster, averaged over imaging outcomes and shots."""
         return {c.model.sites: c.density() for c in self.clusters}
 
+    def _repr_html_(self) -> str:
+        """Jupyter: a compact table of the expectations, and the correlator figure."""
+        from ..report.notebook import result_html
+        return result_html(self)
+
+    def to_xarray(self):
+        """Expectations, final populations and any population history as an xarray.Dataset."""
+        from ..report.notebook import result_dataset
+        return result_dataset(self)
+
+    def to_dataframe(self):
+        """One row per expectation as a pandas DataFrame (pandas is optional)."""
+        from ..report.notebook import result_dataframe
+        return result_dataframe(self)
+
 
 def reduced_density(clusters, sites, condition=None, shot: int | None = None, dim: int = DIM) -> np.ndarray:
     """Tensor product of the clusters' reduced states, reordered as `sites`."""

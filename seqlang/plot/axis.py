@@ -2,7 +2,7 @@
 
 The time between consecutive event boundaries is an *interval*. Intervals up to
 `STRETCH` times the shortest pulse are drawn to scale; longer ones are drawn
-shorter, L₀(1 + ln(L/L₀)) wide with L₀ = STRETCH × shortest pulse, and shaded
+shorter, L₀(1 + ½·ln(L/L₀)) wide with L₀ = STRETCH × shortest pulse, and shaded
 so that the reader sees where time was compressed. Inside each interval the axis
 stays linear, so envelopes keep their shape. Tick labels give true times.
 
@@ -91,7 +91,7 @@ def time_axis(spans: list[tuple[float, float]], total_s: float | None = None,
 
 
 def _width(length: float, reference: float) -> float:
-    return length if length <= reference else reference * (1.0 + math.log(length / reference))
+    return length if length <= reference else reference * (1.0 + 0.5 * math.log(length / reference))
 
 
 def shade_compressed(ax, axis: TimeAxis) -> None:

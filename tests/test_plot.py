@@ -86,7 +86,7 @@ def test_timeline_figure_labels_units_and_legend(bell):
     assert ax.get_xscale() == "function", "the piecewise time axis"
     ticks = [float(t.get_text()) for t in ax.get_xticklabels()]
     assert ticks[0] == 0 and ticks[-1] == pytest.approx(27.104)
-    _non_blank(figure_bytes(fig))
+    _non_blank(figure_bytes(fig, dpi=40))
 
 
 def test_timeline_draws_the_short_rydberg_pulse_wide_enough(bell):
@@ -112,7 +112,7 @@ def test_timeline_shows_images_levels_and_lab_ports():
     assert {"→ mid_cs", "→ final_na", "on", "500 mA"} <= texts
     assert "(ms)" in ax.get_xlabel()
     assert "lab ports" in _texts(ax.get_legend().get_texts())
-    _non_blank(figure_bytes(ax.figure))
+    _non_blank(figure_bytes(ax.figure, dpi=40))
 
 
 # ---- populations and correlators ---------------------------------------------------
@@ -129,7 +129,7 @@ def test_populations_figure_has_bands_markers_ideal_and_noise_caption(bell, nois
     assert "(µs)" in axes[-1].get_xlabel()
     ideal = [line for line in axes[0].lines if line.get_marker() == "D"]
     assert sorted(float(line.get_ydata()[0]) for line in ideal) == pytest.approx([0.5, 0.5]), "psi_plus: halves"
-    _non_blank(figure_bytes(fig))
+    _non_blank(figure_bytes(fig, dpi=40))
 
 
 def test_correlator_bars_have_error_bars_and_the_ideal_beside(noisy_bell):
@@ -147,7 +147,7 @@ def test_correlator_bars_have_error_bars_and_the_ideal_beside(noisy_bell):
     for (low, high), key in zip(segments, ["XX", "XY", "XZ", "YX", "YY", "YZ", "ZX", "ZY", "ZZ"]):
         # projection noise for N = 16 repetitions of a ±1 outcome with mean c
         assert high[1] - low[1] == pytest.approx(2 * np.sqrt((1 - e["correlators"][key] ** 2) / 16))
-    _non_blank(figure_bytes(fig))
+    _non_blank(figure_bytes(fig, dpi=40))
 
 
 def test_conditioned_correlators_drawn_when_another_atom_is_imaged(tmp_path):
@@ -194,7 +194,7 @@ def test_budget_figure_log_axis_not_declared_and_what_if():
     legend = _texts(ax.get_legend().get_texts())
     assert {"all sources together", "noiseless baseline"} <= set(legend)
     assert any(getattr(c, "errorbar", None) is not None for c in ax.containers), "Monte Carlo error bars"
-    _non_blank(figure_bytes(fig))
+    _non_blank(figure_bytes(fig, dpi=40))
 
 
 def test_budget_chart_from_the_command_line(tmp_path):

@@ -17,12 +17,12 @@ from ..emit.atomic import write_bytes  # noqa: E402
 DPI = 120
 
 
-def figure_bytes(fig, fmt: str = "png") -> bytes:
+def figure_bytes(fig, fmt: str = "png", dpi: int = DPI) -> bytes:
     """The figure rendered as PNG or SVG; the figure is closed afterwards."""
     buffer = io.BytesIO()
     metadata = {"Software": None} if fmt == "png" else {"Date": None, "Creator": None}
     with matplotlib.rc_context({"svg.hashsalt": "seqlang", "svg.fonttype": "none"}):
-        fig.savefig(buffer, format=fmt, dpi=DPI, metadata=metadata)
+        fig.savefig(buffer, format=fmt, dpi=dpi, metadata=metadata)
     plt.close(fig)
     return buffer.getvalue()
 

@@ -214,3 +214,24 @@ def test_plot_command_takes_the_simulation_options(tmp_path, capsys):
     assert main(["plot", str(PROGRAMS / "bell_pair.seq"), "--what", "populations", "--noise", "nonsense",
                  "-o", str(out)]) == 2
     assert "unknown noise source" in capsys.readouterr().err
+
+
+# ---- which sources a rig leaves undeclared ------------------------------------------
+def test_undeclared_sources_of_the_demo_programs():
+    from seqlang.sim.declared import not_declared
+    bell = not_declared(seqlang.load(str(PROGRAMS / "bell_pair.seq")))
+    assert set(bell) == {"scattering", "imaging"}
+    assert bell["imaging"] == "no image in the sequence"
+    held = not_declared(seqlang.load(str(PROGRAMS / "hold_and_image.seq")))
+    assert held["decay"] == held["doppler"] == "no Rydberg pulse in the sequence"
+    assert "imaging" not in held and "t2_star" not in held and "preparation" not in held
+
+
+def test_scattering_is_declared_once_the_legs_have_rabi_frequencies(tmp_path):
+    from seqlang.sim.declared import not_declared
+    rig = (PROGRAMS / "millpond.rig").read_text(encoding="utf-8")
+    rig = rig.replace("    intermediate 900 MHz\n", "    intermediate 900 MHz\n    lower_rabi 90 MHz\n"
+                      "    upper_rabi 26 MHz\n", 1)
+    (tmp_path / "millpond.rig").write_text(rig, encoding="utf-8")
+    shutil.copy(PROGRAMS / "bell_pair.seq", tmp_path / "bell_pair.seq")
+    assert set(not_declared(seqlang.load(str(tmp_path / "bell_pair.seq")))) == {"imaging"}

@@ -235,3 +235,12 @@ def test_scattering_is_declared_once_the_legs_have_rabi_frequencies(tmp_path):
     (tmp_path / "millpond.rig").write_text(rig, encoding="utf-8")
     shutil.copy(PROGRAMS / "bell_pair.seq", tmp_path / "bell_pair.seq")
     assert set(not_declared(seqlang.load(str(tmp_path / "bell_pair.seq")))) == {"imaging"}
+
+
+def test_a_crowded_lane_is_drawn_as_plain_boxes(tmp_path):
+    shutil.copy(PROGRAMS / "millpond.rig", tmp_path / "millpond.rig")
+    (tmp_path / "many.seq").write_text('use "millpond.rig"\nsite d = na at (0, 0) um\n'
+                                       "sequence many {\n  repeat 450 {\n    pulse mw_na area pi\n  }\n}\n")
+    ax = timeline_figure(seqlang.load(str(tmp_path / "many.seq")).checked).axes[0]
+    assert "450 events" in {t.get_text() for t in ax.texts}
+    matplotlib.pyplot.close("all")

@@ -20,6 +20,7 @@ from .axis import TimeAxis, shade_compressed, time_axis
 from .save import save_png
 
 LANE_HALF = 0.38  # half the height of a lane's drawing area
+DETAILED_ENTRIES = 400  # a lane with more entries is drawn as plain boxes (envelopes and labels would not show)
 
 
 @dataclass(frozen=True)
@@ -83,10 +84,22 @@ def timeline_figure(checked: Checked, piecewise: bool = True):
     shade_compressed(ax, axis)
     labels = _LabelPlacer(axis)
     for row, lane in enumerate(rows):
-        for entry in checked.plan.ports[lane.port]:
+        entries = checked.plan.ports[lane.port]
+        if len(entries) > DETAILED_ENTRIES:
+            _draw_boxes(ax, checked, lane, entries, row)
+            continue
+        for entry in entries:
             _draw_entry(ax, checked, lane, entry, row, labels)
     _decorate(ax, checked, rows, axis)
     return fig
+
+
+def _draw_boxes(ax, checked: Checked, lane: Lane, entries, row: int) -> None:
+    """Many events on one lane: one box each, in a single collection."""
+    spans = [_physical(checked, e) for e in entries]
+    ax.broken_barh(spans, (row - LANE_HALF, 2 * LANE_HALF), color=lane.colour, linewidth=0)
+    ax.text(spans[0][0], row - LANE_HALF - 0.02, f"{len(entries)} events", fontsize=style.SOURCE_FONT,
+            color="#555555", va="bottom", ha="left", clip_on=True)
 
 
 def _draw_entry(ax, checked: Checked, lane: Lane, entry, row: int, labels) -> None:

@@ -18,9 +18,10 @@ DPI = 120
 
 
 def figure_bytes(fig, fmt: str = "png", dpi: int = DPI) -> bytes:
-    """The figure rendered as PNG or SVG; the figure is closed afterwards."""
+    """The figure rendered as PNG, SVG or PDF; the figure is closed afterwards."""
+    from .formats import _METADATA
     buffer = io.BytesIO()
-    metadata = {"Software": None} if fmt == "png" else {"Date": None, "Creator": None}
+    metadata = _METADATA[fmt]
     with matplotlib.rc_context({"svg.hashsalt": "seqlang", "svg.fonttype": "none"}):
         fig.savefig(buffer, format=fmt, dpi=dpi, metadata=metadata)
     plt.close(fig)
@@ -28,6 +29,6 @@ def figure_bytes(fig, fmt: str = "png", dpi: int = DPI) -> bytes:
 
 
 def save_png(fig, path: str) -> None:
-    """Write the figure to `path` atomically (PNG, or SVG when the name ends in .svg)."""
-    fmt = "svg" if path.lower().endswith(".svg") else "png"
-    write_bytes(path, figure_bytes(fig, fmt))
+    """Write the figure to `path` atomically, in the format its extension names (.png, .svg, .pdf)."""
+    from .formats import figure_format
+    write_bytes(path, figure_bytes(fig, figure_format(path)))

@@ -224,7 +224,7 @@ def _legend_handles(checked: Checked, rows: list[Lane]) -> list:
 
 
 def plot_timeline(checked: Checked, path: str, piecewise: bool = True) -> None:
-    """Draw the timeline into `path` (PNG, or SVG by extension)."""
+    """Draw the timeline into `path` (.png, .svg or .pdf by its extension)."""
     save_png(timeline_figure(checked, piecewise), path)
 
 

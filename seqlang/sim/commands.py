@@ -145,6 +145,9 @@ def cmd_budget(args) -> int:
     from ..cli import UsageError, _load
     from .budget import budget, budget_table, plot_budget
     _check_counts(args)
+    if args.output:
+        from ..cli import _check_figure_name
+        _check_figure_name(args.output)
     sequence = _load(args.file)
     try:
         numbers = budget(sequence, shots=args.shots, seed=args.seed, engine=args.engine, truncate=args.truncate)

@@ -187,3 +187,13 @@ def test_report_in_headless_chromium(report_file, tmp_path):
     import matplotlib.image
     pixels = matplotlib.image.imread(str(shot))[..., :3]
     assert pixels.shape[0] > 2000 and (pixels < 0.9).any(axis=-1).mean() > 0.03, "a non-blank page"
+
+
+def test_report_help_lists_its_options(capsys):
+    from seqlang.cli import main
+    with pytest.raises(SystemExit) as stop:
+        main(["report", "--help"])
+    assert stop.value.code == 0
+    out = capsys.readouterr().out
+    for option in ("-o", "--noise", "--shots", "--seed", "--no-budget", "--linear-time"):
+        assert option in out

@@ -20,8 +20,8 @@ PALETTE = {
     "damson": "#7A1F5C",
     "gravel": "#A8A8A8",
 }
-SPECIES_COLOURS = ("#D4820F", "#1F5A9E", "#7A1F5C")
-PORT_COLOUR = "#A8A8A8"
+SPECIES_COLOURS = (PALETTE["marigold"], PALETTE["lake"], PALETTE["damson"])
+PORT_COLOUR = PALETTE["gravel"]
 INK = "#222222"  # text, ideal-target outlines, the all-sources total
 BASELINE_COLOUR = "#E6E6E6"  # the noiseless baseline and other reference bars
 SOURCE_FONT = 6.5  # point size of the small source-line labels
@@ -47,9 +47,3 @@ def format_time(seconds: float, unit: tuple[str, float]) -> str:
     value = seconds / unit[1]
     text = f"{value:.4f}".rstrip("0").rstrip(".")
     return "0" if text in ("-0", "") else text
-
-
-def new_figure(width: float, height: float):
-    import matplotlib.pyplot as plt
-    fig = plt.figure(figsize=(width, height), layout="constrained")
-    return fig

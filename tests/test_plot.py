@@ -82,7 +82,7 @@ def test_timeline_figure_labels_units_and_legend(bell):
     assert {"na (Na23)", "cs (Cs133)", "TTL gate open"} <= set(legend)
     assert any("source line" in t for t in legend)
     labels = {t.get_text() for t in ax.texts}
-    assert {"L11", "L15", "L16", "L17"} <= labels, "source-line labels of the pulses"
+    assert {"L15", "L16", "L17", "L11 φ-1.57", "L18 φ+1.57"} <= labels, "source lines, and phases where set"
     assert ax.get_xscale() == "function", "the piecewise time axis"
     ticks = [float(t.get_text()) for t in ax.get_xticklabels()]
     assert ticks[0] == 0 and ticks[-1] == pytest.approx(27.104)

@@ -51,6 +51,9 @@ def lanes(checked: Checked) -> list[Lane]:
     for port in rig.ports.values():
         if port.channel in busy:
             out.append(Lane(port.channel, f"{port.name}\n{port.channel}", "lab", port.kind, style.PORT_COLOUR))
+    drawn = {lane.port for lane in out}
+    for channel in sorted(busy - drawn):  # an output no declaration names: still shown, never dropped
+        out.append(Lane(channel, channel, "lab", "digital", style.PORT_COLOUR))
     return out
 
 
@@ -128,13 +131,16 @@ def _draw_entry(ax, checked: Checked, lane: Lane, entry, row: int, labels) -> No
     else:  # trigger: a short TTL pulse with a marker
         ax.fill_between([start, start + max(length, 0)], base, top, color=lane.colour, linewidth=0)
         ax.plot([start], [top], marker="v", color=style.INK, markersize=5)
-    labels.add(ax, start, row, entry.source.rsplit(":", 1)[-1], entry.kind != "gate")
+    text = f"L{entry.source.rsplit(':', 1)[-1]}"
+    if entry.kind == "pulse" and entry.phase_rad:
+        text += f" φ{entry.phase_rad:+.2f}"  # a phase jump is easy to miss between back-to-back pulses
+    labels.add(ax, start, row, text, entry.kind != "gate")
 
 
 def _draw_level(ax, checked: Checked, lane: Lane, entry, start: float, row: int) -> None:
     """A new level on a digital or analog line: a step, held to the end, with its value."""
-    port = next(p for p in checked.program.rig.ports.values() if p.channel == entry.port)
-    low, high = port.value_range or (0.0, 1.0)
+    port = next((p for p in checked.program.rig.ports.values() if p.channel == entry.port), None)
+    low, high = (port.value_range if port is not None else None) or (0.0, 1.0)
     fraction = 0.5 if high == low else (entry.value - low) / (high - low)
     y = row + LANE_HALF - 2 * LANE_HALF * min(max(fraction, 0.0), 1.0)
     end = checked.quantized.duration_s
@@ -145,24 +151,24 @@ def _draw_level(ax, checked: Checked, lane: Lane, entry, start: float, row: int)
 
 def _set_text(port, value: float) -> str:
     from ..show import quantity
-    return quantity(value, port.unit_dim) if port.unit_dim else f"{value:g}"
+    return quantity(value, port.unit_dim) if port is not None and port.unit_dim else f"{value:g}"
 
 
 class _LabelPlacer:
     """Small source-line labels above events, skipped where they would overlap on a lane."""
 
-    GAP = 0.025  # fraction of the axis width
+    CHAR = 0.0055  # fraction of the axis width one label character takes
 
     def __init__(self, axis: TimeAxis):
         self.axis = axis
         self.last: dict[int, float] = {}
 
-    def add(self, ax, start: float, row: int, line: str, wanted: bool) -> None:
+    def add(self, ax, start: float, row: int, text: str, wanted: bool) -> None:
         x = float(self.axis.forward(start)) if not self.axis.is_linear else self._linear(start)
-        if not wanted or x - self.last.get(row, -1.0) < self.GAP:
+        if not wanted or x < self.last.get(row, -1.0):
             return
-        self.last[row] = x
-        ax.text(start, row - LANE_HALF - 0.02, f"L{line}", fontsize=style.SOURCE_FONT, color="#555555",
+        self.last[row] = x + self.CHAR * (len(text) + 1)
+        ax.text(start, row - LANE_HALF - 0.02, text, fontsize=style.SOURCE_FONT, color="#555555",
                 va="bottom", ha="left", clip_on=True)
 
     def _linear(self, start: float) -> float:
@@ -219,7 +225,8 @@ def _legend_handles(checked: Checked, rows: list[Lane]) -> list:
         handles.append(Patch(facecolor="white", edgecolor="#555555", hatch="xx", label="image → record"))
     if roles & {"digital", "analog"}:
         handles.append(Line2D([], [], color=style.INK, label="switch / set level"))
-    handles.append(Line2D([], [], linestyle="none", marker="$L$", color="#555555", label="L12 = source line 12"))
+    handles.append(Line2D([], [], linestyle="none", marker="$L$", color="#555555",
+                          label="L12 φ+1.57: source line 12, phase (rad)"))
     return handles
 
 

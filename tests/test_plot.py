@@ -83,6 +83,7 @@ def test_timeline_figure_labels_units_and_legend(bell):
     assert any("source line" in t for t in legend)
     labels = {t.get_text() for t in ax.texts}
     assert {"L15", "L16", "L17", "L11 φ-1.57", "L18 φ+1.57"} <= labels, "source lines, and phases where set"
+    assert "11.364 µs" in labels, "a long pulse shows its duration (the compressed axis hides it)"
     assert ax.get_xscale() == "function", "the piecewise time axis"
     ticks = [float(t.get_text()) for t in ax.get_xticklabels()]
     assert ticks[0] == 0 and ticks[-1] == pytest.approx(27.104)
@@ -109,7 +110,7 @@ def test_timeline_shows_images_levels_and_lab_ports():
     assert roles["ttl.9"] == "image" and roles["ttl.12"] == "digital" and roles["dac.3"] == "analog"
     ax = timeline_figure(sequence.checked).axes[0]
     texts = {t.get_text().strip() for t in ax.texts}
-    assert {"→ mid_cs", "→ final_na", "on", "500 mA"} <= texts
+    assert {"→ mid_cs (11 ms)", "→ final_na (15 ms)", "on", "500 mA"} <= texts
     assert "(ms)" in ax.get_xlabel()
     assert "lab ports" in _texts(ax.get_legend().get_texts())
     _non_blank(figure_bytes(ax.figure, dpi=40))

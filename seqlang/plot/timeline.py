@@ -116,6 +116,7 @@ def _draw_entry(ax, checked: Checked, lane: Lane, entry, row: int, labels) -> No
         times = np.concatenate([[start], start + t, [start + length]])
         ys = np.concatenate([[base], base - height, [base]])
         ax.fill(times, ys, color=lane.colour, alpha=0.85, linewidth=0.6, edgecolor=lane.colour)
+        labels.duration(ax, start, length, row)
     elif entry.kind == "gate":
         ax.step([start, start, start + length, start + length], [base, top + 0.1, top + 0.1, base],
                 where="post", color=lane.colour, linewidth=1.3)
@@ -124,7 +125,9 @@ def _draw_entry(ax, checked: Checked, lane: Lane, entry, row: int, labels) -> No
         ax.fill_between([start, start + length], base, top, facecolor="white", edgecolor=lane.colour,
                         hatch="xx", linewidth=1.0)
         record = event.record if event is not None else ""
-        ax.text(start, row, f" → {record} ", va="center", ha="left", fontsize=8, color=style.INK, clip_on=True,
+        from ..lang import units
+        from ..show import quantity
+        ax.text(start, row, f" → {record} ({quantity(length, units.DURATION)}) ", va="center", ha="left", fontsize=8, color=style.INK, clip_on=True,
                 bbox={"facecolor": "white", "edgecolor": "none", "pad": 1.0})
     elif entry.kind in ("switch", "set"):
         _draw_level(ax, checked, lane, entry, start, row)
@@ -158,6 +161,7 @@ class _LabelPlacer:
     """Small source-line labels above events, skipped where they would overlap on a lane."""
 
     CHAR = 0.0055  # fraction of the axis width one label character takes
+    WIDE = 0.07  # pulses at least this wide (fraction of the axis) get their duration written inside
 
     def __init__(self, axis: TimeAxis):
         self.axis = axis
@@ -170,6 +174,17 @@ class _LabelPlacer:
         self.last[row] = x + self.CHAR * (len(text) + 1)
         ax.text(start, row - LANE_HALF - 0.02, text, fontsize=style.SOURCE_FONT, color="#555555",
                 va="bottom", ha="left", clip_on=True)
+
+    def duration(self, ax, start: float, length: float, row: int) -> None:
+        """The duration written inside a pulse wide enough to hold it (compressed stretches hide it)."""
+        from ..lang import units
+        from ..show import quantity
+        if self._x(start + length) - self._x(start) > self.WIDE:
+            ax.text(start + length / 2, row + 0.1, quantity(length, units.DURATION), fontsize=7, color="white",
+                    ha="center", va="center", clip_on=True)
+
+    def _x(self, t: float) -> float:
+        return float(self.axis.forward(t)) if not self.axis.is_linear else self._linear(t)
 
     def _linear(self, start: float) -> float:
         return (start - self.axis.knots_s[0]) / max(self.axis.knots_s[-1] - self.axis.knots_s[0], 1e-30)

@@ -10,16 +10,18 @@ What the AWG plays are samples at the drive's sample rate;
 holding more than :data:`CHUNK` samples), so the compiler can check that the
 played waveform reproduces the area before any array is allocated.
 
-scipy is imported where it is needed, not at import time (start-up speed).
+numpy and scipy are imported where they are needed, not at import time (start-up speed).
 """
 from __future__ import annotations
 
 import functools
 import math
-
-import numpy as np
+from typing import TYPE_CHECKING
 
 from ..program.model import Shape
+
+if TYPE_CHECKING:
+    import numpy as np
 
 SHAPES = ("square", "ramped", "gaussian", "blackman")
 # Parameters each shape accepts; durations in seconds.
@@ -30,6 +32,7 @@ CHUNK = 1 << 20  # samples integrated at a time
 
 def envelope(shape: Shape, duration_s: float, t: np.ndarray | float) -> np.ndarray:
     """Envelope values (peak 1) at times t within [0, duration]."""
+    import numpy as np
     t = np.asarray(t, dtype=float)
     if shape.kind == "square":
         return np.ones_like(t)
@@ -50,6 +53,7 @@ def _sigma(shape: Shape, duration_s: float) -> float:
 
 def _ramped(ramp: float, duration: float, t: np.ndarray) -> np.ndarray:
     """Flat top with sin² ramps of length `ramp` at both ends (common practice)."""
+    import numpy as np
     if ramp <= 0:
         return np.ones_like(t)
     up = np.clip(t / ramp, 0.0, 1.0)
@@ -145,6 +149,7 @@ def sample_count(duration_s: float, sample_rate_hz: float) -> int:
 @functools.lru_cache(maxsize=4096)
 def sampled_area_factor(shape: Shape, duration_s: float, sample_rate_hz: float) -> float:
     """∫f dt of the played samples (trapezoid rule over :func:`sample_count` points)."""
+    import numpy as np
     count = sample_count(duration_s, sample_rate_hz)
     step = duration_s / (count - 1)
     total, ends = 0.0, 0.0

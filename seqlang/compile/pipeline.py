@@ -8,6 +8,7 @@ from dataclasses import dataclass
 from typing import Mapping
 
 from ..lang.diagnostics import ERROR, Diagnostic, SeqlangError
+from ..lang.parser import cyclic_gc_paused
 from ..program.model import Program
 from ..program.resolve import resolve
 from .checks import check_timeline, check_waveforms
@@ -33,6 +34,11 @@ def check(path: str, sources: Mapping[str, str] | None = None) -> Checked:
 
     `sources` optionally maps paths to unsaved texts (see :func:`resolve`).
     """
+    with cyclic_gc_paused():
+        return _check(path, sources)
+
+
+def _check(path: str, sources: Mapping[str, str] | None) -> Checked:
     program, diags = resolve(path, sources)
     timeline = lower(program)
     diags = diags + check_timeline(program, timeline)

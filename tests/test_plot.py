@@ -245,3 +245,15 @@ def test_a_crowded_lane_is_drawn_as_plain_boxes(tmp_path):
     ax = timeline_figure(seqlang.load(str(tmp_path / "many.seq")).checked).axes[0]
     assert "450 events" in {t.get_text() for t in ax.texts}
     matplotlib.pyplot.close("all")
+
+
+def test_hold_rows_get_no_lane(tmp_path):
+    """Hold rows (a long wait cut to the duration counter) play nothing on any output."""
+    rig = (PROGRAMS / "millpond.rig").read_text(encoding="utf-8").replace("counter_bits 32", "counter_bits 24")
+    (tmp_path / "millpond.rig").write_text(rig, encoding="utf-8")
+    (tmp_path / "wait.seq").write_text('use "millpond.rig"\nsite d = na at (0, 0) um\nsequence w {\n'
+                                       "  pulse mw_na area pi/2\n  wait 1 s\n  pulse mw_na area pi/2\n}\n")
+    checked = seqlang.load(str(tmp_path / "wait.seq")).checked
+    assert "sequencer" in checked.plan.ports
+    assert [lane.port for lane in lanes(checked)] == ["awg0.1"]
+    matplotlib.pyplot.close("all")

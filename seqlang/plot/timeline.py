@@ -14,6 +14,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from ..compile import envelopes
+from ..compile.hardware import SEQUENCER
 from ..compile.pipeline import Checked
 from . import style
 from .axis import TimeAxis, shade_compressed, time_axis
@@ -36,7 +37,7 @@ class Lane:
 
 def lanes(checked: Checked) -> list[Lane]:
     """The lanes of the ports that play something, in rig order grouped by species."""
-    rig, busy = checked.program.rig, set(checked.plan.ports)
+    rig, busy = checked.program.rig, set(checked.plan.ports) - {SEQUENCER}  # hold rows play nothing
     colours = style.species_colours(checked.program)
     out: list[Lane] = []
     for species in rig.species:
@@ -65,8 +66,8 @@ def _physical(checked: Checked, entry) -> tuple[float, float]:
 
 def _spans(checked: Checked) -> list[tuple[float, float]]:
     spans = []
-    for entries in checked.plan.ports.values():
-        for entry in entries:
+    for port, entries in checked.plan.ports.items():
+        for entry in entries if port != SEQUENCER else ():
             start, length = _physical(checked, entry)
             spans.append((start, start + length))
     return spans

@@ -74,10 +74,11 @@ def _use_fixes(path: str, text: str, open_paths) -> list[Fix]:
 
 def _first_code_line(text: str) -> int:
     """The line after the comments at the top of the file (where a `use` belongs)."""
-    for number, line in enumerate(text.splitlines()):
-        if line.strip() and not line.lstrip().startswith("#"):
+    lines = text.splitlines()
+    for number, line in enumerate(lines):
+        if not line.lstrip().startswith("#"):
             return number
-    return 0
+    return len(lines)
 
 
 def code_action(fix: Fix, uri: str, diagnostic: lsp.Diagnostic) -> lsp.CodeAction:

@@ -98,8 +98,9 @@ def analyse(path: str, text: str, overlays: Mapping[str, str]) -> Analysis:
 
 
 def _checkable(source: ast.SourceFile) -> bool:
-    # A library of blocks (no `use`, no `rig`) is checked through the files that import it.
-    return any(isinstance(i, (ast.UseStmt, ast.RigDef)) for i in source.items)
+    # A library of blocks (no `use`, no `rig`, no `sequence`) is checked through the files
+    # that import it; a sequence without a rig is checked, so that it hears it lacks one.
+    return any(isinstance(i, (ast.UseStmt, ast.RigDef, ast.SequenceDef)) for i in source.items)
 
 
 def _read(path: str, overlays: Mapping[str, str]) -> ast.SourceFile | None:

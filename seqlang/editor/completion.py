@@ -133,6 +133,11 @@ def key_kind(key) -> tuple[tuple[int, ...] | None, tuple[str, ...]]:
     return dim, words
 
 
+def _range_probe(unit: str) -> ast.RangeExpr:
+    low, high = (ast.WithUnit(ast.Number(v, PROBE), unit, PROBE, PROBE) for v in (-3.0, 3.0))
+    return ast.RangeExpr(low, high, PROBE)
+
+
 def _probe_units() -> dict:
     out = {dim: unit for dim, unit in units.PREFERRED_UNIT.items() if unit}
     out[units.DIMENSIONLESS] = "rad"
@@ -159,15 +164,23 @@ def units_for(key) -> tuple[str, ...]:
 
 
 def key_detail(key) -> str:
-    """`duration (ns, us, ms, s)` or `one of: gaussian, ...`, then the key's own words."""
+    """`duration (s, ms, us, ns, ps)` or `one of: gaussian, ...`, then the key's own words."""
     dim, words = key_kind(key)
     parts = []
     if words:
         parts.append("one of: " + ", ".join(words))
+    elif dim == units.DIMENSIONLESS and _accepts(key.reader, ast.Number(16.0, PROBE)) \
+            and not _accepts(key.reader, ast.Number(16.5, PROBE)):
+        parts.append("whole number")
     elif dim is not None:
-        kind = "angle" if units_for(key) == ANGLE_UNITS else \
+        kind = "angle or plain number" if units_for(key) == ANGLE_UNITS else \
             "fraction" if dim == units.DIMENSIONLESS else units.kind_name(dim).split(" ", 1)[1]
         parts.append(f"{kind} ({', '.join(units_for(key))})")
+    else:
+        ranged = [units.kind_name(d).split(" ", 1)[1] for d, u in _probe_units().items()
+                  if d != units.DIMENSIONLESS and _accepts(key.reader, _range_probe(u))]
+        if len(ranged) == 1:
+            parts.append(f"range of {ranged[0]}: low .. high")
     if key.doc:
         parts.append(key.doc)
     return "; ".join(parts) or "property"
@@ -191,12 +204,25 @@ def completion_items(text: str, offset: int, names: Names) -> list[lsp.Completio
         return _rig_item(tokens, names)
     if head[0] in ("species", "drive", "image", "port"):
         kind = head[2] if head[0] == "drive" and len(head) > 2 else ""
-        in_block = TOKEN.findall(text[brace + 1:offset - len(typed)])  # keys given on earlier lines too
-        return _properties(rig_block_keys(head[0], kind), in_block, names)
+        before = TOKEN.findall(text[brace + 1:offset - len(typed)])  # keys given on earlier lines too
+        return _properties(rig_block_keys(head[0], kind), before, names, TOKEN.findall(_rest_of_block(text, offset)))
     if head[0] in BLOCK_HEADERS or head[0] in grammar_words()["statement"]:
         rest = text[offset:text.find("\n", offset) if "\n" in text[offset:] else len(text)]
         return _statement(tokens, names, rest)
     return []
+
+
+def _rest_of_block(text: str, offset: int) -> str:
+    """The text from the cursor to the `}` that closes the block the cursor is in."""
+    depth = 0
+    for position in range(offset, min(len(text), offset + 100_000)):
+        if text[position] == "{":
+            depth += 1
+        elif text[position] == "}":
+            if depth == 0:
+                return text[offset:position]
+            depth -= 1
+    return text[offset:offset + 100_000]
 
 
 def _in_comment_or_string(line: str) -> bool:
@@ -285,7 +311,7 @@ def _statement(tokens: list[str], names: Names, rest_of_line: str) -> list[lsp.C
     if word in ("wait", "repeat", "let", "set") and len(tokens) >= (3 if word == "let" else 1):
         return _expression(names)
     schema = statement_keys(word)
-    return _properties(schema, tokens[2:], names) if schema else []
+    return _properties(schema, tokens[2:], names, TOKEN.findall(rest_of_line)) if schema else []
 
 
 def _pulse(tokens: list[str], names: Names, rest_of_line: str) -> list[lsp.CompletionItem]:
@@ -308,8 +334,8 @@ def _pulse(tokens: list[str], names: Names, rest_of_line: str) -> list[lsp.Compl
         props = after[1:]
         while len(props) >= 2 and props[0] == ",":
             props = props[2:]
-        return _properties(statement_keys("pulse"), props, names)
-    items = _properties(statement_keys("pulse"), tokens[2:], names)
+        return _properties(statement_keys("pulse"), props, names, TOKEN.findall(rest_of_line))
+    items = _properties(statement_keys("pulse"), tokens[2:], names, TOKEN.findall(rest_of_line))
     return (_keywords(("on",)) if len(tokens) == 2 else []) + items
 
 
@@ -320,14 +346,15 @@ def _targets(names: Names, drive: ast.DriveDecl | None, written: set[str]) -> li
     return _symbols(fits)
 
 
-def _properties(schema: dict, tokens: list[str], names: Names) -> list[lsp.CompletionItem]:
-    """In a property list: a key's words or units after it, else the keys not yet given."""
+def _properties(schema: dict, tokens: list[str], names: Names, later=()) -> list[lsp.CompletionItem]:
+    """In a property list: a key's words or units after it, else the keys not given
+    before or after the cursor (`later`)."""
     if tokens and tokens[-1] in schema:
         _, words = key_kind(schema[tokens[-1]])
         return _values(words) if words else _expression(names)
     if len(tokens) >= 2 and tokens[-2] in schema and NUMBER.match(tokens[-1]):
         return _units(units_for(schema[tokens[-2]]))
-    used = set(tokens)
+    used = set(tokens) | set(later)
     return [lsp.CompletionItem(key, kind=K.Property, detail=key_detail(spec), sort_text=f"{i:03d}")
             for i, (key, spec) in enumerate(schema.items()) if key not in used]
 

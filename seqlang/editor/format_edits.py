@@ -31,13 +31,24 @@ def range_edits(text: str, path: str, first_line: int, last_line: int) -> list[E
     ``seqlang fmt`` refuses, if leaving them out would change the meaning."""
     formatted = format_text(text, path)
     old, new = text.splitlines(keepends=True), formatted.splitlines(keepends=True)
-    edits = []
-    for tag, i1, i2, j1, j2 in difflib.SequenceMatcher(None, old, new, autojunk=False).get_opcodes():
-        touches = i1 <= last_line and (i2 - 1 if i2 > i1 else i1) >= first_line
-        if tag != "equal" and touches:
-            edits.append((i1, i2, "".join(new[j1:j2])))
+    edits = [edit for edit in _hunks(old, new)
+             if edit[0] <= last_line and (edit[1] - 1 if edit[1] > edit[0] else edit[0]) >= first_line]
     _check_same_meaning(text, apply(text, edits), path)
     return edits
+
+
+def _hunks(old: list[str], new: list[str]) -> list[Edit]:
+    """The changes between two texts' lines; a run of changed lines that keeps its length
+    is split line by line, so a range can take some of them."""
+    out = []
+    for tag, i1, i2, j1, j2 in difflib.SequenceMatcher(None, old, new, autojunk=False).get_opcodes():
+        if tag == "equal":
+            continue
+        if i2 - i1 == j2 - j1:
+            out += [(i1 + k, i1 + k + 1, new[j1 + k]) for k in range(i2 - i1)]
+        else:
+            out.append((i1, i2, "".join(new[j1:j2])))
+    return out
 
 
 def apply(text: str, edits: list[Edit]) -> str:

@@ -11,7 +11,6 @@ import asyncio
 import json
 import os
 import shutil
-import subprocess
 import sys
 from pathlib import Path
 
@@ -90,11 +89,11 @@ def apply_edits(text: str, edits: list[lsp.TextEdit]) -> str:
 
 
 def seqlang_fmt(tmp_path: Path, name: str, text: str) -> str:
-    """What `seqlang fmt` makes of the text (the command line, run as a user would)."""
+    """What `seqlang fmt FILE` makes of the text (the command line's own entry point)."""
+    from seqlang.cli import main
     path = tmp_path / name
     path.write_text(text, encoding="utf-8")
-    subprocess.run([sys.executable, "-m", "seqlang", "fmt", str(path)], check=True, capture_output=True,
-                   env={**os.environ, "PYTHONPATH": str(ROOT)})
+    assert main(["fmt", str(path)]) == 0
     return path.read_text(encoding="utf-8")
 
 

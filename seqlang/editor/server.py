@@ -284,6 +284,7 @@ class Checker:
             self.pending[uri] = time.monotonic()
             if self.running == uri:
                 self.worker.cancel()  # the text it checks is already stale
+                self.server.log(f"seqlang: cancelled the check of {uri}: the document changed")
             self.wake.notify()
 
     def close(self) -> None:
@@ -364,7 +365,6 @@ class SeqlangServer(LanguageServer):
 
     def edited(self, uri: str) -> None:
         """A document was opened, changed or saved: check it and the open documents that include it."""
-        self.event_loop = asyncio.get_running_loop()
         text = self.document(uri).source
         path = self.path_of(uri)
         if len(text) > MAX_DOCUMENT_CHARS:
@@ -374,6 +374,7 @@ class SeqlangServer(LanguageServer):
             return
         if self.checker is None:
             self.checker = Checker(self, self.budget)
+            threading.Thread(target=self.formatter.start, daemon=True).start()  # warm, for format-on-save
         self.checker.schedule(uri)
         for other_uri in list(self.workspace.text_documents):
             other = self.analyses.get(self.path_of(other_uri))
@@ -489,9 +490,13 @@ class SeqlangServer(LanguageServer):
         self._stop_event = threading.Event()
         reader = GuardedReader(stdin or sys.stdin.buffer, self.thread_pool, self._refused)
         self.protocol.set_writer(io_.StdoutWriter(stdout or sys.stdout.buffer))
+
+        async def serve_messages():
+            self.event_loop = asyncio.get_running_loop()
+            await io_.run_async(stop_event=self._stop_event, reader=reader, protocol=self.protocol,
+                                logger=logger, error_handler=self.report_server_error)
         try:
-            asyncio.run(io_.run_async(stop_event=self._stop_event, reader=reader, protocol=self.protocol,
-                                      logger=logger, error_handler=self.report_server_error))
+            asyncio.run(serve_messages())
         except BrokenPipeError:
             logger.error("Connection to the client is lost! Shutting down the server.")
         except (KeyboardInterrupt, SystemExit):
@@ -499,11 +504,16 @@ class SeqlangServer(LanguageServer):
         finally:
             self.shutdown()
 
+    def log(self, message: str, kind: lsp.MessageType = lsp.MessageType.Log) -> None:
+        """A line in the client's log of this server (from the server's own loop)."""
+        self.protocol.notify(lsp.WINDOW_LOG_MESSAGE, lsp.LogMessageParams(kind, message))
+
     def _refused(self, size: int) -> None:
+        # Called on the reader's thread: hand the notice to the loop.
         from .transport import MAX_MESSAGE_BYTES
         message = (f"seqlang: refused a message of {size:,} bytes (the limit is {MAX_MESSAGE_BYTES:,}); "
                    "it was skipped")
-        self.protocol.notify(lsp.WINDOW_LOG_MESSAGE, lsp.LogMessageParams(lsp.MessageType.Error, message))
+        self.event_loop.call_soon_threadsafe(self.log, message, lsp.MessageType.Error)
 
 
 SERVER = SeqlangServer()

@@ -7,8 +7,10 @@ address-space limit (``RLIMIT_AS``) that the server kills when a job runs over
 its time, or when a newer edit makes the job stale. The server's own process
 only ever reads finished results, so it keeps answering.
 
-Frames on the pipes are an 8-byte length and a pickle; both ends are this
-module, started by the same user.
+Children are forked from a ``forkserver`` that has imported the checker once,
+so a child killed for its budget is replaced in milliseconds. Jobs and results
+travel as pickles over a ``multiprocessing`` pipe; both ends are this module,
+in processes of the same user.
 
 >>> worker = Worker(Budget(seconds=5, memory_mb=1024))
 >>> worker.run("format", "let  a=1\\n", "x.seq").value   # doctest: +SKIP
@@ -18,16 +20,12 @@ from __future__ import annotations
 
 import os
 import pickle
-import select
-import struct
-import subprocess
-import sys
 import threading
 import time
 from dataclasses import dataclass
 
-HEADER = struct.Struct("<Q")
-START_TIMEOUT_S = 120.0  # importing the checker on a loaded machine can take a while
+START_TIMEOUT_S = 120.0  # the first start imports the checker; on a loaded machine that takes a while
+PRELOAD = ["seqlang.editor.analysis", "seqlang.editor.format_edits", "seqlang.compile.pipeline"]
 
 OK, TIMEOUT, MEMORY, CANCELLED, CRASHED, FAILED = "ok", "timeout", "memory", "cancelled", "crashed", "failed"
 
@@ -69,7 +67,7 @@ class Worker:
 
     def __init__(self, budget: Budget):
         self.budget = budget
-        self._process: subprocess.Popen | None = None
+        self._child = None  # (process, connection)
         self._lock = threading.Lock()  # one job at a time
         self._cancelled = threading.Event()
 
@@ -78,22 +76,32 @@ class Worker:
         with self._lock:
             self._cancelled.clear()
             try:
-                process = self._ready()
-                _write_frame(process.stdin, (job, args))
-            except (OSError, EOFError, pickle.PicklingError) as exc:
+                connection = self._ready()
+                connection.send((job, args))
+            except (OSError, EOFError, ValueError, pickle.PicklingError) as exc:
                 self._stop()
                 return Outcome(CRASHED, detail=str(exc))
-            outcome = self._await(process)
+            outcome = self._await(connection)
             if outcome.status != OK:
                 self._stop()
-            return outcome
+        if outcome.status != OK:
+            threading.Thread(target=self.start, daemon=True).start()  # the next job finds a child ready
+        return outcome
+
+    def start(self) -> None:
+        """Start the child now rather than at the first job."""
+        with self._lock:
+            try:
+                self._ready()
+            except (OSError, EOFError, ValueError):
+                self._stop()
 
     def cancel(self) -> None:
         """Stop the running job (its caller gets `CANCELLED`); the next job starts a fresh child."""
         self._cancelled.set()
-        process = self._process
-        if process is not None and process.poll() is None:
-            process.kill()
+        child = self._child
+        if child is not None and child[0].is_alive():
+            child[0].kill()
 
     def close(self) -> None:
         """Stop the child for good (the server is shutting down)."""
@@ -102,30 +110,34 @@ class Worker:
             self._stop()
 
     # ---- the child's life ----------------------------------------------------------
-    def _ready(self) -> subprocess.Popen:
-        if self._process is not None and self._process.poll() is None:
-            return self._process
+    def _ready(self):
+        if self._child is not None and self._child[0].is_alive():
+            return self._child[1]
         self._stop()
-        env = {**os.environ, "OPENBLAS_NUM_THREADS": "1", "OMP_NUM_THREADS": "1", "MKL_NUM_THREADS": "1"}
-        self._process = subprocess.Popen(
-            [sys.executable, "-m", "seqlang.editor.worker", str(self.budget.memory_mb)],
-            stdin=subprocess.PIPE, stdout=subprocess.PIPE, stderr=subprocess.DEVNULL, env=env)
-        status = _read_frame(self._process.stdout, time.monotonic() + START_TIMEOUT_S, self._cancelled)
-        if status != ("ready",):
+        context = _context()
+        ours, theirs = context.Pipe()
+        process = context.Process(target=_child_main, args=(theirs, self.budget.memory_mb),
+                                  name="seqlang-lsp-worker", daemon=True)
+        process.start()
+        theirs.close()
+        self._child = (process, ours)
+        if not ours.poll(START_TIMEOUT_S) or ours.recv() != ("ready",):
             raise EOFError("the worker did not start")
-        return self._process
+        return ours
 
-    def _await(self, process: subprocess.Popen) -> Outcome:
+    def _await(self, connection) -> Outcome:
         deadline = time.monotonic() + self.budget.seconds
         try:
-            reply = _read_frame(process.stdout, deadline, self._cancelled)
-        except TimeoutError:
-            return Outcome(TIMEOUT, detail=f"{self.budget.seconds:g} s")
+            while not connection.poll(0.1):
+                if self._cancelled.is_set():
+                    return Outcome(CANCELLED)
+                if time.monotonic() > deadline:
+                    return Outcome(TIMEOUT, detail=f"{self.budget.seconds:g} s")
+            status, value = connection.recv()
         except (EOFError, OSError, pickle.UnpicklingError):
             if self._cancelled.is_set():
                 return Outcome(CANCELLED)
             return Outcome(CRASHED, detail="the worker process ended")
-        status, value = reply
         if status == MEMORY:
             return Outcome(MEMORY, detail=f"{self.budget.memory_mb} MiB")
         if status == FAILED:
@@ -133,49 +145,30 @@ class Worker:
         return Outcome(OK, value)
 
     def _stop(self) -> None:
-        process, self._process = self._process, None
-        if process is None:
+        child, self._child = self._child, None
+        if child is None:
             return
-        if process.poll() is None:
+        process, connection = child
+        if process.is_alive():
             process.kill()
-        process.wait()
-        for stream in (process.stdin, process.stdout):
-            try:
-                stream.close()
-            except OSError:
-                pass
+        process.join()
+        connection.close()
 
 
-# ---- frames ---------------------------------------------------------------------------
-def _write_frame(stream, obj) -> None:
-    body = pickle.dumps(obj, protocol=pickle.HIGHEST_PROTOCOL)
-    stream.write(HEADER.pack(len(body)) + body)
-    stream.flush()
+_CONTEXT = None
 
 
-def _read_frame(stream, deadline: float, cancelled: threading.Event):
-    header = _read_exactly(stream, HEADER.size, deadline, cancelled)
-    (size,) = HEADER.unpack(header)
-    return pickle.loads(_read_exactly(stream, size, deadline, cancelled))
-
-
-def _read_exactly(stream, size: int, deadline: float, cancelled: threading.Event) -> bytes:
-    chunks, missing, fd = [], size, stream.fileno()
-    while missing:
-        if cancelled.is_set():
-            raise EOFError("cancelled")
-        remaining = deadline - time.monotonic()
-        if remaining <= 0:
-            raise TimeoutError
-        readable, _, _ = select.select([fd], [], [], min(remaining, 0.2))
-        if not readable:
-            continue
-        chunk = os.read(fd, min(missing, 1 << 20))
-        if not chunk:
-            raise EOFError("the worker closed its pipe")
-        chunks.append(chunk)
-        missing -= len(chunk)
-    return b"".join(chunks)
+def _context():
+    """A forkserver context whose server has imported the checker (once per server process)."""
+    global _CONTEXT
+    if _CONTEXT is None:
+        import multiprocessing
+        for name in ("OPENBLAS_NUM_THREADS", "OMP_NUM_THREADS", "MKL_NUM_THREADS"):
+            os.environ.setdefault(name, "1")  # one thread each: the budget is per process
+        context = multiprocessing.get_context("forkserver")
+        context.set_forkserver_preload(PRELOAD)
+        _CONTEXT = context
+    return _CONTEXT
 
 
 # ---- the child ----------------------------------------------------------------------------
@@ -197,24 +190,23 @@ def _refusable(function):
     return run
 
 
-def _child_main(memory_mb: int) -> None:
+def _child_main(connection, memory_mb: int) -> None:
+    """The child: limit the address space, then answer jobs until the pipe closes."""
     import resource
     limit = memory_mb * 1024 * 1024
     resource.setrlimit(resource.RLIMIT_AS, (limit, limit))
-    stdin, stdout = sys.stdin.buffer, sys.stdout.buffer
-    sys.stdout = sys.stderr  # a stray print must not corrupt the frames
     jobs = _jobs()
-    _write_frame(stdout, ("ready",))
+    connection.send(("ready",))
     while True:
-        header = stdin.read(HEADER.size)
-        if len(header) < HEADER.size:
+        try:
+            name, args = connection.recv()
+        except EOFError:
             return
-        name, args = pickle.loads(stdin.read(HEADER.unpack(header)[0]))
         reply = _run_job(jobs[name], args)
         try:
-            _write_frame(stdout, reply)
+            connection.send(reply)
         except MemoryError:
-            _write_frame(stdout, (MEMORY, None))
+            connection.send((MEMORY, None))
 
 
 def _run_job(function, args) -> tuple:
@@ -226,7 +218,3 @@ def _run_job(function, args) -> tuple:
         return FAILED, "the program nests too deeply to check"
     except Exception as exc:  # a bug in a check must not end the worker's reply
         return FAILED, f"{type(exc).__name__}: {exc}"
-
-
-if __name__ == "__main__":
-    _child_main(int(sys.argv[1]))

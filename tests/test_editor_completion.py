@@ -1,0 +1,136 @@
+"""Completion contexts, signature help, quick fixes and the wire guard, without a server
+(the end-to-end checks over stdio are in test_editor_lsp*.py)."""
+from __future__ import annotations
+
+import io
+
+import pytest
+
+from conftest import ROOT
+from seqlang.editor import actions
+from seqlang.editor.analysis import analyse
+from seqlang.editor.completion import Names, completion_items, grammar_words, key_detail, rig_block_keys, \
+    statement_keys
+from seqlang.editor.format_edits import apply, range_edits
+from seqlang.editor.signatures import call_at
+from seqlang.editor.transport import MAX_MESSAGE_BYTES, GuardedReader, bad_position
+from seqlang.lang.diagnostics import SeqlangError
+from seqlang.program import rig as rig_module
+
+PROGRAMS = ROOT / "programs"
+
+
+def labels_at(path, text: str, needle: str, extra: int = 0) -> list[str]:
+    analysis = analyse(str(path), text, {})
+    offset = text.index(needle) + extra
+    names = Names(tuple(analysis.symbols), {f.path: f.text for f in analysis.files}, str(path), offset)
+    return [item.label for item in completion_items(text, offset, names)]
+
+
+@pytest.fixture(scope="module")
+def sequence():
+    path = PROGRAMS / "hold_and_image.seq"
+    return path, path.read_text()
+
+
+def test_statement_words_come_from_the_grammar():
+    grammar = (ROOT / "seqlang" / "grammar" / "seqlang.lark").read_text()
+    words = grammar_words()
+    # Every statement rule of the grammar starts with its word; none is left out.
+    for word in ("pulse", "wait", "together", "repeat", "do", "image", "switch", "set", "trigger", "let"):
+        assert word in words["statement"] and f'"{word}"' in grammar
+    assert "port" in words["rig"] and "sequence" in words["top"]
+
+
+def test_at_the_start_of_a_statement_the_statement_words(sequence):
+    path, text = sequence
+    assert labels_at(path, text, "  switch shutter_cs", 2) == list(grammar_words()["statement"])
+
+
+def test_after_switch_the_ports_then_on_and_off(sequence):
+    path, text = sequence
+    assert "shutter_cs" in labels_at(path, text, "switch shutter_cs", 7)
+    assert labels_at(path, text, "switch shutter_cs on", 18) == ["on", "off"]
+
+
+def test_after_a_number_in_a_wait_the_duration_units(sequence):
+    path, text = sequence
+    changed = text.replace("switch shutter_cs on", "wait 3 ")
+    assert labels_at(path, changed, "wait 3 ", 7) == ["s", "ms", "us", "ns", "ps"]
+
+
+def test_block_parameters_are_offered_only_inside_their_block():
+    path = PROGRAMS / "lib" / "decoupling.seq"
+    text = path.read_text()
+    inside = labels_at(path, text, "pulse mw_na area pi phase drive_phase", 26)
+    assert "drive_phase" in inside and "count" not in inside
+
+
+def test_rig_level_and_isotopes():
+    path = PROGRAMS / "millpond.rig"
+    text = path.read_text()
+    assert labels_at(path, text, "  tick", 2)[:5] == list(grammar_words()["rig"])
+    isotopes = labels_at(path, text, "species na = Na23", 13)
+    assert "Na23" in isotopes and "Cs133" in isotopes
+
+
+def test_every_schema_key_gets_a_detail():
+    # Data-driven: whatever keys the resolver declares, completion can describe them.
+    schemas = [statement_keys(w) for w in grammar_words()["statement"]]
+    schemas += [rig_block_keys(w, "rydberg") for w in ("species", "drive", "image", "port", "rig")]
+    keys = [key for schema in schemas for key in schema.values()]
+    assert len(keys) > 40
+    assert all(isinstance(key_detail(key), str) and key_detail(key) for key in keys)
+    assert key_detail(rig_module.PORT_KEYS["kind"]) == "one of: digital, analog"
+    assert key_detail(rig_module.RIG_SETTINGS["counter_bits"]).startswith("whole number")
+
+
+def test_signature_call_positions():
+    assert call_at("  do echo(", 10) == ("echo", 0)
+    assert call_at("  do echo(1 ms, sqrt(2), ", 25) == ("echo", 2)
+    assert call_at("  do echo(gap = 2", 17) == ("echo", "gap")
+    assert call_at("  let x = sqrt(", 15) is None
+
+
+def test_quick_fix_titles_from_the_checkers_own_messages(tmp_path):
+    rig = (PROGRAMS / "millpond.rig").read_text()
+    (tmp_path / "millpond.rig").write_text(rig)
+    text = (PROGRAMS / "rabi_ramsey.seq").read_text().replace("wait 100 us", "wait 100")
+    path = str(tmp_path / "x.seq")
+    (diagnostic,) = analyse(path, text, {}).diagnostics
+    from lsprotocol import types as lsp
+    where = lsp.Range(lsp.Position(0, 0), lsp.Position(0, 1))
+    fixes = actions.fixes_for(diagnostic, where, path, text)
+    assert [f.title for f in fixes][:2] == ["Add the unit `ns`", "Add the unit `s`"]
+    assert [f.preferred for f in fixes].count(True) == 1
+
+
+def test_range_formatting_refuses_when_leaving_changes_out_would_change_meaning():
+    text = "let a = 1\nsite d = na at (0,0) um\n"
+    edits = range_edits(text, "x.seq", 1, 1)
+    assert apply(text, edits) == "let a = 1\nsite d = na at (0, 0) um\n"
+    with pytest.raises(SeqlangError):
+        range_edits("let a = 1\nsite d = na at (0, 0) um;\n", "x.seq", 0, 0)
+
+
+@pytest.mark.parametrize("params, bad", [
+    ({"position": {"line": 0, "character": 0}}, False),
+    ({"position": {"line": -1, "character": 0}}, True),
+    ({"position": {"line": 0, "character": 2.0}}, True),
+    ({"position": {"line": True, "character": 0}}, True),
+    ({"range": {"start": {"line": 0, "character": 0}, "end": {"line": 0, "character": -2}}}, True),
+])
+def test_bad_positions_are_found(params, bad):
+    assert bool(bad_position(params)) is bad
+
+
+def test_the_reader_skips_an_oversized_message_and_finds_the_next():
+    refused = []
+    body = b'{"jsonrpc": "2.0", "method": "x"}'
+    stream = io.BufferedReader(io.BytesIO(
+        b"Content-Length: %d\r\n\r\n{lie}" % (MAX_MESSAGE_BYTES + 1) + b"Content-Length: %d\r\n\r\n" % len(body) + body))
+    reader = GuardedReader(stream, on_refused=refused.append)
+    assert reader._readline() == b"Content-Length: %d\r\n" % len(body)
+    assert reader._readline() == b"\r\n"
+    assert reader._readexactly(len(body)) == body
+    assert refused == [MAX_MESSAGE_BYTES + 1]

@@ -16,7 +16,9 @@ import os
 import threading
 import time
 from concurrent.futures import ThreadPoolExecutor
+from bisect import bisect_right
 from dataclasses import replace
+from functools import lru_cache
 from typing import Callable, Iterator
 
 from lsprotocol import types as lsp
@@ -113,21 +115,26 @@ def map_offset(new: str, old: str, offset: int) -> int | None:
     """Where the cursor at `offset` in `new` is in `old`, if its line is unchanged; else None."""
     if new == old:
         return offset
-    new_lines, old_lines = new.splitlines(keepends=True), old.splitlines(keepends=True)
     line = new.count("\n", 0, offset)
     column = offset - (new.rfind("\n", 0, offset) + 1)
+    old_starts, mapped = _line_map(new, old)
+    target = next((j + line - i for i, j, size in mapped if i <= line < i + size), None)
+    return None if target is None else old_starts[target] + column
+
+
+@lru_cache(maxsize=8)
+def _line_map(new: str, old: str) -> tuple[list[int], list[tuple[int, int, int]]]:
+    """(offsets of the old text's lines, the runs of unchanged lines as (new line, old line, count)).
+    Cached: completion and hover ask again for the same pair of texts at every keystroke."""
+    new_lines, old_lines = new.splitlines(keepends=True), old.splitlines(keepends=True)
+    starts = [0]
+    for line in old_lines:
+        starts.append(starts[-1] + len(line))
     if max(len(new_lines), len(old_lines)) > MAX_MAPPED_LINES:
-        mapped = line if line < len(old_lines) and line < len(new_lines) and new_lines[line] == old_lines[line] else None
-    else:
-        mapped = None
-        matcher = difflib.SequenceMatcher(None, new_lines, old_lines, autojunk=False)
-        for i, j, size in matcher.get_matching_blocks():
-            if i <= line < i + size:
-                mapped = j + line - i
-                break
-    if mapped is None:
-        return None
-    return sum(len(x) for x in old_lines[:mapped]) + column
+        same = [(i, i, 1) for i in range(min(len(new_lines), len(old_lines))) if new_lines[i] == old_lines[i]]
+        return starts, same
+    matcher = difflib.SequenceMatcher(None, new_lines, old_lines, autojunk=False)
+    return starts, [tuple(block) for block in matcher.get_matching_blocks()]
 
 
 # ---- hover text --------------------------------------------------------------------------
@@ -376,9 +383,14 @@ class SeqlangServer(LanguageServer):
             self.checker = Checker(self, self.budget)
             threading.Thread(target=self.formatter.start, daemon=True).start()  # warm, for format-on-save
         self.checker.schedule(uri)
+        self.recheck_dependents(uri)
+
+    def recheck_dependents(self, uri: str) -> None:
+        """Re-check the open documents that `use` or `import` this one."""
+        path = self.path_of(uri)
         for other_uri in list(self.workspace.text_documents):
             other = self.analyses.get(self.path_of(other_uri))
-            if other_uri != uri and other is not None and path in other.depends_on:
+            if other_uri != uri and other is not None and path in other.depends_on and self.checker:
                 self.checker.schedule(other_uri)
 
     def from_worker(self, uri: str, text: str, outcome: jobs.Outcome) -> None:
@@ -462,20 +474,34 @@ class SeqlangServer(LanguageServer):
             return analysis.checked.program
         return next((a.checked.program for a in self.last_good.values()), None)
 
-    def interaction(self, program, site, other, distance: float) -> str:
-        """`, V/h = ...` for two Rydberg-capable sites, computed once in the background."""
+    def pair_job(self, program, site, other):
+        """The background computation of C6 for two Rydberg-capable sites' species, or None."""
         sa, sb = program.rig.species[site.species], program.rig.species[other.species]
         if sa.rydberg is None or sb.rydberg is None:
-            return ""
+            return None
         key = (sa.data.name, sa.rydberg.label, sb.data.name, sb.rydberg.label)
         if key not in self.pair_results:
             from ..atoms import rydberg
             self.pair_results[key] = self.pair_jobs.submit(rydberg.c6_hz_m6, sa.data, sa.rydberg, sb.data, sb.rydberg)
-        job = self.pair_results[key]
-        try:
-            c6 = job.result(timeout=INTERACTION_WAIT_S)
-        except TimeoutError:
+        return self.pair_results[key]
+
+    async def wait_for_pairs(self, program, name: str) -> None:
+        """Give the interactions of a site's neighbours a moment (the loop keeps serving meanwhile)."""
+        site = program.sites[name]
+        waiting = [job for other in program.sites.values() if other.name != name
+                   for job in [self.pair_job(program, site, other)] if job is not None and not job.done()]
+        if waiting:
+            await asyncio.wait([asyncio.wrap_future(j) for j in waiting], timeout=INTERACTION_WAIT_S)
+
+    def interaction(self, program, site, other, distance: float) -> str:
+        """`, V/h = ...` for two Rydberg-capable sites, once computed in the background."""
+        job = self.pair_job(program, site, other)
+        if job is None:
+            return ""
+        if not job.done():
             return ", interaction: still being computed (hover again)"
+        try:
+            c6 = job.result()
         except Exception:
             return ", interaction: unavailable"
         from ..atoms import rydberg
@@ -538,6 +564,7 @@ def did_save(ls: SeqlangServer, params: lsp.DidSaveTextDocumentParams) -> None:
 @SERVER.feature(lsp.TEXT_DOCUMENT_DID_CLOSE)
 def did_close(ls: SeqlangServer, params: lsp.DidCloseTextDocumentParams) -> None:
     ls.forget(params.text_document.uri)
+    ls.recheck_dependents(params.text_document.uri)  # they now read the file from disk
     ls.text_document_publish_diagnostics(lsp.PublishDiagnosticsParams(params.text_document.uri, []))
 
 
@@ -555,11 +582,14 @@ def _cursor(ls: SeqlangServer, params) -> tuple[Analysis, Symbol | None, int] | 
 
 
 @SERVER.feature(lsp.TEXT_DOCUMENT_HOVER)
-def hover(ls: SeqlangServer, params: lsp.HoverParams) -> lsp.Hover | None:
+async def hover(ls: SeqlangServer, params: lsp.HoverParams) -> lsp.Hover | None:
     found = _cursor(ls, params)
     if found is None:
         return None
     analysis, symbol, offset = found
+    program = ls.program_for(analysis)
+    if symbol is not None and symbol.kind == "site" and program is not None and symbol.name in program.sites:
+        await ls.wait_for_pairs(program, symbol.name)
     text_of = _text_lookup(ls, analysis)
     parts = []
     pulse = statement_at(analysis.source, offset, ast.PulseStmt)
@@ -617,10 +647,12 @@ def _occurrences(source: ast.SourceFile, name: str) -> Iterator[lsp.Location]:
     from pygments.token import Name
     from .lexer import SeqlangLexer
     uri = from_fs_path(source.path)
+    starts = [0] + [i + 1 for i, char in enumerate(source.text) if char == "\n"]
     for offset, token, value in SeqlangLexer(stripnl=False, ensurenl=False).get_tokens_unprocessed(source.text):
         if value == name and token in Name:
-            start = position_of(source.text, offset)
-            yield lsp.Location(uri, lsp.Range(start, lsp.Position(start.line, start.character + len(name))))
+            line = bisect_right(starts, offset) - 1
+            column = offset - starts[line]
+            yield lsp.Location(uri, lsp.Range(lsp.Position(line, column), lsp.Position(line, column + len(name))))
 
 
 # ---- completion and signature help ------------------------------------------------------------------

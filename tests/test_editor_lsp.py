@@ -300,6 +300,12 @@ def test_an_invalid_position_gets_an_error_response(server, line, character):
     still_answers(server)
 
 
+def test_a_request_without_its_parameters_gets_an_error_response(server):
+    client, _, _ = server
+    assert raw_request(client, "textDocument/hover", {})["error"]["code"] == -32602
+    still_answers(server)
+
+
 def test_a_document_never_opened_is_not_read_from_disk(server, workdir):
     client, _, _ = server
     # A named pipe: reading it would block the server for good, so an answer proves it was not read.

@@ -116,7 +116,7 @@ class Worker:
         self._stop()
         context = _context()
         ours, theirs = context.Pipe()
-        process = context.Process(target=_child_main, args=(theirs, self.budget.memory_mb),
+        process = context.Process(target=_child_main, args=(theirs, self.budget.memory_mb, os.getpid()),
                                   name="seqlang-lsp-worker", daemon=True)
         process.start()
         theirs.close()
@@ -190,11 +190,12 @@ def _refusable(function):
     return run
 
 
-def _child_main(connection, memory_mb: int) -> None:
+def _child_main(connection, memory_mb: int, owner: int) -> None:
     """The child: limit the address space, then answer jobs until the pipe closes."""
     import resource
     limit = memory_mb * 1024 * 1024
     resource.setrlimit(resource.RLIMIT_AS, (limit, limit))
+    threading.Thread(target=_end_with, args=(owner,), daemon=True).start()
     jobs = _jobs()
     connection.send(("ready",))
     while True:
@@ -207,6 +208,18 @@ def _child_main(connection, memory_mb: int) -> None:
             connection.send(reply)
         except MemoryError:
             connection.send((MEMORY, None))
+
+
+def _end_with(owner: int) -> None:
+    """End this child when the server that owns it is gone (even in the middle of a job)."""
+    while True:
+        time.sleep(1.0)
+        try:
+            os.kill(owner, 0)
+        except ProcessLookupError:
+            os._exit(0)
+        except PermissionError:
+            pass
 
 
 def _run_job(function, args) -> tuple:

@@ -78,15 +78,19 @@ def _inclusion_span(analysis: Analysis, other: str) -> Span:
 
 def budget_diagnostic(path: str, outcome: jobs.Outcome, budget: jobs.Budget) -> Diagnostic:
     """Why a check did not finish, as a warning at the top of the file."""
-    where = Span(path, 1, 1, 1, 1)
+    hint = {jobs.TIMEOUT: "run `seqlang check` on the command line, or raise SEQLANG_LSP_CHECK_SECONDS",
+            jobs.MEMORY: "run `seqlang check` on the command line, or raise SEQLANG_LSP_MEMORY_MB"}
+    return warning(f"not checked: {why_stopped(outcome, budget, 'checking')}", Span(path, 1, 1, 1, 1),
+                   hint.get(outcome.status))
+
+
+def why_stopped(outcome: jobs.Outcome, budget: jobs.Budget, what: str) -> str:
+    """Words for a worker job that did not finish."""
     if outcome.status == jobs.TIMEOUT:
-        return warning(f"not checked: checking took longer than the editor's budget of {budget.seconds:g} s",
-                       where, "run `seqlang check` on the command line, or raise SEQLANG_LSP_CHECK_SECONDS")
+        return f"{what} took longer than the editor's budget of {budget.seconds:g} s"
     if outcome.status == jobs.MEMORY:
-        return warning(f"not checked: checking needed more than the editor's budget of {budget.memory_mb} MiB",
-                       where, "run `seqlang check` on the command line, or raise SEQLANG_LSP_MEMORY_MB")
-    return warning(f"not checked: the checker stopped unexpectedly ({outcome.detail}); "
-                   f"this is a bug in seqlang {__version__}", where)
+        return f"{what} needed more than the editor's budget of {budget.memory_mb} MiB"
+    return f"the worker stopped unexpectedly ({outcome.detail}); this is a bug in seqlang {__version__}"
 
 
 # ---- positions ---------------------------------------------------------------------------
@@ -694,7 +698,7 @@ async def _format(ls: SeqlangServer, uri: str, job: str, *extra) -> list[lsp.Tex
     path = ls.path_of(uri)
     outcome = await asyncio.get_running_loop().run_in_executor(None, ls.formatter.run, job, text, path, *extra)
     if outcome.status != jobs.OK:
-        raise JsonRpcException(f"not formatted: {budget_diagnostic(path, outcome, ls.budget).message[13:]}",
+        raise JsonRpcException(f"not formatted: {why_stopped(outcome, ls.budget, 'formatting')}",
                                code=REQUEST_FAILED)
     edits, refusal = outcome.value
     if edits is None:

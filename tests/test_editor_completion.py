@@ -134,3 +134,33 @@ def test_the_reader_skips_an_oversized_message_and_finds_the_next():
     assert reader._readline() == b"\r\n"
     assert reader._readexactly(len(body)) == body
     assert refused == [MAX_MESSAGE_BYTES + 1]
+
+
+# ---- no position and no half-typed text makes completion fail -------------------------------------
+from hypothesis import HealthCheck, given, settings, strategies as st  # noqa: E402
+
+from seqlang.editor.server import map_offset  # noqa: E402
+
+_DEMO = (PROGRAMS / "hold_and_image.seq").read_text()
+_DEMO_ANALYSIS = analyse(str(PROGRAMS / "hold_and_image.seq"), _DEMO, {})
+
+
+def _line_and_column(text: str, offset: int) -> tuple[str, int]:
+    start = text.rfind("\n", 0, offset) + 1
+    end = text.find("\n", offset)
+    return text[start:end if end >= 0 else len(text)], offset - start
+
+
+@settings(max_examples=150, deadline=None, suppress_health_check=[HealthCheck.too_slow])
+@given(cut=st.integers(0, len(_DEMO)), length=st.integers(0, 40),
+       insert=st.text(alphabet=" \n{}(),=#\"-.abcdo_nup0123456789µ", max_size=12), where=st.integers(0, 10_000))
+def test_completion_and_cursor_mapping_never_fail_on_edited_text(cut, length, insert, where):
+    text = _DEMO[:cut] + insert + _DEMO[cut + length:]
+    offset = where % (len(text) + 1)
+    names = Names(tuple(_DEMO_ANALYSIS.symbols), {}, str(PROGRAMS / "hold_and_image.seq"), offset)
+    items = completion_items(text, offset, names)
+    assert all(item.label for item in items)
+    mapped = map_offset(text, _DEMO, offset)
+    if mapped is not None:  # the cursor's line is unchanged, and so is its column
+        assert _line_and_column(_DEMO, mapped) == _line_and_column(text, offset)
+    call_at(text, offset)

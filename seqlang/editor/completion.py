@@ -36,6 +36,7 @@ from .lexer import CONSTANTS, FUNCTIONS
 
 TOKEN = re.compile(r'"[^"\n]*"?|<->|->|\.\.|[A-Za-z_µ][A-Za-z0-9_]*|[0-9]+(?:\.[0-9]+)?(?:[eE][+-]?[0-9]+)?|\S')
 NUMBER = re.compile(r"[0-9]")
+BRACE = re.compile(r"[{}]")
 PROBE = Span("<completion>", 1, 1, 1, 1)
 BLOCK_HEADERS = ("sequence", "block", "together", "repeat")
 ANGLE_UNITS, FRACTION_UNITS = ("rad", "mrad", "deg", "pi"), ("%",)
@@ -238,14 +239,14 @@ def _in_comment_or_string(line: str) -> bool:
 def enclosing_header(text: str, offset: int) -> tuple[str, int]:
     """The text before the innermost unclosed `{` around `offset` (comments dropped) and its offset."""
     depth = 0
-    for position in range(offset - 1, -1, -1):
-        char = text[position]
-        if char == "}":
+    braces = [m.start() for m in BRACE.finditer(text, 0, offset)]  # found at C speed, walked back here
+    for position in reversed(braces):
+        if text[position] == "}":
             depth += 1
-        elif char == "{":
-            if depth == 0:
-                line_start = text.rfind("\n", 0, position) + 1
-                return text[line_start:position].split("#")[0], position
+        elif depth == 0:
+            line_start = text.rfind("\n", 0, position) + 1
+            return text[line_start:position].split("#")[0], position
+        else:
             depth -= 1
     return "", -1
 

@@ -10,7 +10,6 @@ last one that checked when the text has errors now (marked stale).
 from __future__ import annotations
 
 import asyncio
-import difflib
 import math
 import os
 import threading
@@ -40,7 +39,6 @@ from .transport import GuardedProtocol, GuardedReader
 MAX_DOCUMENT_CHARS = 4 * 1024 * 1024  # a larger document is not checked (hover and outline stay off)
 DEBOUNCE_S = 0.15  # edits closer together than this are checked once
 INTERACTION_WAIT_S = 2.0  # how long a hover waits for a pair interaction before saying "computing"
-MAX_MAPPED_LINES = 20_000  # beyond this, a stale analysis is only used where the text is unchanged
 REQUEST_FAILED = -32803  # LSP 3.17: the request was well formed but could not be carried out
 
 
@@ -116,29 +114,45 @@ def position_of(text: str, offset: int) -> lsp.Position:
 
 
 def map_offset(new: str, old: str, offset: int) -> int | None:
-    """Where the cursor at `offset` in `new` is in `old`, if its line is unchanged; else None."""
+    """Where the cursor at `offset` in `new` is in `old`, when its line lies above or below
+    the changed part of the text (the usual case: one region edited since); else None."""
     if new == old:
         return offset
-    line = new.count("\n", 0, offset)
-    column = offset - (new.rfind("\n", 0, offset) + 1)
-    old_starts, mapped = _line_map(new, old)
-    target = next((j + line - i for i, j, size in mapped if i <= line < i + size), None)
-    return None if target is None else old_starts[target] + column
+    line_start = new.rfind("\n", 0, offset) + 1
+    line_end = new.find("\n", offset)
+    line_end = len(new) if line_end < 0 else line_end
+    prefix, suffix = _unchanged_ends(new, old)
+    if line_end < prefix:  # the change is below the cursor's line
+        return offset
+    if line_start > len(new) - suffix:  # the change is above the cursor's line
+        return offset - len(new) + len(old)
+    return None
 
 
 @lru_cache(maxsize=8)
-def _line_map(new: str, old: str) -> tuple[list[int], list[tuple[int, int, int]]]:
-    """(offsets of the old text's lines, the runs of unchanged lines as (new line, old line, count)).
-    Cached: completion and hover ask again for the same pair of texts at every keystroke."""
-    new_lines, old_lines = new.splitlines(keepends=True), old.splitlines(keepends=True)
-    starts = [0]
-    for line in old_lines:
-        starts.append(starts[-1] + len(line))
-    if max(len(new_lines), len(old_lines)) > MAX_MAPPED_LINES:
-        same = [(i, i, 1) for i in range(min(len(new_lines), len(old_lines))) if new_lines[i] == old_lines[i]]
-        return starts, same
-    matcher = difflib.SequenceMatcher(None, new_lines, old_lines, autojunk=False)
-    return starts, [tuple(block) for block in matcher.get_matching_blocks()]
+def _unchanged_ends(new: str, old: str) -> tuple[int, int]:
+    """How many characters at the start and at the end two texts share (without overlap).
+    Cached: completion and hover ask again for the same pair of texts."""
+    prefix = _common_length(min(len(new), len(old)), lambda i, j: new[i:j] == old[i:j])
+    room = min(len(new), len(old)) - prefix
+    suffix = _common_length(room, lambda i, j: new[len(new) - j:len(new) - i] == old[len(old) - j:len(old) - i])
+    return prefix, suffix
+
+
+def _common_length(limit: int, same: Callable[[int, int], bool], block: int = 65536) -> int:
+    """The largest n <= limit with same(0, n): whole blocks first, then bisection inside the
+    first block that differs (slices compare at C speed; each character is copied about once)."""
+    start = 0
+    while start < limit and same(start, min(start + block, limit)):
+        start = min(start + block, limit)
+    low, high = start, min(start + block, limit)
+    while low < high:
+        middle = (low + high + 1) // 2
+        if same(start, middle):
+            low = middle
+        else:
+            high = middle - 1
+    return low
 
 
 # ---- hover text --------------------------------------------------------------------------

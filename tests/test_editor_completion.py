@@ -164,3 +164,22 @@ def test_completion_and_cursor_mapping_never_fail_on_edited_text(cut, length, in
     if mapped is not None:  # the cursor's line is unchanged, and so is its column
         assert _line_and_column(_DEMO, mapped) == _line_and_column(text, offset)
     call_at(text, offset)
+
+
+def test_positions_count_the_clients_code_units():
+    # LSP 3.17: UTF-16 by default; an astral character (outside the BMP) takes two units.
+    from lsprotocol import types as lsp
+    from seqlang.editor.positions import offset_of, position_of, span_range
+    from seqlang.lang.diagnostics import Span
+    text = "let a = 1  # 😀 note\nlet µ_b = 2 us\n"
+    after_emoji = text.index(" note")
+    assert position_of(text, after_emoji, "utf-16") == lsp.Position(0, after_emoji + 1)
+    assert position_of(text, after_emoji, "utf-32") == lsp.Position(0, after_emoji)
+    assert position_of(text, after_emoji, "utf-8") == lsp.Position(0, after_emoji + 3)
+    for encoding in ("utf-8", "utf-16", "utf-32"):
+        assert offset_of(text, position_of(text, after_emoji, encoding), encoding) == after_emoji
+    # A span on the emoji's line, after it (1-based code-point columns in seqlang's spans).
+    column = after_emoji + 2
+    shown = span_range(Span("x.seq", 1, column, 1, column + 4), text, "utf-16")
+    assert (shown.start.character, shown.end.character) == (column, column + 4)
+    assert offset_of(text, lsp.Position(1, 999)) == len(text) - 1  # past the end of the line: its end

@@ -15,7 +15,6 @@ import os
 import threading
 import time
 from concurrent.futures import ThreadPoolExecutor
-from bisect import bisect_right
 from dataclasses import replace
 from functools import lru_cache
 from typing import Callable, Iterator
@@ -34,6 +33,7 @@ from .actions import code_action, fixes_for
 from .analysis import Analysis, Symbol, declared_by, find_symbol, relative_path, statement_at, word_at
 from .completion import Names, completion_items, signature
 from .formatter import expression
+from .positions import UTF16, offset_of, position_of, span_range
 from .transport import GuardedProtocol, GuardedReader
 
 MAX_DOCUMENT_CHARS = 4 * 1024 * 1024  # a larger document is not checked (hover and outline stay off)
@@ -43,14 +43,7 @@ REQUEST_FAILED = -32803  # LSP 3.17: the request was well formed but could not b
 
 
 # ---- diagnostics in LSP terms -----------------------------------------------------
-def lsp_range(span: Span) -> lsp.Range:
-    """1-based inclusive-start/exclusive-end columns to LSP's 0-based positions."""
-    start = lsp.Position(max(span.line - 1, 0), max(span.column - 1, 0))
-    end = lsp.Position(max(span.end_line - 1, 0), max(span.end_column - 1, 0))
-    return lsp.Range(start, end)
-
-
-def lsp_diagnostics(analysis: Analysis) -> list[tuple[lsp.Diagnostic, Diagnostic]]:
+def lsp_diagnostics(analysis: Analysis, encoding: str = UTF16) -> list[tuple[lsp.Diagnostic, Diagnostic]]:
     """The analysis's diagnostics, each beside its own; those in other files are shown at the
     `use`/`import` line."""
     out = []
@@ -61,7 +54,8 @@ def lsp_diagnostics(analysis: Analysis) -> list[tuple[lsp.Diagnostic, Diagnostic
             message = f"in {span.label()}: {message}"
             span = _inclusion_span(analysis, span.file)
         severity = lsp.DiagnosticSeverity.Error if diag.is_error else lsp.DiagnosticSeverity.Warning
-        out.append((lsp.Diagnostic(lsp_range(span), message, severity=severity, source="seqlang"), diag))
+        shown = span_range(span, analysis.text, encoding)
+        out.append((lsp.Diagnostic(shown, message, severity=severity, source="seqlang"), diag))
     return out
 
 
@@ -92,27 +86,6 @@ def why_stopped(outcome: jobs.Outcome, budget: jobs.Budget, what: str) -> str:
 
 
 # ---- positions ---------------------------------------------------------------------------
-def offset_of(text: str, position: lsp.Position) -> int:
-    """The text offset of an LSP position; a line or character past the end means the end
-    (as the protocol says). Columns count code points."""
-    line_start = 0
-    for _ in range(position.line):
-        newline = text.find("\n", line_start)
-        if newline < 0:
-            return len(text)
-        line_start = newline + 1
-    line_end = text.find("\n", line_start)
-    line_end = len(text) if line_end < 0 else line_end
-    return min(line_start + position.character, line_end)
-
-
-def position_of(text: str, offset: int) -> lsp.Position:
-    """The LSP position of a text offset."""
-    offset = min(offset, len(text))
-    line = text.count("\n", 0, offset)
-    return lsp.Position(line, offset - (text.rfind("\n", 0, offset) + 1))
-
-
 def map_offset(new: str, old: str, offset: int) -> int | None:
     """Where the cursor at `offset` in `new` is in `old`, when its line lies above or below
     the changed part of the text (the usual case: one region edited since); else None."""
@@ -271,7 +244,7 @@ _OUTLINE_KIND = {
 }
 
 
-def outline(source: ast.SourceFile) -> list[lsp.DocumentSymbol]:
+def outline(source: ast.SourceFile, encoding: str = UTF16) -> list[lsp.DocumentSymbol]:
     """Top-level declarations, with the rig's declarations and a block's parameters inside them."""
     out = []
     for item in source.items:
@@ -279,14 +252,15 @@ def outline(source: ast.SourceFile) -> list[lsp.DocumentSymbol]:
         if not symbols:
             continue
         head, children = symbols[0], [s for s in symbols[1:] if s.kind != "constant" or s.scope is None]
-        out.append(_document_symbol(head, [_document_symbol(c, []) for c in children]))
+        inner = [_document_symbol(c, [], source.text, encoding) for c in children]
+        out.append(_document_symbol(head, inner, source.text, encoding))
     return out
 
 
-def _document_symbol(symbol: Symbol, children: list) -> lsp.DocumentSymbol:
+def _document_symbol(symbol: Symbol, children: list, text: str, encoding: str) -> lsp.DocumentSymbol:
     return lsp.DocumentSymbol(name=symbol.name, kind=_OUTLINE_KIND[symbol.kind], detail=symbol.kind,
-                              range=lsp_range(symbol.node.span), selection_range=lsp_range(symbol.span),
-                              children=children or None)
+                              range=span_range(symbol.node.span, text, encoding),
+                              selection_range=span_range(symbol.span, text, encoding), children=children or None)
 
 
 # ---- checking in the background ------------------------------------------------------------------
@@ -372,6 +346,15 @@ class SeqlangServer(LanguageServer):
             raise JsonRpcInvalidParams(f"the document {uri} is not open (send textDocument/didOpen first)")
         return document
 
+    @property
+    def encoding(self) -> str:
+        """The position encoding agreed with the client (UTF-16 unless it offered another)."""
+        try:
+            chosen = self.workspace.position_encoding
+        except RuntimeError:  # before `initialize`
+            chosen = None
+        return str(getattr(chosen, "value", chosen) or UTF16)
+
     @staticmethod
     def path_of(uri: str) -> str:
         return os.path.normpath(to_fs_path(uri) or uri)
@@ -433,7 +416,7 @@ class SeqlangServer(LanguageServer):
             self.last_parsed[analysis.path] = analysis
         if analysis.checked is not None:
             self.last_good[analysis.path] = analysis
-        pairs = lsp_diagnostics(analysis)
+        pairs = lsp_diagnostics(analysis, self.encoding)
         self.published[analysis.path] = pairs
         self.text_document_publish_diagnostics(lsp.PublishDiagnosticsParams(uri, [d for d, _ in pairs]))
 
@@ -590,7 +573,7 @@ def did_close(ls: SeqlangServer, params: lsp.DidCloseTextDocumentParams) -> None
 def _cursor(ls: SeqlangServer, params) -> tuple[Analysis, Symbol | None, int] | None:
     """(the analysis to answer from, the symbol under the cursor or None, the cursor in its text)."""
     document = ls.document(params.text_document.uri)
-    found = ls.for_hover(params.text_document.uri, offset_of(document.source, params.position))
+    found = ls.for_hover(params.text_document.uri, offset_of(document.source, params.position, ls.encoding))
     if found is None:
         return None
     analysis, offset = found
@@ -645,8 +628,11 @@ def _symbol_hover(ls: SeqlangServer, symbol: Symbol, analysis: Analysis, text_of
 @SERVER.feature(lsp.TEXT_DOCUMENT_DEFINITION)
 def definition(ls: SeqlangServer, params: lsp.DefinitionParams) -> lsp.Location | None:
     found = _cursor(ls, params)
-    symbol = found[1] if found else None
-    return lsp.Location(from_fs_path(symbol.span.file), lsp_range(symbol.span)) if symbol else None
+    if found is None or found[1] is None:
+        return None
+    symbol = found[1]
+    text = _text_lookup(ls, found[0])(symbol.span) or None
+    return lsp.Location(from_fs_path(symbol.span.file), span_range(symbol.span, text, ls.encoding))
 
 
 @SERVER.feature(lsp.TEXT_DOCUMENT_REFERENCES)
@@ -658,19 +644,17 @@ def references(ls: SeqlangServer, params: lsp.ReferenceParams) -> list[lsp.Locat
     files = {f.path: f for f in analysis.files}
     for other in ls.last_parsed.values():
         files.setdefault(other.path, other.source)
-    return [loc for f in files.values() for loc in _occurrences(f, symbol.name)]
+    return [loc for f in files.values() for loc in _occurrences(f, symbol.name, ls.encoding)]
 
 
-def _occurrences(source: ast.SourceFile, name: str) -> Iterator[lsp.Location]:
+def _occurrences(source: ast.SourceFile, name: str, encoding: str) -> Iterator[lsp.Location]:
     from pygments.token import Name
     from .lexer import SeqlangLexer
     uri = from_fs_path(source.path)
-    starts = [0] + [i + 1 for i, char in enumerate(source.text) if char == "\n"]
     for offset, token, value in SeqlangLexer(stripnl=False, ensurenl=False).get_tokens_unprocessed(source.text):
         if value == name and token in Name:
-            line = bisect_right(starts, offset) - 1
-            column = offset - starts[line]
-            yield lsp.Location(uri, lsp.Range(lsp.Position(line, column), lsp.Position(line, column + len(name))))
+            yield lsp.Location(uri, lsp.Range(position_of(source.text, offset, encoding),
+                                              position_of(source.text, offset + len(name), encoding)))
 
 
 # ---- completion and signature help ------------------------------------------------------------------
@@ -678,7 +662,7 @@ def _occurrences(source: ast.SourceFile, name: str) -> Iterator[lsp.Location]:
 def completion(ls: SeqlangServer, params: lsp.CompletionParams) -> lsp.CompletionList:
     document = ls.document(params.text_document.uri)
     path, text = ls.path_of(params.text_document.uri), document.source
-    offset = offset_of(text, params.position)
+    offset = offset_of(text, params.position, ls.encoding)
     parsed = ls.parsed(path)
     symbols = tuple(parsed.symbols) if parsed else ()
     texts = ls.texts(parsed) if parsed else {}
@@ -691,7 +675,7 @@ def signature_help(ls: SeqlangServer, params: lsp.SignatureHelpParams) -> lsp.Si
     from .signatures import call_at, signature_information
     document = ls.document(params.text_document.uri)
     text = document.source
-    call = call_at(text, offset_of(text, params.position))
+    call = call_at(text, offset_of(text, params.position, ls.encoding))
     parsed = ls.parsed(ls.path_of(params.text_document.uri))
     if call is None or parsed is None:
         return None
@@ -717,14 +701,14 @@ async def _format(ls: SeqlangServer, uri: str, job: str, *extra) -> list[lsp.Tex
     edits, refusal = outcome.value
     if edits is None:
         raise JsonRpcException("not formatted: " + render(refusal[0]).splitlines()[0], code=REQUEST_FAILED)
-    return [lsp.TextEdit(_line_range(text, first, last), new) for first, last, new in edits]
+    return [lsp.TextEdit(_line_range(text, first, last, ls.encoding), new) for first, last, new in edits]
 
 
-def _line_range(text: str, first: int, last: int) -> lsp.Range:
+def _line_range(text: str, first: int, last: int, encoding: str) -> lsp.Range:
     lines = text.splitlines(keepends=True)
     start = sum(len(line) for line in lines[:first])
     end = sum(len(line) for line in lines[:last])
-    return lsp.Range(position_of(text, start), position_of(text, end))
+    return lsp.Range(position_of(text, start, encoding), position_of(text, end, encoding))
 
 
 @SERVER.feature(lsp.TEXT_DOCUMENT_FORMATTING)
@@ -763,7 +747,7 @@ def _overlaps(a: lsp.Range, b: lsp.Range) -> bool:
 def document_symbol(ls: SeqlangServer, params: lsp.DocumentSymbolParams) -> list[lsp.DocumentSymbol]:
     ls.document(params.text_document.uri)
     parsed = ls.parsed(ls.path_of(params.text_document.uri))
-    return outline(parsed.source) if parsed else []
+    return outline(parsed.source, ls.encoding) if parsed else []
 
 
 def serve() -> None:

@@ -9,7 +9,7 @@ from __future__ import annotations
 
 import os
 import re
-from dataclasses import dataclass, field
+from dataclasses import dataclass
 from functools import cached_property
 from typing import Callable, Iterator, Mapping
 
@@ -33,7 +33,6 @@ class Analysis:
     diagnostics: tuple[Diagnostic, ...]
     related: tuple[ast.SourceFile, ...] = ()
     includes: frozenset[str] = frozenset()  # every file it `use`s or `import`s, parsed or not
-    stale: bool = field(default=False, compare=False)  # set on a last good analysis shown for newer text
 
     @property
     def files(self) -> list[ast.SourceFile]:

@@ -15,7 +15,6 @@ import os
 import threading
 import time
 from concurrent.futures import ThreadPoolExecutor
-from dataclasses import replace
 from functools import lru_cache
 from typing import Callable, Iterator
 
@@ -37,6 +36,7 @@ from .positions import UTF16, offset_of, position_of, span_range
 from .transport import GuardedProtocol, GuardedReader
 
 MAX_DOCUMENT_CHARS = 4 * 1024 * 1024  # a larger document is not checked (hover and outline stay off)
+MAX_REFERENCE_CHARS = 1024 * 1024  # files searched for references (the search lexes them whole)
 DEBOUNCE_S = 0.15  # edits closer together than this are checked once
 INTERACTION_WAIT_S = 2.0  # how long a hover waits for a pair interaction before saying "computing"
 REQUEST_FAILED = -32803  # LSP 3.17: the request was well formed but could not be carried out
@@ -436,22 +436,22 @@ class SeqlangServer(LanguageServer):
         """The latest analysis of a document that has a syntax tree."""
         return self.last_parsed.get(path)
 
-    def for_hover(self, uri: str, offset: int) -> tuple[Analysis, int] | None:
-        """The analysis to answer from and the cursor in its text: the current one when it
-        checked, else the last one that checked (stale) where the cursor's line is unchanged,
-        else the last one that parsed."""
+    def for_hover(self, uri: str, offset: int) -> tuple[Analysis, int, bool] | None:
+        """The analysis to answer from, the cursor in its text, and whether it is stale: the
+        current one when it checked, else the last one that checked where the cursor's line is
+        unchanged (stale), else the last one that parsed."""
         path, text = self.path_of(uri), self.document(uri).source
         current = self.analyses.get(path)
         good = self.last_good.get(path)
         if good is not None and (current is None or current.checked is None or current.text != text):
             mapped = map_offset(text, good.text, offset)
             if mapped is not None:
-                return (good if good is current else replace(good, stale=True)), mapped
+                return good, mapped, good is not current
         parsed = self.parsed(path)
         if parsed is not None:
             mapped = map_offset(text, parsed.text, offset)
             if mapped is not None:
-                return parsed, mapped
+                return parsed, mapped, False
         return None
 
     def texts(self, analysis: Analysis) -> dict[str, str]:
@@ -570,16 +570,17 @@ def did_close(ls: SeqlangServer, params: lsp.DidCloseTextDocumentParams) -> None
 
 
 # ---- hover, definition, references ------------------------------------------------------------------
-def _cursor(ls: SeqlangServer, params) -> tuple[Analysis, Symbol | None, int] | None:
-    """(the analysis to answer from, the symbol under the cursor or None, the cursor in its text)."""
+def _cursor(ls: SeqlangServer, params) -> tuple[Analysis, Symbol | None, int, bool] | None:
+    """(the analysis to answer from, the symbol under the cursor or None, the cursor in its
+    text, whether the analysis is of an older text)."""
     document = ls.document(params.text_document.uri)
     found = ls.for_hover(params.text_document.uri, offset_of(document.source, params.position, ls.encoding))
     if found is None:
         return None
-    analysis, offset = found
+    analysis, offset, stale = found
     word = word_at(analysis.text, offset)
     symbol = find_symbol(analysis.symbols, word[0], analysis.path, offset) if word else None
-    return analysis, symbol, offset
+    return analysis, symbol, offset, stale
 
 
 @SERVER.feature(lsp.TEXT_DOCUMENT_HOVER)
@@ -587,7 +588,7 @@ async def hover(ls: SeqlangServer, params: lsp.HoverParams) -> lsp.Hover | None:
     found = _cursor(ls, params)
     if found is None:
         return None
-    analysis, symbol, offset = found
+    analysis, symbol, offset, stale = found
     program = ls.program_for(analysis)
     if symbol is not None and symbol.kind == "site" and program is not None and symbol.name in program.sites:
         await ls.wait_for_pairs(program, symbol.name)
@@ -603,7 +604,7 @@ async def hover(ls: SeqlangServer, params: lsp.HoverParams) -> lsp.Hover | None:
         parts.append(block_call_hover(block, call, ls.program_for(analysis) if analysis.checked else None, text_of))
     elif symbol is not None:
         parts.append(_symbol_hover(ls, symbol, analysis, text_of))
-    if parts and analysis.stale:
+    if parts and stale:
         parts.append(STALE_NOTE)
     return lsp.Hover(lsp.MarkupContent(lsp.MarkupKind.Markdown, "\n\n---\n\n".join(parts))) if parts else None
 
@@ -640,11 +641,15 @@ def references(ls: SeqlangServer, params: lsp.ReferenceParams) -> list[lsp.Locat
     found = _cursor(ls, params)
     if found is None or found[1] is None:
         return []
-    analysis, symbol, _ = found
+    analysis, symbol = found[:2]
     files = {f.path: f for f in analysis.files}
     for other in ls.last_parsed.values():
         files.setdefault(other.path, other.source)
-    return [loc for f in files.values() for loc in _occurrences(f, symbol.name, ls.encoding)]
+    large = [path for path, f in files.items() if len(f.text) > MAX_REFERENCE_CHARS]
+    if large:
+        ls.log(f"seqlang: references not searched in {', '.join(large)} (over {MAX_REFERENCE_CHARS:,} characters)")
+    return [loc for f in files.values() if len(f.text) <= MAX_REFERENCE_CHARS
+            for loc in _occurrences(f, symbol.name, ls.encoding)]
 
 
 def _occurrences(source: ast.SourceFile, name: str, encoding: str) -> Iterator[lsp.Location]:

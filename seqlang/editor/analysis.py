@@ -16,6 +16,7 @@ from typing import Callable, Iterator, Mapping
 from ..lang import syntax as ast
 from ..lang.diagnostics import ERROR, Diagnostic, SeqlangError, Span
 from ..lang.parser import parse_text
+from ..lang.source_text import normalise
 
 MAX_INCLUDED_BYTES = 4 * 1024 * 1024  # an included file larger than this is not indexed
 WORD = re.compile(r"[A-Za-z_][A-Za-z0-9_]*")
@@ -70,6 +71,7 @@ class Symbol:
 
 def analyse(path: str, text: str, overlays: Mapping[str, str]) -> Analysis:
     """Parse and check a document; never raises (every failure becomes a diagnostic)."""
+    text = normalise(text)  # spans count CR LF and CR as one line end, as the parser does
     try:
         source = parse_text(text, path)
     except SeqlangError as exc:

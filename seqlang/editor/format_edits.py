@@ -8,6 +8,7 @@ import difflib
 
 from ..lang.diagnostics import SeqlangError, Span, error
 from ..lang.parser import parse_text
+from ..lang.source_text import normalise
 from .formatter import format_text, tree_shape
 
 Edit = tuple[int, int, str]  # replace source lines [first, last) with the text
@@ -18,10 +19,11 @@ def document_edits(text: str, path: str) -> list[Edit]:
 
     Raises :class:`SeqlangError` as ``seqlang fmt`` would refuse (a syntax error,
     or a layout that would change the meaning)."""
+    text = normalise(text)
     formatted = format_text(text, path)
     if formatted == text:
         return []
-    return [(0, len(text.splitlines(keepends=True)) + 1, formatted)]
+    return [(0, len(_lines(text)) + 1, formatted)]
 
 
 def range_edits(text: str, path: str, first_line: int, last_line: int) -> list[Edit]:
@@ -29,12 +31,19 @@ def range_edits(text: str, path: str, first_line: int, last_line: int) -> list[E
 
     The other changes are left out; the result is re-parsed and refused, as
     ``seqlang fmt`` refuses, if leaving them out would change the meaning."""
+    text = normalise(text)
     formatted = format_text(text, path)
-    old, new = text.splitlines(keepends=True), formatted.splitlines(keepends=True)
+    old, new = _lines(text), _lines(formatted)
     edits = [edit for edit in _hunks(old, new)
              if edit[0] <= last_line and (edit[1] - 1 if edit[1] > edit[0] else edit[0]) >= first_line]
     _check_same_meaning(text, apply(text, edits), path)
     return edits
+
+
+def _lines(text: str) -> list[str]:
+    """Lines with their `\n`, split only where the parser counts a line end."""
+    parts = text.split("\n")
+    return [p + "\n" for p in parts[:-1]] + ([parts[-1]] if parts[-1] else [])
 
 
 def _hunks(old: list[str], new: list[str]) -> list[Edit]:
@@ -53,7 +62,7 @@ def _hunks(old: list[str], new: list[str]) -> list[Edit]:
 
 def apply(text: str, edits: list[Edit]) -> str:
     """The text with line edits applied (edits in order, not overlapping)."""
-    lines = text.splitlines(keepends=True)
+    lines = _lines(text)
     for first, last, replacement in sorted(edits, reverse=True):
         lines[first:last] = [replacement]
     return "".join(lines)

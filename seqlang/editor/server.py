@@ -27,12 +27,13 @@ from .. import __version__
 from ..lang import syntax as ast
 from ..lang import units
 from ..lang.diagnostics import Diagnostic, Span, render, warning
+from ..lang.source_text import normalise
 from . import worker as jobs
 from .actions import code_action, fixes_for
 from .analysis import Analysis, Symbol, declared_by, find_symbol, relative_path, statement_at, word_at
 from .completion import Names, completion_items, signature
 from .formatter import expression
-from .positions import UTF16, offset_of, position_of, span_range
+from .positions import UTF16, line_starts, offset_of, position_of, span_range
 from .transport import GuardedProtocol, GuardedReader
 
 MAX_DOCUMENT_CHARS = 4 * 1024 * 1024  # a larger document is not checked (hover and outline stay off)
@@ -346,6 +347,11 @@ class SeqlangServer(LanguageServer):
             raise JsonRpcInvalidParams(f"the document {uri} is not open (send textDocument/didOpen first)")
         return document
 
+    def text(self, uri: str) -> str:
+        """An open document's text as the parser counts it (CR LF and CR made LF): analyses,
+        offsets and positions all refer to it; its line numbers are the client's."""
+        return normalise(self.document(uri).source)
+
     @property
     def encoding(self) -> str:
         """The position encoding agreed with the client (UTF-16 unless it offered another)."""
@@ -361,7 +367,7 @@ class SeqlangServer(LanguageServer):
 
     def overlays(self) -> dict[str, str]:
         """Texts of every open document, by the path the resolver would form."""
-        return {self.path_of(uri): d.source for uri, d in list(self.workspace.text_documents.items())
+        return {self.path_of(uri): normalise(d.source) for uri, d in list(self.workspace.text_documents.items())
                 if len(d.source) <= MAX_DOCUMENT_CHARS}
 
     def snapshot(self, uri: str) -> tuple[str, str, dict] | None:
@@ -369,11 +375,11 @@ class SeqlangServer(LanguageServer):
         document = self.workspace.text_documents.get(uri)
         if document is None:
             return None
-        return self.path_of(uri), document.source, self.overlays()
+        return self.path_of(uri), normalise(document.source), self.overlays()
 
     def edited(self, uri: str) -> None:
         """A document was opened, changed or saved: check it and the open documents that include it."""
-        text = self.document(uri).source
+        text = self.text(uri)
         path = self.path_of(uri)
         if len(text) > MAX_DOCUMENT_CHARS:
             message = (f"not checked: this document has {len(text):,} characters, more than the editor's "
@@ -406,7 +412,7 @@ class SeqlangServer(LanguageServer):
 
     def _accept_if_current(self, uri: str, analysis: Analysis) -> None:
         document = self.workspace.text_documents.get(uri)
-        if document is not None and document.source == analysis.text:
+        if document is not None and normalise(document.source) == analysis.text:
             self.accept(uri, analysis)
 
     def accept(self, uri: str, analysis: Analysis) -> None:
@@ -440,7 +446,7 @@ class SeqlangServer(LanguageServer):
         """The analysis to answer from, the cursor in its text, and whether it is stale: the
         current one when it checked, else the last one that checked where the cursor's line is
         unchanged (stale), else the last one that parsed."""
-        path, text = self.path_of(uri), self.document(uri).source
+        path, text = self.path_of(uri), self.text(uri)
         current = self.analyses.get(path)
         good = self.last_good.get(path)
         if good is not None and (current is None or current.checked is None or current.text != text):
@@ -573,8 +579,8 @@ def did_close(ls: SeqlangServer, params: lsp.DidCloseTextDocumentParams) -> None
 def _cursor(ls: SeqlangServer, params) -> tuple[Analysis, Symbol | None, int, bool] | None:
     """(the analysis to answer from, the symbol under the cursor or None, the cursor in its
     text, whether the analysis is of an older text)."""
-    document = ls.document(params.text_document.uri)
-    found = ls.for_hover(params.text_document.uri, offset_of(document.source, params.position, ls.encoding))
+    text = ls.text(params.text_document.uri)
+    found = ls.for_hover(params.text_document.uri, offset_of(text, params.position, ls.encoding))
     if found is None:
         return None
     analysis, offset, stale = found
@@ -665,8 +671,7 @@ def _occurrences(source: ast.SourceFile, name: str, encoding: str) -> Iterator[l
 # ---- completion and signature help ------------------------------------------------------------------
 @SERVER.feature(lsp.TEXT_DOCUMENT_COMPLETION, lsp.CompletionOptions(trigger_characters=[" ", ",", "("]))
 def completion(ls: SeqlangServer, params: lsp.CompletionParams) -> lsp.CompletionList:
-    document = ls.document(params.text_document.uri)
-    path, text = ls.path_of(params.text_document.uri), document.source
+    path, text = ls.path_of(params.text_document.uri), ls.text(params.text_document.uri)
     offset = offset_of(text, params.position, ls.encoding)
     parsed = ls.parsed(path)
     symbols = tuple(parsed.symbols) if parsed else ()
@@ -678,8 +683,7 @@ def completion(ls: SeqlangServer, params: lsp.CompletionParams) -> lsp.Completio
 @SERVER.feature(lsp.TEXT_DOCUMENT_SIGNATURE_HELP, lsp.SignatureHelpOptions(trigger_characters=["(", ","]))
 def signature_help(ls: SeqlangServer, params: lsp.SignatureHelpParams) -> lsp.SignatureHelp | None:
     from .signatures import call_at, signature_information
-    document = ls.document(params.text_document.uri)
-    text = document.source
+    text = ls.text(params.text_document.uri)
     call = call_at(text, offset_of(text, params.position, ls.encoding))
     parsed = ls.parsed(ls.path_of(params.text_document.uri))
     if call is None or parsed is None:
@@ -694,7 +698,7 @@ def signature_help(ls: SeqlangServer, params: lsp.SignatureHelpParams) -> lsp.Si
 
 # ---- formatting -------------------------------------------------------------------------------------
 async def _format(ls: SeqlangServer, uri: str, job: str, *extra) -> list[lsp.TextEdit]:
-    text = ls.document(uri).source
+    text = ls.text(uri)
     if len(text) > MAX_DOCUMENT_CHARS:
         raise JsonRpcException(f"not formatted: the document is larger than {MAX_DOCUMENT_CHARS:,} characters",
                                code=REQUEST_FAILED)
@@ -710,10 +714,9 @@ async def _format(ls: SeqlangServer, uri: str, job: str, *extra) -> list[lsp.Tex
 
 
 def _line_range(text: str, first: int, last: int, encoding: str) -> lsp.Range:
-    lines = text.splitlines(keepends=True)
-    start = sum(len(line) for line in lines[:first])
-    end = sum(len(line) for line in lines[:last])
-    return lsp.Range(position_of(text, start, encoding), position_of(text, end, encoding))
+    starts = line_starts(text)
+    offset = lambda line: starts[line] if line < len(starts) else len(text)  # noqa: E731
+    return lsp.Range(position_of(text, offset(first), encoding), position_of(text, offset(last), encoding))
 
 
 @SERVER.feature(lsp.TEXT_DOCUMENT_FORMATTING)
@@ -733,7 +736,7 @@ async def range_formatting(ls: SeqlangServer, params: lsp.DocumentRangeFormattin
                 lsp.CodeActionOptions(code_action_kinds=[lsp.CodeActionKind.QuickFix]))
 def code_actions(ls: SeqlangServer, params: lsp.CodeActionParams) -> list[lsp.CodeAction]:
     uri = params.text_document.uri
-    text = ls.document(uri).source
+    text = ls.text(uri)
     path = ls.path_of(uri)
     open_paths = [ls.path_of(u) for u in ls.workspace.text_documents]
     out = []

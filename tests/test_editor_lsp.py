@@ -149,6 +149,16 @@ def test_diagnostic_at_the_right_range_then_cleared(client, workdir):
     assert client.diagnostics_for(uri) == []
 
 
+def test_crlf_line_ends_give_the_same_positions(client, workdir):
+    # LSP 3.17: CR LF and CR end a line as LF does; the parser counts them the same way.
+    uri = _open(client, workdir / "crlf.seq", BROKEN.replace("\n", "\r\n"))
+    (diagnostic,) = client.diagnostics_for(uri)
+    assert diagnostic["range"] == {"start": {"line": 6, "character": 7}, "end": {"line": 6, "character": 12}}
+    result = client.request("textDocument/completion", {"textDocument": {"uri": uri},
+                                                         "position": _position(BROKEN, "pulse mw_na", 6)})
+    assert "mw_na" in [item["label"] for item in result["items"]]
+
+
 def test_syntax_error_is_reported_where_the_checker_puts_it(client, workdir):
     uri = _open(client, workdir / "syntax.seq", 'use "millpond.rig"\nsite d = na at (0, 0) um;\n')
     (diagnostic,) = client.diagnostics_for(uri)

@@ -139,7 +139,7 @@ def test_the_reader_skips_an_oversized_message_and_finds_the_next():
 # ---- no position and no half-typed text makes completion fail -------------------------------------
 from hypothesis import HealthCheck, given, settings, strategies as st  # noqa: E402
 
-from seqlang.editor.server import map_offset  # noqa: E402
+from seqlang.editor.positions import map_offset  # noqa: E402
 
 _DEMO = (PROGRAMS / "hold_and_image.seq").read_text()
 _DEMO_ANALYSIS = analyse(str(PROGRAMS / "hold_and_image.seq"), _DEMO, {})

@@ -13,6 +13,7 @@ from __future__ import annotations
 
 from bisect import bisect_right
 from functools import lru_cache
+from typing import Callable
 
 from lsprotocol import types as lsp
 
@@ -82,3 +83,46 @@ def span_range(span: Span, text: str | None, encoding: str = UTF16) -> lsp.Range
         _, written = _line(text, line)
         return lsp.Position(line, units(written[:column], encoding))
     return lsp.Range(position(span.line, span.column), position(span.end_line, span.end_column))
+
+
+# ---- a cursor in an older version of the text ----------------------------------------------
+def map_offset(new: str, old: str, offset: int) -> int | None:
+    """Where the cursor at `offset` in `new` is in `old`, when its line lies above or below
+    the changed part of the text (the usual case: one region edited since); else None."""
+    if new == old:
+        return offset
+    line_start = new.rfind("\n", 0, offset) + 1
+    line_end = new.find("\n", offset)
+    line_end = len(new) if line_end < 0 else line_end
+    prefix, suffix = _unchanged_ends(new, old)
+    if line_end < prefix:  # the change is below the cursor's line
+        return offset
+    if line_start > len(new) - suffix:  # the change is above the cursor's line
+        return offset - len(new) + len(old)
+    return None
+
+
+@lru_cache(maxsize=8)
+def _unchanged_ends(new: str, old: str) -> tuple[int, int]:
+    """How many characters at the start and at the end two texts share (without overlap).
+    Cached: completion and hover ask again for the same pair of texts."""
+    prefix = _common_length(min(len(new), len(old)), lambda i, j: new[i:j] == old[i:j])
+    room = min(len(new), len(old)) - prefix
+    suffix = _common_length(room, lambda i, j: new[len(new) - j:len(new) - i] == old[len(old) - j:len(old) - i])
+    return prefix, suffix
+
+
+def _common_length(limit: int, same: Callable[[int, int], bool], block: int = 65536) -> int:
+    """The largest n <= limit with same(0, n): whole blocks first, then bisection inside the
+    first block that differs (slices compare at C speed; each character is copied about once)."""
+    start = 0
+    while start < limit and same(start, min(start + block, limit)):
+        start = min(start + block, limit)
+    low, high = start, min(start + block, limit)
+    while low < high:
+        middle = (low + high + 1) // 2
+        if same(start, middle):
+            low = middle
+        else:
+            high = middle - 1
+    return low

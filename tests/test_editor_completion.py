@@ -183,3 +183,18 @@ def test_positions_count_the_clients_code_units():
     shown = span_range(Span("x.seq", 1, column, 1, column + 4), text, "utf-16")
     assert (shown.start.character, shown.end.character) == (column, column + 4)
     assert offset_of(text, lsp.Position(1, 999)) == len(text) - 1  # past the end of the line: its end
+
+
+def test_a_job_out_of_memory_is_reported_as_the_memory_budget():
+    # The worker turns MemoryError (what RLIMIT_AS gives) into its own status, and the
+    # server words it as a warning naming the budget and how to raise it.
+    from seqlang.editor import worker
+    from seqlang.editor.server import budget_diagnostic
+
+    def hungry():
+        raise MemoryError
+    assert worker._run_job(hungry, ()) == (worker.MEMORY, None)
+    budget = worker.Budget(seconds=3, memory_mb=600)
+    shown = budget_diagnostic("x.seq", worker.Outcome(worker.MEMORY), budget)
+    assert shown.message == "not checked: checking needed more than the editor's budget of 600 MiB"
+    assert "SEQLANG_LSP_MEMORY_MB" in shown.hint and not shown.is_error

@@ -198,3 +198,18 @@ def test_a_job_out_of_memory_is_reported_as_the_memory_budget():
     shown = budget_diagnostic("x.seq", worker.Outcome(worker.MEMORY), budget)
     assert shown.message == "not checked: checking needed more than the editor's budget of 600 MiB"
     assert "SEQLANG_LSP_MEMORY_MB" in shown.hint and not shown.is_error
+
+
+@pytest.mark.slow
+def test_the_worker_stops_a_check_at_its_memory_budget_and_serves_on(tmp_path):
+    # 10^6 pulses need far more than 100 MiB above the worker's start; RLIMIT_AS stops them.
+    from seqlang.editor.worker import MEMORY, OK, Budget, Worker
+    (tmp_path / "millpond.rig").write_text((PROGRAMS / "millpond.rig").read_text())
+    text = ('use "millpond.rig"\nsite d = na at (0, 0) um\n'
+            "sequence many {\n  repeat 1000000 { pulse mw_na area pi }\n}\n")
+    worker = Worker(Budget(seconds=120, memory_mb=260))
+    try:
+        assert worker.run("analyse", str(tmp_path / "many.seq"), text, {}).status == MEMORY
+        assert worker.run("format", "let  a=1\n", "x.seq").status == OK  # a fresh child
+    finally:
+        worker.close()

@@ -15,6 +15,7 @@ from ..lang import units
 from ..lang.diagnostics import Diagnostic, error
 from ..program.model import Drive, Program
 from . import envelopes
+from .decisions import largest_area, quantize_variants
 from .timeline import PULSE, Event, Timeline, evolve
 
 
@@ -76,7 +77,8 @@ def _needs_stretch(program: Program, event: Event, start: int, end: int, tick: f
     if event.kind != PULSE or end <= start:
         return False
     drive = program.rig.drives[event.drive]
-    return _rabi_for_area(event, (end - start) * tick) > drive.max_rabi_hz * (1 + 1e-12)
+    return _rabi_for_area(evolve(event, area_rad=largest_area(event)), (end - start) * tick) \
+        > drive.max_rabi_hz * (1 + 1e-12)
 
 
 def _pulse(drive: Drive, event: Event, start: int, end: int, tick: float) -> tuple[Event, float]:
@@ -85,7 +87,7 @@ def _pulse(drive: Drive, event: Event, start: int, end: int, tick: float) -> tup
     played = _amplitude_rounded(_rabi_for_area(event, duration), drive)
     area = envelopes.pulse_area(event.shape, duration, played)
     quantized = evolve(event, start_s=start * tick, duration_s=duration, rabi_hz=played, area_rad=area)
-    return quantized, area - event.area_rad
+    return quantize_variants(drive, quantized, _amplitude_rounded), area - event.area_rad
 
 
 def _rabi_for_area(event: Event, duration: float) -> float:

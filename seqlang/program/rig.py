@@ -75,6 +75,9 @@ IMAGE_KEYS = {
     "latency": p.Key(p.non_negative(p.duration), 0.0),
     "false_positive": p.Key(p.fraction, 0.0),
     "false_negative": p.Key(p.fraction, 0.0),
+    # Feed-forward: camera read-out plus processing, from the end of the imaging to
+    # the first operation that may depend on its record.
+    "decision_latency": p.Key(p.non_negative(p.duration), 0.0),
 }
 
 PORT_KEYS = {
@@ -226,7 +229,7 @@ def _imaging(decl: ast.ImageDecl, species: dict, scope: Scope, diags: list[Diagn
         return None
     extra = {"false_positive": v["false_positive"], "false_negative": v["false_negative"]}
     return Imaging(decl.species.name, v["port"], v["duration"], v["fidelity"], v["loss"], v["latency"],
-                   extra, decl.span)
+                   extra, decl.span, v["decision_latency"] or 0.0)
 
 
 def _port(decl: ast.PortDecl, scope: Scope, diags: list[Diagnostic]) -> Port:

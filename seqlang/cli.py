@@ -59,6 +59,9 @@ def cmd_show(args) -> int:
     print(timeline_table(sequence.checked))
     print()
     print(compile_summary(sequence.checked))
+    from .show import decision_summary
+    if decision_summary(sequence.checked):
+        print("\n" + decision_summary(sequence.checked))
     if not args.no_pairs and len(sequence.program.sites) > 1:
         table = pair_table(sequence.program)
         if table:

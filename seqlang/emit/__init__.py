@@ -5,6 +5,7 @@ import os
 
 from ..compile.pipeline import Checked
 from .atomic import write_bytes
+from .branches import branches_csv, has_branches
 from .tables import timing_csv, timing_json
 from .waveforms import waveforms_npz
 
@@ -17,6 +18,8 @@ def write_all(checked: Checked, directory: str) -> list[str]:
         "timing.json": timing_json(checked).encode("utf-8"),
         "waveforms.npz": waveforms_npz(checked),
     }
+    if has_branches(checked):
+        outputs["branches.csv"] = branches_csv(checked).encode("utf-8")
     paths = []
     for name, data in outputs.items():
         path = os.path.join(directory, name)

@@ -105,6 +105,7 @@ class Rig:
     ports: Mapping[str, Port]
     span: Span
     environment_k: float = 300.0  # temperature of the surroundings (black-body radiation)
+    field_rms_g: float = 0.0  # quasi-static field offset shared by the array, rms (G)
 
 
 @dataclass(frozen=True)

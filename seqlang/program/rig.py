@@ -14,11 +14,16 @@ from . import props as p
 from .evaluate import EvalError, Scope, evaluate
 from .model import DRIVE_KINDS, Drive, Imaging, Legs, Port, Rig, Species
 
+_PER_FIELD = tuple(f - g for f, g in zip(units.FREQUENCY, units.FIELD))  # Hz/G: qubit shift per field
+
 RIG_SETTINGS = {
     "tick": p.Key(p.positive(p.duration, "tick"), required=True, doc="the sequencer clock period, e.g. 2 ns"),
     "counter_bits": p.Key(p.integer(8, 64), 32, doc="width of the sequencer's duration counter"),
     "environment": p.Key(p.non_negative(p.temperature, "environment temperature"), 300.0,
                          doc="temperature of the surroundings, for black-body decay"),
+    # rms of the quasi-static magnetic field offset shared by the whole array (one value per shot);
+    # each species feels it through its `field_sensitivity`.
+    "field_rms": p.Key(p.non_negative(p.quantity(units.FIELD)), 0.0),
 }
 
 SPECIES_KEYS = {
@@ -33,6 +38,7 @@ SPECIES_KEYS = {
     "t2_star": p.Key(p.non_negative(p.duration), 0.0),
     "field_noise": p.Key(p.non_negative(p.frequency), 0.0),
     "field_noise_freq": p.Key(p.non_negative(p.frequency), 0.0),
+    "field_sensitivity": p.Key(p.quantity(_PER_FIELD), 0.0),
 }
 
 _COMMON_DRIVE_KEYS = {
@@ -109,7 +115,8 @@ def resolve_rig(rig: ast.RigDef, path: str, scope: Scope, diags: list[Diagnostic
                {k: v for k, v in species_map.items() if v is not None},
                {k: v for k, v in drive_map.items() if v is not None},
                {k: v for k, v in image_map.items() if v is not None}, port_map, rig.span,
-               settings["environment"] if settings["environment"] is not None else 300.0)
+               settings["environment"] if settings["environment"] is not None else 300.0,
+               settings["field_rms"] or 0.0)
 
 
 def _bind_lets(lets, scope: Scope, diags: list[Diagnostic]) -> None:

@@ -210,6 +210,7 @@ class Draws:
     bumps: np.ndarray  # (shots, drives, BUMP_COMPONENTS, 2) quadratures
     prepared: np.ndarray  # (shots, sites) uniform
     imaging: tuple[np.ndarray, ...]  # per imaging segment, (shots, imaged sites) uniform
+    field_offset: np.ndarray | None = None  # (shots,) shared quasi-static field, units of field_rms (sim/shared.py)
 
     @property
     def count(self) -> int:
@@ -382,14 +383,18 @@ def _field(program, model, draws: Draws):
     amplitude = np.array([2 * math.pi * e.get("field_noise", 0.0) for e in extra])[None]
     w = np.array([2 * math.pi * e.get("field_noise_freq", 0.0) for e in extra])[None]
     phi = draws.field_phase[:, None]
+    # The shared quasi-static offset: each species' sensitivity times the shot's field (sim/shared.py).
+    per_field = np.array([2 * math.pi * e.get("field_sensitivity", 0.0) for e in extra])[None]
+    offset = per_field * program.rig.field_rms_g * (draws.field_offset[:, None] if draws.field_offset is not None
+                                                    else 0.0)
 
     def shift(seg: Segment) -> np.ndarray:
         a, b = seg.start_s, seg.start_s + seg.duration_s
         if seg.duration_s == 0:
-            return amplitude * np.sin(w * a + phi)
+            return amplitude * np.sin(w * a + phi) + offset
         with np.errstate(divide="ignore", invalid="ignore"):
             mean = (np.cos(w * a + phi) - np.cos(w * b + phi)) / (w * (b - a))
-        return amplitude * np.where(w > 0, mean, np.sin(phi))
+        return amplitude * np.where(w > 0, mean, np.sin(phi)) + offset
     return shift
 
 

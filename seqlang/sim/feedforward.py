@@ -1,0 +1,329 @@
+"""Shot-by-shot simulation of feed-forward: imaging outcomes sampled, conditioned operations using them.
+
+Without feed-forward an imaging splits a cluster's state into one branch per
+outcome pattern, all kept. With conditioned operations the pattern of each
+shot decides what the sequencer plays later in that shot, so here every shot
+*samples* its outcome at each imaging, from the state (the Born rule; loss,
+imaging loss and the readout confusion matrix included), continues with the
+projected, renormalised state, and plays each conditioned event with the
+parameters of its key (outcome bit or bright count). The average over shots
+of the projected states is the outcome-averaged state, so every expectation
+stays unbiased; shots are grouped by outcome pattern afterwards so that the
+usual per-outcome numbers can still be read.
+
+Clusters stay separate: a cluster that a decision depends on runs before the
+clusters it steers, and shot k of a data cluster uses shot k's reported
+outcomes of the helper clusters and shot k's shared noise (sim/shared.py).
+
+The same shots are run a second time *without* feed-forward: every conditioned
+event plays as for one fixed key, the key nearest the mean bright count of its
+selection (the best a sequencer ignoring the camera could do on average; for a
+symmetric phase estimator that means no correction). Both are reported, with
+per-key statistics (docs/simulation.md).
+"""
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass, replace
+
+import numpy as np
+
+from ..compile.decisions import variant_of
+from ..compile.timeline import Timeline
+from . import engine as fast
+from . import noise, observables
+from .basis import _split, probabilities
+from .model import G1, build_model
+
+OUTCOME_STREAM = 0xFEED  # seed-sequence entry of the imaging-outcome stream
+
+
+@dataclass
+class Outcomes:
+    """Per (record, site): each shot's true and reported bit (−1 until imaged)."""
+
+    shots: int
+    true: dict
+    reported: dict
+
+    def key(self, selection) -> np.ndarray:
+        """Each shot's key: the number of selected sites reported bright."""
+        missing = [s for s in selection.sites if (selection.record, s) not in self.reported]
+        if missing:
+            raise ValueError(f"record {selection.record} of site {missing[0]} is needed before it is simulated")
+        return sum(self.reported[(selection.record, s)] for s in selection.sites).astype(int)
+
+
+class _FixedKeys:
+    """Outcomes as recorded, but every selection looked up with one fixed key (no feed-forward)."""
+
+    def __init__(self, outcomes: Outcomes, keys: dict):
+        self.outcomes, self.keys, self.shots = outcomes, keys, outcomes.shots
+        self.true, self.reported = outcomes.true, outcomes.reported
+
+    def key(self, selection) -> np.ndarray:
+        return np.full(self.shots, self.keys[selection], dtype=int)
+
+
+@dataclass
+class FeedForwardRun:
+    """Cluster results with and without feed-forward, and each shot's keys."""
+
+    with_ff: list
+    without: list
+    outcomes: Outcomes
+    selections: dict  # Selection → (shots,) keys with feed-forward
+    fixed: dict  # Selection → the key played without feed-forward
+
+    def summary(self, program, expect, expectation) -> dict:
+        """`with`, `without` and per-key statistics of one expectation."""
+        keep = ("fidelity", "populations", "loss")
+        with_ff = expectation(program, self.with_ff, expect)
+        without = expectation(program, self.without, expect)
+        return {"with": {k: with_ff[k] for k in keep}, "without": {k: without[k] for k in keep},
+                "keys": [self._key_stats(sel, expect) for sel in self.selections]}
+
+    def _key_stats(self, selection, expect) -> dict:
+        keys = self.selections[selection]
+        fidelity = shot_fidelities(self.with_ff, expect)
+        rows = []
+        for key in selection.keys:
+            chosen = keys == key
+            row = {"key": key, "probability": observables.clean(chosen.mean())}
+            if fidelity is not None and chosen.any():
+                row["fidelity"] = observables.clean(fidelity[chosen].mean())
+                if len(expect.sites) == 1:  # the phase error δ that F = (1 + cos δ)/2 implies
+                    delta = np.arccos(np.clip(2 * fidelity[chosen] - 1, -1, 1))
+                    row["phase_error_rms_rad"] = observables.clean(math.sqrt(np.mean(delta**2)))
+            rows.append(row)
+        return {"record": selection.record, "sites": list(selection.sites),
+                "key_kind": "outcome" if len(selection.sites) == 1 else "bright_count",
+                "fixed_key_without": self.fixed[selection], "keys": rows}
+
+
+def run(runner, timeline: Timeline, groups, interactions) -> FeedForwardRun:
+    """Every cluster shot by shot, with and without feed-forward."""
+    program = runner.program
+    conditioned = timeline.conditioned()
+    models = [build_model(program, timeline, g, interactions, ladder=runner.options["ladder"]) for g in groups]
+    order = _order(models, conditioned)
+    outcomes = Outcomes(runner.shots, {}, {})
+    with_ff: dict[int, object] = {}
+    for index in order:
+        with_ff[index] = _run_cluster(runner, models[index], index, conditioned, outcomes)
+    selections = {e.decision.selection: None for e in conditioned}
+    keys = {sel: outcomes.key(sel) for sel in selections}
+    fixed = {sel: int(np.clip(round(float(k.mean())), 0, len(sel.sites))) for sel, k in keys.items()}
+    steered = {i for i in order if _steered(models[i], conditioned)}
+    without = dict(with_ff)
+    for index in (i for i in order if i in steered):
+        without[index] = _run_cluster(runner, models[index], index, conditioned, _FixedKeys(outcomes, fixed))
+    ordered = lambda d: [d[i] for i in range(len(models))]
+    return FeedForwardRun(ordered(with_ff), ordered(without), outcomes, keys, fixed)
+
+
+def _steered(model, conditioned) -> bool:
+    wanted = {e.index for e in conditioned}
+    return any(c.event in wanted for seg in model.segments for c in seg.couplings)
+
+
+def _order(models, conditioned) -> list[int]:
+    """Clusters in an order where every decision's record is simulated before it is used."""
+    events = {e.index: e for e in conditioned}
+    needs = []
+    for model in models:
+        used = {c.event for seg in model.segments for c in seg.couplings if c.event in events}
+        sites = {s for i in used for s in events[i].decision.selection.sites}
+        needs.append(sites - set(model.sites))
+    done, order = set(), []
+    while len(order) < len(models):
+        ready = [i for i in range(len(models)) if i not in order and needs[i] <= done]
+        if not ready:
+            raise ValueError("feed-forward between clusters in both directions is not supported: each cluster "
+                             "needs a record of the other")
+        order.append(ready[0])
+        done |= set(models[ready[0]].sites)
+    return order
+
+
+def _run_cluster(runner, nominal, index: int, conditioned, outcomes):
+    """One cluster, all shots: propagate, sample at each imaging, steer conditioned events."""
+    from .api import ClusterResult, _choose
+    program, sources = runner.program, runner.sources
+    model = noise.prepare(program, nominal, sources)
+    jumps = noise.jumps(program, model, sources)
+    engine = _choose("auto" if runner.options["engine"] == "qutip" else runner.options["engine"], jumps)
+    density = engine == "lindblad"
+    readout = {n: noise.readout_errors(program, sp, sources) for n, sp in zip(model.sites, model.species)}
+    shots = runner._draw(model)
+    if shots.count < outcomes.shots:  # no sampled noise: one parameter row for every shot
+        shots = replace(shots, initial=shots.initial * outcomes.shots)
+    basis = runner._basis(model, jumps, density)
+    rng = np.random.default_rng([runner.options["seed"], OUTCOME_STREAM, index])
+    steer = _Steering(model, conditioned)
+    loss = noise.image_loss(program, sources)
+    patterns: list[np.ndarray] = []
+    final = []
+    for lo in range(0, shots.count, 100):
+        chunk = steer.expand(shots.rows(lo, lo + 100))
+        state, labels = _propagate(basis, chunk, jumps, density, loss, readout, rng, steer, outcomes, lo)
+        final.append(state)
+        patterns.append(labels)
+    states = np.concatenate(final)
+    labels = np.concatenate(patterns) if patterns else np.zeros((states.shape[0], 0), int)
+    out_labels, out_states = _group(model, labels, states, steer.images)
+    return ClusterResult(nominal, basis, out_labels, out_states, (), engine, readout)
+
+
+class _Steering:
+    """Which couplings and light shifts of which segments belong to conditioned events."""
+
+    def __init__(self, model, conditioned):
+        events = {e.index: e for e in conditioned}
+        self.events = events
+        self.couplings = {k: [(j, events[c.event]) for j, c in enumerate(seg.couplings) if c.event in events]
+                          for k, seg in enumerate(model.segments)}
+        self.shifts = {k: [(j, events[x.event]) for j, x in enumerate(seg.shifts) if x.event in events]
+                       for k, seg in enumerate(model.segments)}
+        self.steered = [k for k in self.couplings if self.couplings[k] or self.shifts[k]]
+        self.images = [seg.image for seg in model.segments if seg.image is not None]
+
+    def expand(self, shots):
+        """Full per-shot arrays for the steered segments (they differ shot by shot)."""
+        count = shots.count
+        couplings, shifts = list(shots.couplings), list(shots.shifts)
+        for k in self.steered:
+            couplings[k] = np.broadcast_to(couplings[k], (count,) + couplings[k].shape[1:]).copy()
+            shifts[k] = np.broadcast_to(shifts[k], (count,) + shifts[k].shape[1:]).copy()
+        self.base = {k: (couplings[k].copy(), shifts[k].copy()) for k in self.steered}
+        return replace(shots, couplings=tuple(couplings), shifts=tuple(shifts))
+
+    def apply(self, shots, k: int, outcomes, lo: int) -> None:
+        """Write each shot's parameters of segment k's conditioned events, from its key."""
+        if k not in self.base:
+            return
+        base_c, base_s = self.base[k]
+        count = shots.count
+        for j, event in self.couplings[k]:
+            ratio, detuning, phase = self._per_shot(event, outcomes, lo, count)
+            shots.couplings[k][:, j, 0] = base_c[:, j, 0] * ratio
+            shots.couplings[k][:, j, 1] = base_c[:, j, 1] + 2 * math.pi * detuning
+            shots.couplings[k][:, j, 2] = base_c[:, j, 2] + phase
+        for j, event in self.shifts[k]:
+            ratio, _, _ = self._per_shot(event, outcomes, lo, count)
+            shots.shifts[k][:, j, :] = base_s[:, j, :] * ratio[:, None]
+
+    def _per_shot(self, event, outcomes, lo: int, count: int):
+        """(Rabi scale, detuning change, phase change) of each shot, from its key's variant."""
+        keys = outcomes.key(event.decision.selection)[lo:lo + count]
+        table = np.array([_change(event, variant_of(event, k)) for k in event.decision.selection.keys])
+        picked = table[keys]
+        return picked[:, 0], picked[:, 1], picked[:, 2]
+
+
+def _change(event, variant) -> tuple[float, float, float]:
+    if variant is None or event.rabi_hz == 0:
+        return (0.0, 0.0, 0.0)
+    return (variant.rabi_hz / event.rabi_hz, variant.detuning_hz - event.detuning_hz,
+            variant.phase_rad - event.phase_rad)
+
+
+def _propagate(basis, shots, jumps, density, loss, readout, rng, steer, outcomes, lo):
+    """All segments for one chunk of shots; returns final states and true bits per imaged site."""
+    stepper = fast._Stepper(basis, shots, jumps, density)
+    kets = np.stack([basis.state(levels) for levels in shots.initial])
+    state = np.einsum("bi,bj->bij", kets, kets.conj()) if density else kets
+    bits = []
+    with fast.single_threaded_blas():
+        for k, segment in enumerate(shots.model.segments):
+            if segment.image is not None:
+                state, true = _sample_image(basis, shots.model, segment.image, state, density, loss, readout, rng,
+                                            outcomes, lo)
+                bits.append(true)
+            elif segment.duration_s > 0:
+                steer.apply(shots, k, outcomes, lo)
+                state = stepper.step(k, segment.start_s, segment.duration_s, [state])[0]
+    return state, (np.concatenate(bits, axis=1) if bits else np.zeros((state.shape[0], 0), int))
+
+
+def _sample_image(basis, model, image, state, density, loss, readout, rng, outcomes, lo):
+    """Each shot's outcome drawn from its state; the state projected and renormalised.
+
+    A shot whose norm was lost (decay, scattering) is lost with that probability:
+    its atoms read dark and its state is zero, which keeps averages unbiased.
+    """
+    sites = [i for i, name in enumerate(model.sites) if name in image.targets]
+    count = state.shape[0]
+    norm = probabilities(state, density).sum(axis=1)
+    lost = rng.random(count) >= norm
+    true = np.zeros((count, len(sites)), dtype=int)
+    for n, site in enumerate(sites):
+        probs = probabilities(state, density)
+        total = probs.sum(axis=1)
+        bright = basis.mask(site, G1)
+        p1 = np.divide(probs[:, bright].sum(axis=1), total, out=np.zeros(count), where=total > 0)
+        bit = (rng.random(count) < p1) & ~lost
+        keep = bright[None, :] == bit[:, None]
+        state = state * keep if not density else state * keep[:, :, None] * keep[:, None, :]
+        true[:, n] = bit
+    total = probabilities(state, density).sum(axis=1)
+    scale = np.divide(1.0, total, out=np.zeros(count), where=(total > 0) & ~lost)
+    state = state * (np.sqrt(scale)[:, None] if not density else scale[:, None, None])
+    for n, site in enumerate(sites):
+        p_loss = loss.get(model.species[site], 0.0)
+        draws = rng.random(count)
+        if p_loss > 0:
+            state = np.where((true[:, n] == 1)[:, None] if not density else (true[:, n] == 1)[:, None, None],
+                             fast._lose(basis, state, site, p_loss, draws, density), state)
+    _report(image.record, [model.sites[s] for s in sites], true, readout, rng, outcomes, lo)
+    return state, true
+
+
+def _report(record, names, true, readout, rng, outcomes, lo) -> None:
+    """The reported bits: true bits through the readout confusion matrix."""
+    count = true.shape[0]
+    for n, name in enumerate(names):
+        fp, fn = readout.get(name, (0.0, 0.0))
+        u = rng.random(count)
+        flip = np.where(true[:, n] == 1, u < fn, u < fp)
+        for store, bits in ((outcomes.true, true[:, n]), (outcomes.reported, np.where(flip, 1 - true[:, n], true[:, n]))):
+            column = store.setdefault((record, name), np.full(outcomes.shots, -1))
+            column[lo:lo + count] = bits
+
+
+def _group(model, labels: np.ndarray, states: np.ndarray, images):
+    """Shots grouped by their true outcome pattern: one branch each, zero for the other shots."""
+    names = [(img.record, name) for img in images for name in model.sites if name in img.targets]
+    if not names:
+        return (((),), (states,))
+    patterns = sorted({tuple(row) for row in labels.tolist()})
+    out_labels, out_states = [], []
+    for pattern in patterns:
+        chosen = (labels == np.array(pattern)).all(axis=1)
+        shaped = chosen.reshape((-1,) + (1,) * (states.ndim - 1))
+        out_labels.append(tuple((r, s, b) for (r, s), b in zip(names, pattern)))
+        out_states.append(np.where(shaped, states, 0))
+    return tuple(out_labels), tuple(out_states)
+
+
+def shot_fidelities(clusters, expect) -> np.ndarray | None:
+    """Each shot's fidelity of an expectation whose sites lie in one cluster (None otherwise)."""
+    inside = [c for c in clusters if set(expect.sites) <= set(c.model.sites)]
+    if not inside or c_is_density(inside[0]):
+        return None
+    cluster = inside[0]
+    keep = [cluster.model.sites.index(s) for s in expect.sites]
+    target = observables.target_state(expect.state, expect.is_ket)
+    inner, outer, count = _split(cluster.basis, keep, 2)
+    inside_rows = (cluster.basis.levels[:, keep] < 2).all(axis=1)
+    total = np.zeros(cluster.shots)
+    for state in cluster.states:
+        overlap = np.zeros((state.shape[0], count), dtype=complex)
+        weights = np.conj(target[inner[inside_rows]])[None] * state[:, inside_rows]
+        np.add.at(overlap, (slice(None), outer[inside_rows]), weights)
+        total += (np.abs(overlap) ** 2).sum(axis=1)
+    return total
+
+
+def c_is_density(cluster) -> bool:
+    return cluster.is_density

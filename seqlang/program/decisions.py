@@ -109,6 +109,11 @@ class FeedForwardMixin:
             return RecordRef(expr.name, expr.span)
         return None
 
+    def _unknown_argument(self, expr: ast.NameRef, scope: Scope) -> EvalError:
+        known = [*scope.names(), *self.sites, *self.groups, *self.rig.drives, *self._record_species()]
+        return EvalError(error(f"unknown name `{expr.name}`", expr.span, did_you_mean(expr.name, known)
+                               or "a block argument is a value, a site or group, a drive or a record"))
+
     def _drive_of(self, ident: ast.Ident, scope: Scope) -> Drive:
         bound = scope.lookup(ident.name)
         name = bound.drive if isinstance(bound, DriveRef) else ident.name
@@ -260,11 +265,10 @@ class FeedForwardMixin:
     def _warn_padding(self, stmt: ast.WhenStmt, then, otherwise) -> None:
         from ..compile.lower import duration_of
         a, b = duration_of(then), duration_of(otherwise)
-        if abs(a - b) <= REL_TOL * max(a, b, 1e-300):
+        # Without `otherwise` the block simply has its slot in the timeline, idle when not played.
+        if stmt.otherwise is None or abs(a - b) <= REL_TOL * max(a, b, 1e-300):
             return
         shorter = "`otherwise` branch" if b < a else "`when` branch"
-        if stmt.otherwise is None and b < a:
-            shorter = "missing `otherwise` branch"
         self.diags.append(warning(
             f"the {shorter} is {units.format_quantity(abs(a - b), units.DURATION)} shorter; it is padded with "
             "idle time so that the timeline after the `when` is the same for every outcome", stmt.span,

@@ -158,6 +158,7 @@ class SequenceResolver(FeedForwardMixin):
                 return SiteRef(names, expr.span)
             if self._named_ref(expr) is not None:
                 return self._named_ref(expr)
+            raise self._unknown_argument(expr, scope)
         return evaluate_any(expr, scope)
 
     def _site_names(self, name: str):

@@ -231,7 +231,8 @@ def _change(event, variant) -> tuple[float, float, float]:
 def _propagate(basis, shots, jumps, density, loss, readout, rng, steer, outcomes, lo):
     """All segments for one chunk of shots; returns final states and true bits per imaged site."""
     stepper = fast._Stepper(basis, shots, jumps, density)
-    kets = np.stack([basis.state(levels) for levels in shots.initial])
+    starts = {levels: basis.state(levels) for levels in set(shots.initial)}
+    kets = np.stack([starts[levels] for levels in shots.initial])
     state = np.einsum("bi,bj->bij", kets, kets.conj()) if density else kets
     bits = []
     with fast.single_threaded_blas():

@@ -125,6 +125,8 @@ def summary(document: dict) -> str:
             c = e["correlators"]
             for a in "XYZ":
                 lines.append("  " + "  ".join(f"<{a}{b}> {c[a + b]:+.4f}" for b in "XYZ"))
+        if "feed_forward" in e:
+            lines += feed_forward_lines(e["feed_forward"])
         for cond in e["conditioned"]:
             lines.append(f"  given {cond['record']}[{cond['site']}] = {cond['outcome']} "
                          f"(p = {cond['probability']:.4f}): fidelity {cond['fidelity']:.6f}")
@@ -136,7 +138,20 @@ def summary(document: dict) -> str:
     return "\n".join(lines)
 
 
-__all__ = ["register", "as_document", "summary"]
+def feed_forward_lines(ff: dict) -> list[str]:
+    """The fidelity with and without feed-forward, and how often each key occurred."""
+    lines = [f"  feed-forward: fidelity {ff['with']['fidelity']:.6f} with, {ff['without']['fidelity']:.6f} without"]
+    for table in ff["keys"]:
+        label = f"{table['record']}[{', '.join(table['sites'])}]"
+        lines.append(f"    keys of {label} ({table['key_kind'].replace('_', ' ')}; without feed-forward key "
+                     f"{table['fixed_key_without']} is played): "
+                     + "  ".join(f"{row['key']}: p {row['probability']:.3f}"
+                                 + (f" F {row['fidelity']:.4f}" if "fidelity" in row else "")
+                                 for row in table["keys"]))
+    return lines
+
+
+__all__ = ["register", "as_document", "summary", "feed_forward_lines"]
 
 
 def cmd_budget(args) -> int:

@@ -159,3 +159,16 @@ def test_identical_runs_are_identical(tmp_path):
     a = seqlang.simulate(path, noise="field_noise", shots=100, seed=9)
     b = seqlang.simulate(path, noise="field_noise", shots=100, seed=9)
     assert a.expectations == b.expectations
+
+
+def test_without_is_the_same_shots_as_the_uncorrected_program(tmp_path):
+    """Common random numbers: `without` (fixed key N/2, i.e. no correction) replays the shots of the
+    same sequence written with a fixed final phase and simulated the usual way."""
+    path = _program(tmp_path, 2)
+    plain = tmp_path / "plain.seq"
+    text = open(path).read().replace("180 deg - asin(clip(2 * fraction(mid[helpers]) - 1, -1, 1))", "180 deg")
+    plain.write_text(text)
+    ff = seqlang.simulate(path, noise="field_noise,t2_star", shots=300, seed=4)
+    reference = seqlang.simulate(str(plain), noise="field_noise,t2_star", shots=300, seed=4)
+    assert ff.expectations[0]["feed_forward"]["without"]["fidelity"] == pytest.approx(
+        reference.expectations[0]["fidelity"], abs=1e-9)

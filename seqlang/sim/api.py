@@ -206,7 +206,8 @@ def simulate(source, **options) -> SimulationResult:
     expectations = tuple(_with_errors(_expectation(program, results, e), results, repetitions, done)
                          for e in program.expects)
     if ff is not None:
-        expectations = tuple({**e, "feed_forward": ff.summary(program, x, _expectation)}
+        expectations = tuple({**e, "feed_forward": ff.summary(program, x, _expectation,
+                                                              e if options["feed_forward"] else None)}
                              for e, x in zip(expectations, program.expects))
     if options["repetitions"]:
         expectations = tuple({**e, "sampled_counts": sample_counts(e["populations"], repetitions,
@@ -365,9 +366,20 @@ def _with_errors(expectation: dict, clusters, repetitions: int, shots: int) -> d
                                 for k, v in expectation["populations"].items()}
     inside = [c for c in clusters if set(expectation["sites"]) <= set(c.model.sites)]
     if inside and shots > 1:
-        values = [_shot_fidelity(inside[0], k, expectation) for k in range(inside[0].shots)]
+        from .feedforward import shot_fidelities
+        state = expectation["state"]
+        fast_values = shot_fidelities(inside[:1], _Expect(tuple(expectation["sites"]), state, state.startswith("|")))
+        values = fast_values if fast_values is not None else \
+            [_shot_fidelity(inside[0], k, expectation) for k in range(inside[0].shots)]
         out["fidelity_error"] = observables.clean(np.std(values, ddof=1) / math.sqrt(len(values)))
     return out
+
+
+@dataclass(frozen=True)
+class _Expect:
+    sites: tuple[str, ...]
+    state: str
+    is_ket: bool
 
 
 def _shot_fidelity(cluster: ClusterResult, shot: int, expectation) -> float:

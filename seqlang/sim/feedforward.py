@@ -54,15 +54,17 @@ class Outcomes:
         return sum(self.reported[(selection.record, s)] for s in selection.sites).astype(int)
 
 
-class _FixedKeys:
-    """Outcomes as recorded, but every selection looked up with one fixed key (no feed-forward)."""
+@dataclass
+class _Lane:
+    """One way the sequencer looks keys up: from the shot's own outcomes, or one fixed key per selection."""
 
-    def __init__(self, outcomes: Outcomes, keys: dict):
-        self.outcomes, self.keys, self.shots = outcomes, keys, outcomes.shots
-        self.true, self.reported = outcomes.true, outcomes.reported
+    outcomes: Outcomes  # where this lane's imaging outcomes are written
+    fixed: dict | None = None
 
-    def key(self, selection) -> np.ndarray:
-        return np.full(self.shots, self.keys[selection], dtype=int)
+    def keys(self, selection, lo: int, count: int) -> np.ndarray:
+        if self.fixed is not None:
+            return np.full(count, self.fixed[selection], dtype=int)
+        return self.outcomes.key(selection)[lo:lo + count]
 
 
 @dataclass
@@ -75,10 +77,11 @@ class FeedForwardRun:
     selections: dict  # Selection → (shots,) keys with feed-forward
     fixed: dict  # Selection → the key played without feed-forward
 
-    def summary(self, program, expect, expectation) -> dict:
-        """`with`, `without` and per-key statistics of one expectation."""
+    def summary(self, program, expect, expectation, with_ff: dict | None = None) -> dict:
+        """`with`, `without` and per-key statistics of one expectation (`with_ff`: its numbers
+        with feed-forward when already computed)."""
         keep = ("fidelity", "populations", "loss")
-        with_ff = expectation(program, self.with_ff, expect)
+        with_ff = with_ff or expectation(program, self.with_ff, expect)
         without = expectation(program, self.without, expect)
         return {"with": {k: with_ff[k] for k in keep}, "without": {k: without[k] for k in keep},
                 "keys": [self._key_stats(sel, expect) for sel in self.selections]}
@@ -102,29 +105,38 @@ class FeedForwardRun:
 
 
 def run(runner, timeline: Timeline, groups, interactions) -> FeedForwardRun:
-    """Every cluster shot by shot, with and without feed-forward."""
+    """Every cluster shot by shot, with and without feed-forward.
+
+    A cluster steered only by records of other clusters runs both ways in one
+    batch (twice the rows, same noise and outcome draws); one steered by its own
+    record runs twice, since its fixed key is known only after the first run.
+    """
     program = runner.program
     conditioned = timeline.conditioned()
     models = [build_model(program, timeline, g, interactions, ladder=runner.options["ladder"]) for g in groups]
-    order = _order(models, conditioned)
-    outcomes = Outcomes(runner.shots, {}, {})
-    with_ff: dict[int, object] = {}
-    for index in order:
-        with_ff[index] = _run_cluster(runner, models[index], index, conditioned, outcomes)
-    selections = {e.decision.selection: None for e in conditioned}
-    keys = {sel: outcomes.key(sel) for sel in selections}
-    fixed = {sel: int(np.clip(round(float(k.mean())), 0, len(sel.sites))) for sel, k in keys.items()}
-    steered = {i for i in order if _steered(models[i], conditioned)}
-    without = dict(with_ff)
-    for index in (i for i in order if i in steered):
-        without[index] = _run_cluster(runner, models[index], index, conditioned, _FixedKeys(outcomes, fixed))
+    outcomes, unused = Outcomes(runner.shots, {}, {}), Outcomes(runner.shots, {}, {})
+    fixed: dict = {}
+    with_ff, without, prepared = {}, {}, {}
+    for index in _order(models, conditioned):
+        cluster = _Cluster(runner, models[index], index, conditioned)
+        needed = cluster.selections()
+        if not needed:
+            with_ff[index] = without[index] = cluster.run([_Lane(outcomes)])[0]
+        elif all(set(sel.sites).isdisjoint(models[index].sites) for sel in needed):
+            fixed.update({sel: _fixed_key(outcomes, sel) for sel in needed})
+            with_ff[index], without[index] = cluster.run([_Lane(outcomes), _Lane(unused, fixed)])
+        else:
+            with_ff[index] = cluster.run([_Lane(outcomes)])[0]
+            fixed.update({sel: _fixed_key(outcomes, sel) for sel in needed})
+            without[index] = cluster.run([_Lane(unused, fixed)])[0]
+    selections = {e.decision.selection: outcomes.key(e.decision.selection) for e in conditioned}
     ordered = lambda d: [d[i] for i in range(len(models))]
-    return FeedForwardRun(ordered(with_ff), ordered(without), outcomes, keys, fixed)
+    return FeedForwardRun(ordered(with_ff), ordered(without), outcomes, selections, fixed)
 
 
-def _steered(model, conditioned) -> bool:
-    wanted = {e.index for e in conditioned}
-    return any(c.event in wanted for seg in model.segments for c in seg.couplings)
+def _fixed_key(outcomes: Outcomes, selection) -> int:
+    """The key nearest the mean bright count: what is played without feed-forward."""
+    return int(np.clip(round(float(outcomes.key(selection).mean())), 0, len(selection.sites)))
 
 
 def _order(models, conditioned) -> list[int]:
@@ -146,33 +158,86 @@ def _order(models, conditioned) -> list[int]:
     return order
 
 
-def _run_cluster(runner, nominal, index: int, conditioned, outcomes):
-    """One cluster, all shots: propagate, sample at each imaging, steer conditioned events."""
-    from .api import ClusterResult, _choose
-    program, sources = runner.program, runner.sources
-    model = noise.prepare(program, nominal, sources)
-    jumps = noise.jumps(program, model, sources)
-    engine = _choose("auto" if runner.options["engine"] == "qutip" else runner.options["engine"], jumps)
-    density = engine == "lindblad"
-    readout = {n: noise.readout_errors(program, sp, sources) for n, sp in zip(model.sites, model.species)}
-    shots = runner._draw(model)
-    if shots.count < outcomes.shots:  # no sampled noise: one parameter row for every shot
-        shots = replace(shots, initial=shots.initial * outcomes.shots)
-    basis = runner._basis(model, jumps, density)
-    rng = np.random.default_rng([runner.options["seed"], OUTCOME_STREAM, index])
-    steer = _Steering(model, conditioned)
-    loss = noise.image_loss(program, sources)
-    patterns: list[np.ndarray] = []
-    final = []
-    for lo in range(0, shots.count, 100):
-        chunk = steer.expand(shots.rows(lo, lo + 100))
-        state, labels = _propagate(basis, chunk, jumps, density, loss, readout, rng, steer, outcomes, lo)
-        final.append(state)
-        patterns.append(labels)
-    states = np.concatenate(final)
-    labels = np.concatenate(patterns) if patterns else np.zeros((states.shape[0], 0), int)
-    out_labels, out_states = _group(model, labels, states, steer.images)
-    return ClusterResult(nominal, basis, out_labels, out_states, (), engine, readout)
+MAX_CHUNK_ELEMENTS = 2**16  # state elements per lane in one chunk of shots
+
+
+class _Cluster:
+    """One cluster prepared once (model, noise draws, basis) and run for one or two lanes."""
+
+    def __init__(self, runner, nominal, index: int, conditioned):
+        from .api import _choose
+        program, sources = runner.program, runner.sources
+        self.runner, self.nominal, self.index = runner, nominal, index
+        self.model = noise.prepare(program, nominal, sources)
+        self.jumps = noise.jumps(program, self.model, sources)
+        self.engine = _choose("auto" if runner.options["engine"] == "qutip" else runner.options["engine"],
+                              self.jumps)
+        self.density = self.engine == "lindblad"
+        self.readout = {n: noise.readout_errors(program, sp, sources)
+                        for n, sp in zip(self.model.sites, self.model.species)}
+        shots = runner._draw(self.model)
+        if shots.count < runner.shots:  # no sampled noise: one parameter row for every shot
+            shots = replace(shots, initial=shots.initial * runner.shots)
+        self.shots = shots
+        self.basis = runner._basis(self.model, self.jumps, self.density)
+        self.steer = _Steering(self.model, conditioned)
+        self.loss = noise.image_loss(program, sources)
+
+    def selections(self) -> list:
+        return list({e.decision.selection: 0 for _, e in self.steer.all()})
+
+    def run(self, lanes: list[_Lane]) -> list:
+        """All shots for every lane; one ClusterResult per lane."""
+        from .api import ClusterResult
+        rng = np.random.default_rng([self.runner.options["seed"], OUTCOME_STREAM, self.index])
+        size = self.basis.size ** (2 if self.density else 1)
+        step = max(1, min(self.shots.count, MAX_CHUNK_ELEMENTS // size))
+        finals, bits = [], []
+        for lo in range(0, self.shots.count, step):
+            chunk = _stacked(self.shots.rows(lo, lo + step), len(lanes))
+            chunk = self.steer.expand(chunk)
+            state, labels = self._propagate(chunk, lanes, lo, rng)
+            finals.append(state.reshape((len(lanes), -1) + state.shape[1:]))
+            bits.append(labels.reshape(len(lanes), state.shape[0] // len(lanes), labels.shape[-1]))
+        states, labels = np.concatenate(finals, axis=1), np.concatenate(bits, axis=1)
+        out = []
+        for n in range(len(lanes)):
+            grouped = _group(self.model, labels[n], states[n], self.steer.images)
+            out.append(ClusterResult(self.nominal, self.basis, grouped[0], grouped[1], (), self.engine, self.readout))
+        return out
+
+    def _propagate(self, shots, lanes, lo: int, rng):
+        """All segments for one chunk (lanes stacked); final states and true bits per imaged site."""
+        basis, density = self.basis, self.density
+        stepper = fast._Stepper(basis, shots, self.jumps, density)
+        starts = {levels: basis.state(levels) for levels in set(shots.initial)}
+        kets = np.stack([starts[levels] for levels in shots.initial])
+        state = np.einsum("bi,bj->bij", kets, kets.conj()) if density else kets
+        per_lane = state.shape[0] // len(lanes)
+        uniform = lambda: np.tile(rng.random(per_lane), len(lanes))  # the same draws in every lane
+        bits = []
+        with fast.single_threaded_blas():
+            for k, segment in enumerate(shots.model.segments):
+                if segment.image is not None:
+                    state, true = _sample_image(basis, shots.model, segment.image, state, density, self.loss,
+                                                uniform)
+                    _report(segment.image.record, true, self.readout, uniform, lanes, lo, per_lane,
+                            [shots.model.sites[i] for i in _imaged(shots.model, segment.image)])
+                    bits.append(true)
+                elif segment.duration_s > 0:
+                    self.steer.apply(shots, k, lanes, lo, per_lane)
+                    state = stepper.step(k, segment.start_s, segment.duration_s, [state])[0]
+        return state, (np.concatenate(bits, axis=1) if bits else np.zeros((state.shape[0], 0), int))
+
+
+def _stacked(shots, lanes: int):
+    """The chunk's rows repeated once per lane (parameters shared by every shot stay one row)."""
+    if lanes == 1:
+        return shots
+    tile = lambda a: np.concatenate([a] * lanes) if a.shape[0] > 1 else a
+    return replace(shots, couplings=tuple(map(tile, shots.couplings)), shifts=tuple(map(tile, shots.shifts)),
+                   interactions=tile(shots.interactions), initial=shots.initial * lanes,
+                   image_draws=tuple(np.concatenate([d] * lanes) for d in shots.image_draws))
 
 
 class _Steering:
@@ -180,13 +245,15 @@ class _Steering:
 
     def __init__(self, model, conditioned):
         events = {e.index: e for e in conditioned}
-        self.events = events
         self.couplings = {k: [(j, events[c.event]) for j, c in enumerate(seg.couplings) if c.event in events]
                           for k, seg in enumerate(model.segments)}
         self.shifts = {k: [(j, events[x.event]) for j, x in enumerate(seg.shifts) if x.event in events]
                        for k, seg in enumerate(model.segments)}
         self.steered = [k for k in self.couplings if self.couplings[k] or self.shifts[k]]
         self.images = [seg.image for seg in model.segments if seg.image is not None]
+
+    def all(self):
+        return [x for k in self.steered for x in self.couplings[k] + self.shifts[k]]
 
     def expand(self, shots):
         """Full per-shot arrays for the steered segments (they differ shot by shot)."""
@@ -198,25 +265,26 @@ class _Steering:
         self.base = {k: (couplings[k].copy(), shifts[k].copy()) for k in self.steered}
         return replace(shots, couplings=tuple(couplings), shifts=tuple(shifts))
 
-    def apply(self, shots, k: int, outcomes, lo: int) -> None:
+    def apply(self, shots, k: int, lanes, lo: int, per_lane: int) -> None:
         """Write each shot's parameters of segment k's conditioned events, from its key."""
         if k not in self.base:
             return
         base_c, base_s = self.base[k]
-        count = shots.count
         for j, event in self.couplings[k]:
-            ratio, detuning, phase = self._per_shot(event, outcomes, lo, count)
+            ratio, detuning, phase = self._per_shot(event, lanes, lo, per_lane)
             shots.couplings[k][:, j, 0] = base_c[:, j, 0] * ratio
             shots.couplings[k][:, j, 1] = base_c[:, j, 1] + 2 * math.pi * detuning
             shots.couplings[k][:, j, 2] = base_c[:, j, 2] + phase
         for j, event in self.shifts[k]:
-            ratio, _, _ = self._per_shot(event, outcomes, lo, count)
+            ratio, _, _ = self._per_shot(event, lanes, lo, per_lane)
             shots.shifts[k][:, j, :] = base_s[:, j, :] * ratio[:, None]
 
-    def _per_shot(self, event, outcomes, lo: int, count: int):
-        """(Rabi scale, detuning change, phase change) of each shot, from its key's variant."""
-        keys = outcomes.key(event.decision.selection)[lo:lo + count]
-        table = np.array([_change(event, variant_of(event, k)) for k in event.decision.selection.keys])
+    @staticmethod
+    def _per_shot(event, lanes, lo: int, per_lane: int):
+        """(Rabi scale, detuning change, phase change) of each row, from its key's variant."""
+        selection = event.decision.selection
+        keys = np.concatenate([lane.keys(selection, lo, per_lane) for lane in lanes])
+        table = np.array([_change(event, variant_of(event, k)) for k in selection.keys])
         picked = table[keys]
         return picked[:, 0], picked[:, 1], picked[:, 2]
 
@@ -228,42 +296,26 @@ def _change(event, variant) -> tuple[float, float, float]:
             variant.phase_rad - event.phase_rad)
 
 
-def _propagate(basis, shots, jumps, density, loss, readout, rng, steer, outcomes, lo):
-    """All segments for one chunk of shots; returns final states and true bits per imaged site."""
-    stepper = fast._Stepper(basis, shots, jumps, density)
-    starts = {levels: basis.state(levels) for levels in set(shots.initial)}
-    kets = np.stack([starts[levels] for levels in shots.initial])
-    state = np.einsum("bi,bj->bij", kets, kets.conj()) if density else kets
-    bits = []
-    with fast.single_threaded_blas():
-        for k, segment in enumerate(shots.model.segments):
-            if segment.image is not None:
-                state, true = _sample_image(basis, shots.model, segment.image, state, density, loss, readout, rng,
-                                            outcomes, lo)
-                bits.append(true)
-            elif segment.duration_s > 0:
-                steer.apply(shots, k, outcomes, lo)
-                state = stepper.step(k, segment.start_s, segment.duration_s, [state])[0]
-    return state, (np.concatenate(bits, axis=1) if bits else np.zeros((state.shape[0], 0), int))
+def _imaged(model, image) -> list[int]:
+    return [i for i, name in enumerate(model.sites) if name in image.targets]
 
 
-def _sample_image(basis, model, image, state, density, loss, readout, rng, outcomes, lo):
+def _sample_image(basis, model, image, state, density, loss, uniform):
     """Each shot's outcome drawn from its state; the state projected and renormalised.
 
     A shot whose norm was lost (decay, scattering) is lost with that probability:
     its atoms read dark and its state is zero, which keeps averages unbiased.
     """
-    sites = [i for i, name in enumerate(model.sites) if name in image.targets]
+    sites = _imaged(model, image)
     count = state.shape[0]
-    norm = probabilities(state, density).sum(axis=1)
-    lost = rng.random(count) >= norm
+    lost = uniform() >= probabilities(state, density).sum(axis=1)
     true = np.zeros((count, len(sites)), dtype=int)
     for n, site in enumerate(sites):
         probs = probabilities(state, density)
         total = probs.sum(axis=1)
         bright = basis.mask(site, G1)
         p1 = np.divide(probs[:, bright].sum(axis=1), total, out=np.zeros(count), where=total > 0)
-        bit = (rng.random(count) < p1) & ~lost
+        bit = (uniform() < p1) & ~lost
         keep = bright[None, :] == bit[:, None]
         state = state * keep if not density else state * keep[:, :, None] * keep[:, None, :]
         true[:, n] = bit
@@ -271,25 +323,25 @@ def _sample_image(basis, model, image, state, density, loss, readout, rng, outco
     scale = np.divide(1.0, total, out=np.zeros(count), where=(total > 0) & ~lost)
     state = state * (np.sqrt(scale)[:, None] if not density else scale[:, None, None])
     for n, site in enumerate(sites):
-        p_loss = loss.get(model.species[site], 0.0)
-        draws = rng.random(count)
+        p_loss, draws = loss.get(model.species[site], 0.0), uniform()
         if p_loss > 0:
-            state = np.where((true[:, n] == 1)[:, None] if not density else (true[:, n] == 1)[:, None, None],
-                             fast._lose(basis, state, site, p_loss, draws, density), state)
-    _report(image.record, [model.sites[s] for s in sites], true, readout, rng, outcomes, lo)
+            hit = (true[:, n] == 1).reshape((-1,) + (1,) * (state.ndim - 1))
+            state = np.where(hit, fast._lose(basis, state, site, p_loss, draws, density), state)
     return state, true
 
 
-def _report(record, names, true, readout, rng, outcomes, lo) -> None:
-    """The reported bits: true bits through the readout confusion matrix."""
-    count = true.shape[0]
+def _report(record, true, readout, uniform, lanes, lo: int, per_lane: int, names) -> None:
+    """The reported bits: true bits through the readout confusion matrix, stored per lane."""
     for n, name in enumerate(names):
         fp, fn = readout.get(name, (0.0, 0.0))
-        u = rng.random(count)
+        u = uniform()
         flip = np.where(true[:, n] == 1, u < fn, u < fp)
-        for store, bits in ((outcomes.true, true[:, n]), (outcomes.reported, np.where(flip, 1 - true[:, n], true[:, n]))):
-            column = store.setdefault((record, name), np.full(outcomes.shots, -1))
-            column[lo:lo + count] = bits
+        reported = np.where(flip, 1 - true[:, n], true[:, n])
+        for m, lane in enumerate(lanes):
+            rows = slice(m * per_lane, (m + 1) * per_lane)
+            for store, bits in ((lane.outcomes.true, true[rows, n]), (lane.outcomes.reported, reported[rows])):
+                column = store.setdefault((record, name), np.full(lane.outcomes.shots, -1))
+                column[lo:lo + per_lane] = bits
 
 
 def _group(model, labels: np.ndarray, states: np.ndarray, images):
@@ -308,13 +360,14 @@ def _group(model, labels: np.ndarray, states: np.ndarray, images):
 
 
 def shot_fidelities(clusters, expect) -> np.ndarray | None:
-    """Each shot's fidelity of an expectation whose sites lie in one cluster (None otherwise)."""
+    """Each shot's fidelity of an expectation whose sites lie in one cluster of kets (None otherwise),
+    all shots at once."""
     inside = [c for c in clusters if set(expect.sites) <= set(c.model.sites)]
-    if not inside or c_is_density(inside[0]):
+    if not inside or inside[0].is_density:
         return None
     cluster = inside[0]
     keep = [cluster.model.sites.index(s) for s in expect.sites]
-    target = observables.target_state(expect.state, expect.is_ket)
+    target = observables.target_state(expect.state.strip("|>"), expect.is_ket)
     inner, outer, count = _split(cluster.basis, keep, 2)
     inside_rows = (cluster.basis.levels[:, keep] < 2).all(axis=1)
     total = np.zeros(cluster.shots)
@@ -324,7 +377,3 @@ def shot_fidelities(clusters, expect) -> np.ndarray | None:
         np.add.at(overlap, (slice(None), outer[inside_rows]), weights)
         total += (np.abs(overlap) ** 2).sum(axis=1)
     return total
-
-
-def c_is_density(cluster) -> bool:
-    return cluster.is_density

@@ -62,6 +62,10 @@ def cmd_show(args) -> int:
     from .show import decision_summary
     if decision_summary(sequence.checked):
         print("\n" + decision_summary(sequence.checked))
+    from .sim.crosstalk import summary as crosstalk_summary
+    crosstalk = crosstalk_summary(sequence.program, sequence.played)
+    if crosstalk:
+        print("\nimaging crosstalk (far-detuned scattering, Grimm et al. 2000):\n" + "\n".join(crosstalk))
     if not args.no_pairs and len(sequence.program.sites) > 1:
         table = pair_table(sequence.program)
         if table:

@@ -16,6 +16,8 @@ from .model import DRIVE_KINDS, Drive, Imaging, Legs, Port, Rig, Species
 
 _PER_FIELD = tuple(f - g for f, g in zip(units.FREQUENCY, units.FIELD))  # Hz/G: qubit shift per field
 
+_INTENSITY = tuple(w - 2 * m for w, m in zip(units.POWER, units.LENGTH))  # W/m²
+
 RIG_SETTINGS = {
     "tick": p.Key(p.positive(p.duration, "tick"), required=True, doc="the sequencer clock period, e.g. 2 ns"),
     "counter_bits": p.Key(p.integer(8, 64), 32, doc="width of the sequencer's duration counter"),
@@ -84,6 +86,11 @@ IMAGE_KEYS = {
     # Feed-forward: camera read-out plus processing, from the end of the imaging to
     # the first operation that may depend on its record.
     "decision_latency": p.Key(p.non_negative(p.duration), 0.0),
+    # Imaging crosstalk: the imaging light's wavelength (default: the species' D2 line) and its
+    # intensity, or its saturation parameter on the imaged species' D2 line.
+    "light_wavelength": p.Key(p.positive(p.length, "wavelength"), None),
+    "light_intensity": p.Key(p.non_negative(p.quantity(_INTENSITY)), None),
+    "saturation": p.Key(p.non_negative(p.quantity(units.DIMENSIONLESS)), None),
 }
 
 PORT_KEYS = {
@@ -235,6 +242,7 @@ def _imaging(decl: ast.ImageDecl, species: dict, scope: Scope, diags: list[Diagn
     if v["port"] is None or v["duration"] is None:
         return None
     extra = {"false_positive": v["false_positive"], "false_negative": v["false_negative"]}
+    extra.update({k: v[k] for k in ("light_wavelength", "light_intensity", "saturation") if v[k] is not None})
     return Imaging(decl.species.name, v["port"], v["duration"], v["fidelity"], v["loss"], v["latency"],
                    extra, decl.span, v["decision_latency"] or 0.0)
 

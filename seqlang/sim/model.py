@@ -83,6 +83,7 @@ class Model:
     interactions: dict[tuple[int, int], float]
     segments: tuple[Segment, ...]
     dim: int = DIM
+    images: tuple[Event, ...] = ()  # every imaging of the timeline, of either species (for crosstalk)
 
     @property
     def size(self) -> int:
@@ -116,7 +117,8 @@ def build_model(program: Program, timeline: Timeline, sites: tuple[str, ...],
     relevant = [e for e in timeline.events if e.kind in (PULSE, IMAGE) and set(e.targets) & set(sites)]
     segments = _segments(program, relevant, index, timeline.duration_s, ladder)
     species = tuple(program.sites[s].species for s in sites)
-    return Model(tuple(sites), species, pairs, tuple(segments), LADDER_DIM if ladder else DIM)
+    images = tuple(e for e in timeline.events if e.kind == IMAGE)
+    return Model(tuple(sites), species, pairs, tuple(segments), LADDER_DIM if ladder else DIM, images)
 
 
 def _tick(t: float, tick: float) -> int:

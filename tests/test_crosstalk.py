@@ -63,21 +63,21 @@ rig pondbench {
   species na = Na23 { qubit clock }
   species k = K39 { qubit clock }
   drive mw_na microwave na { rabi 1 MHz  port awg0.1 }
-  image k { port ttl.9  duration 2 ms  light_wavelength 589.3 nm  light_intensity 30 mW / cm^2 }
+  image k { port ttl.9  duration 20 ms  light_wavelength 589.17 nm  light_intensity 30 mW / cm^2 }
 }
 """
 
 
 def test_crosstalk_dephases_the_other_species_by_the_scattering_probability(tmp_path):
-    """Potassium imaged with light 0.14 nm from the sodium D lines: each sodium atom that scatters
+    """Potassium imaged with light 10 GHz from the sodium D2 line: each sodium atom that scatters
     loses its coherence (random phase), so the Ramsey contrast is 1 − P, P = 1 − exp(−Γ_sc T)."""
     (tmp_path / "bench.rig").write_text(RIG)
     path = tmp_path / "x.seq"
     path.write_text('use "bench.rig"\nsite a = na at (0, 0) um\nsite h = k at (20, 0) um\n'
                     "sequence s {\n  pulse mw_na area pi/2\n  image k -> r\n  pulse mw_na area pi/2 phase 180 deg\n}\n"
                     "expect a as |0>\n")
-    rate = scattering_rate_hz(lookup("Na23"), 589.3e-9, 300.0)
-    p = 1 - math.exp(-rate * 2e-3)
+    rate = scattering_rate_hz(lookup("Na23"), 589.17e-9, 300.0)
+    p = 1 - math.exp(-rate * 20e-3)
     assert 0.2 < p < 0.9  # the test needs a visible effect
     result = seqlang.simulate(str(path), noise="crosstalk", shots=2000, seed=1)
     contrast = 2 * result.expectations[0]["fidelity"] - 1

@@ -79,6 +79,12 @@ def cmd_plot(args) -> int:
     if args.what == "timeline":
         from .plot.timeline import plot_timeline
         plot_timeline(sequence.checked, args.output)
+    elif args.what == "array":
+        from .plot.array import plot_array
+        try:
+            plot_array(sequence, args.output, args.record)
+        except ValueError as exc:
+            raise UsageError(str(exc)) from None
     else:
         from .plot.results import plot_results
         plot_results(sequence, args.what, args.output)
@@ -116,8 +122,9 @@ def build_parser() -> argparse.ArgumentParser:
     p = sub.add_parser("plot", help="draw the timeline, or simulated populations or correlators")
     _add_file(p)
     p.add_argument("-o", "--output", required=True, metavar="PNG", help="image file to write")
-    p.add_argument("--what", choices=("timeline", "populations", "correlators"), default="timeline",
-                   help="what to draw (default: timeline)")
+    p.add_argument("--what", choices=("timeline", "populations", "correlators", "array"), default="timeline",
+                   help="what to draw (default: timeline); `array`: the site map shaded by P(bright)")
+    p.add_argument("--record", metavar="NAME", help="with --what array: the record whose P(bright) shades the map")
     p.set_defaults(run=cmd_plot)
 
     _add_optional_commands(sub)

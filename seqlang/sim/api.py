@@ -134,6 +134,7 @@ class SimulationResult:
     noise: dict = field(default_factory=dict)
     engine: str = "qutip"
     reduction: dict = field(default_factory=dict)
+    program: object = field(default=None, repr=False, compare=False)  # for array summaries
 
     def reduced_density(self, sites: tuple[str, ...], condition=None) -> np.ndarray:
         """Density matrix (4 levels per atom) of `sites`, optionally given one imaging outcome."""
@@ -219,7 +220,7 @@ def simulate(source, **options) -> SimulationResult:
         info["interrupted"] = f"stopped after {done} of {shots} shots"
     engines = sorted({r.engine for r in results})
     return SimulationResult(program.name, tuple(results), expectations, _records(results), interactions,
-                            tuple(warnings), info, "+".join(engines), runner.reduction)
+                            tuple(warnings), info, "+".join(engines), runner.reduction, program)
 
 
 class _ClusterRunner:

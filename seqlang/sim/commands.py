@@ -96,13 +96,22 @@ def as_document(result) -> dict:
         "engine": result.engine,
         "reduction": result.reduction,
         "note": "model prediction for the played (tick-quantized) timeline; not a guarantee of the apparatus",
+        "array_summary": _array_summary(result, sites),
     }
 
 
+def _array_summary(result, sites: dict) -> dict:
+    from .array import summarize
+    return summarize(result.program, sites, result.records) if getattr(result, "program", None) else {}
+
+
 def summary(document: dict) -> str:
+    from .array import MANY_SITES, cluster_line, lines as array_lines
     noise = document.get("noise", {})
-    lines = [f"simulated {document['program']} (clusters: "
-             + ", ".join("{" + ",".join(c) + "}" for c in document["clusters"]) + "); noise: "
+    many = len(document["site_populations"]) > MANY_SITES
+    clusters = cluster_line(document["clusters"]) if many else \
+        "clusters: " + ", ".join("{" + ",".join(c) + "}" for c in document["clusters"])
+    lines = [f"simulated {document['program']} (" + clusters + "); noise: "
              + (", ".join(noise.get("sources", [])) or "off")
              + (f"; {noise['shots']} shots, seed {noise['seed']}" if noise.get("shots", 1) > 1 else "")
              + f"; engine {document.get('engine', 'qutip')}"]
@@ -130,6 +139,11 @@ def summary(document: dict) -> str:
         for cond in e["conditioned"]:
             lines.append(f"  given {cond['record']}[{cond['site']}] = {cond['outcome']} "
                          f"(p = {cond['probability']:.4f}): fidelity {cond['fidelity']:.6f}")
+    if many and document.get("array_summary"):
+        lines.append(f"\narray of {len(document['site_populations'])} sites, final level populations "
+                     "(mean ± spread over sites; per site in --json):")
+        lines += array_lines(document["array_summary"])
+        return "\n".join(lines)
     lines.append("\nfinal level populations per site:")
     for site, pops in document["site_populations"].items():
         lines.append(f"  {site}: " + "  ".join(f"|{k}> {v:.5f}" for k, v in pops.items()))

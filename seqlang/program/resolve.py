@@ -15,6 +15,7 @@ from ..lang import syntax as ast
 from ..lang import units
 from ..lang.diagnostics import ERROR, Diagnostic, SeqlangError, Span, did_you_mean, error
 from ..lang.parser import parse_text
+from . import includes
 from .evaluate import EvalError, Scope, evaluate, evaluate_any, expect_kind
 from .model import Expectation, Program, Rig, SerialOp, Site
 from .sequence import SequenceResolver
@@ -54,6 +55,9 @@ def _read(path: str, span: Span | None, hashes: dict[str, str], diags: list[Diag
           sources: Mapping[str, str]) -> ast.SourceFile | None:
     try:
         raw = sources[path].encode("utf-8") if path in sources else _read_bytes(path)
+    except includes.FileRefused as exc:
+        diags.append(error(str(exc), span or Span(path, 1, 1, 1, 1)))
+        return None
     except OSError as exc:
         where = span or Span(path, 1, 1, 1, 1)
         diags.append(error(f"cannot read `{path}`: {exc.strerror or exc}", where))
@@ -69,8 +73,7 @@ def _read(path: str, span: Span | None, hashes: dict[str, str], diags: list[Diag
 
 
 def _read_bytes(path: str) -> bytes:
-    with open(path, "rb") as handle:
-        return handle.read()
+    return includes.read_source(path)
 
 
 def _load(path: str, diags: list[Diagnostic], sources: Mapping[str, str]) -> Loaded | None:
@@ -80,7 +83,7 @@ def _load(path: str, diags: list[Diagnostic], sources: Mapping[str, str]) -> Loa
         raise SeqlangError(diags)
     loaded = Loaded(main, hashes=hashes, sources=sources)
     _load_rig(loaded, diags)
-    _load_imports(main, loaded, set(), 0, diags)
+    _load_imports(main, loaded, set(), (), diags)
     if any(d.severity == ERROR for d in diags):
         raise SeqlangError(diags)
     return loaded
@@ -97,6 +100,10 @@ def _load_rig(loaded: Loaded, diags: list[Diagnostic]) -> None:
         diags.append(error("a sequence uses one rig; this is a second `use`", extra.span))
     if uses:
         rig_path = _relative(loaded.main.path, uses[0].path)
+        refusal = includes.refusal(loaded.main.path, uses[0].path, rig_path, (".rig",))
+        if refusal:
+            diags.append(error(refusal, uses[0].span))
+            return
         rig_file = _read(rig_path, uses[0].span, loaded.hashes, diags, loaded.sources)
         local += [i for i in rig_file.items if isinstance(i, ast.RigDef)] if rig_file else []
         if rig_file is not None and not any(isinstance(i, ast.RigDef) for i in rig_file.items):
@@ -109,20 +116,32 @@ def _load_rig(loaded: Loaded, diags: list[Diagnostic]) -> None:
         loaded.rig_path = loaded.rig_path or loaded.main.path
 
 
-def _load_imports(source: ast.SourceFile, loaded: Loaded, seen: set[str], depth: int,
+def _load_imports(source: ast.SourceFile, loaded: Loaded, seen: set[str], chain: tuple[str, ...],
                   diags: list[Diagnostic]) -> None:
+    """Read what `source` imports, depth first; `chain` is the path of imports to it."""
+    chain = chain or (source.path,)
     for stmt in (i for i in source.items if isinstance(i, ast.ImportStmt)):
         target = _relative(source.path, stmt.path)
+        refusal = includes.refusal(loaded.main.path, stmt.path, target, (".seq",))
+        if refusal:
+            diags.append(error(refusal, stmt.span))
+            continue
+        real_chain = [os.path.realpath(p) for p in chain]
+        if os.path.realpath(target) in real_chain:
+            start = real_chain.index(os.path.realpath(target))
+            loop = " imports ".join(f"`{p}`" for p in chain[start:] + (target,))
+            diags.append(error(f"import cycle: {loop}", stmt.span))
+            continue
         if target in seen or target == loaded.main.path:
             continue
-        if depth > MAX_IMPORT_DEPTH:
-            diags.append(error("imports nest too deeply (a cycle?)", stmt.span))
+        if len(chain) > MAX_IMPORT_DEPTH:
+            diags.append(error(f"imports nest more than {MAX_IMPORT_DEPTH} files deep", stmt.span))
             return
         seen.add(target)
         imported = _read(target, stmt.span, loaded.hashes, diags, loaded.sources)
         if imported is not None:
             loaded.imports.append(imported)
-            _load_imports(imported, loaded, seen, depth + 1, diags)
+            _load_imports(imported, loaded, seen, chain + (target,), diags)
 
 
 def _resolve_loaded(loaded: Loaded, diags: list[Diagnostic]) -> Program | None:

@@ -20,6 +20,8 @@ def register(sub) -> None:
     p.add_argument("--ladder", action="store_true",
                    help="keep the intermediate state of Rydberg drives explicit (needs the legs' Rabi frequencies)")
     _noise_options(p)
+    p.add_argument("--unshared-noise", dest="shared_noise", action="store_false",
+                   help="draw the field and beam noise per cluster instead of once per shot for the array")
     p.add_argument("--sample", type=int, metavar="N",
                    help="error bars for N repetitions of the experiment, and a sampled histogram of N outcomes")
     p.set_defaults(run=cmd_simulate)
@@ -61,7 +63,8 @@ def cmd_simulate(args) -> int:
     sequence = _load(args.file)
     try:
         result = simulate(sequence, ladder=args.ladder, noise=sources, shots=args.shots, seed=args.seed,
-                          engine=args.engine, truncate=args.truncate, repetitions=args.sample, progress=True)
+                          engine=args.engine, truncate=args.truncate, repetitions=args.sample, progress=True,
+                          shared_noise=args.shared_noise)
     except ValueError as exc:
         raise UsageError(str(exc)) from None
     for diagnostic in sort_diagnostics(result.warnings):

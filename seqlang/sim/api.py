@@ -207,8 +207,10 @@ def simulate(source, **options) -> SimulationResult:
     expectations = tuple(_with_errors(_expectation(program, results, e), results, repetitions, done)
                          for e in program.expects)
     if ff is not None:
-        expectations = tuple({**e, "feed_forward": ff.summary(program, x, _expectation,
-                                                              e if options["feed_forward"] else None)}
+        expectations = tuple({**e, "conditioned": ff.conditioned(program, x) if options["feed_forward"]
+                              else e["conditioned"],
+                              "feed_forward": ff.summary(program, x, _expectation,
+                                                         e if options["feed_forward"] else None)}
                              for e, x in zip(expectations, program.expects))
     if options["repetitions"]:
         expectations = tuple({**e, "sampled_counts": sample_counts(e["populations"], repetitions,

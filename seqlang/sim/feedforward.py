@@ -86,6 +86,28 @@ class FeedForwardRun:
         return {"with": {k: with_ff[k] for k in keep}, "without": {k: without[k] for k in keep},
                 "keys": [self._key_stats(sel, expect) for sel in self.selections]}
 
+    def conditioned(self, program, expect) -> list[dict]:
+        """The expectation given each reported outcome of another site, from the shots that reported
+        it: exact across clusters too (they share noise and steer each other)."""
+        from .api import MIN_CONDITION_PROBABILITY, reduced_density
+        out = []
+        if len(expect.sites) > 5:
+            return out
+        for (record, site), bits in sorted(self.outcomes.reported.items()):
+            if site in expect.sites:
+                continue
+            for bit in (0, 1):
+                chosen = bits == bit
+                if chosen.mean() < MIN_CONDITION_PROBABILITY:
+                    continue
+                subset = [replace(c, states=tuple(s[chosen] for s in c.states)) for c in self.with_ff]
+                rho = reduced_density(subset, expect.sites)
+                rho = rho / np.trace(rho).real
+                numbers = observables.summarize(rho, len(expect.sites), expect.state, expect.is_ket)
+                out.append({"record": record, "site": site, "outcome": bit,
+                            "probability": observables.clean(chosen.mean()), **numbers})
+        return out
+
     def _key_stats(self, selection, expect) -> dict:
         keys = self.selections[selection]
         fidelity = shot_fidelities(self.with_ff, expect)

@@ -321,11 +321,17 @@ class FeedForwardMixin:
             return durations.pop()
         if all(v["area"] is None for v in values):
             raise EvalError(error("a pulse needs an `area` or a `duration`", stmt.span))
-        longest = 0.0
+        longest, implied = 0.0, set()
         for v in values:
             rabi = v["rabi"] if v["rabi"] is not None else drive.max_rabi_hz
             if v["area"]:
                 longest = max(longest, envelopes.duration_for_area(shape, v["area"], rabi))
+                if v["rabi"] is not None:
+                    implied.add(round(envelopes.duration_for_area(shape, v["area"], rabi), 15))
+        if len(implied) > 1:
+            raise EvalError(error("with both `area` and `rabi` given, the duration would change with the record; "
+                                  "the sequencer plays one fixed timeline", spans.get("rabi", stmt.span),
+                                  "give a `duration` and one of `area` or `rabi`"))
         if longest == 0.0:
             raise EvalError(error("this pulse has zero area for every outcome", spans.get("area", stmt.span)))
         return longest

@@ -37,6 +37,8 @@ def allowed_roots(main_path: str) -> list[str]:
 def refusal(main_path: str, written: str, target: str, extensions: tuple[str, ...]) -> str | None:
     """Why the include written as `written` (found at `target`) may not be read, or None."""
     kind = _KINDS[extensions[0]]
+    if "\x00" in written:  # no file system takes it; os.path would raise
+        return "a file name cannot hold a null byte"
     if not written.endswith(extensions):
         return f"{kind}; `{_short(written)}` is not one"
     real = os.path.realpath(target)

@@ -52,7 +52,7 @@ def key_words(selection: Selection, key: int) -> str:
 
 
 def _for_key(diagnostic: Diagnostic, selection: Selection, key: int) -> Diagnostic:
-    return Diagnostic(diagnostic.severity, f"when {key_words(selection, key)}: {diagnostic.message}",
+    return Diagnostic(diagnostic.severity, f"{diagnostic.message} (when {key_words(selection, key)})",
                       diagnostic.span, diagnostic.hint)
 
 

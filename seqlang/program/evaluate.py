@@ -182,8 +182,9 @@ class Deferred:
 def _record_call(expr: ast.Call, scope: Scope) -> Quantity:
     reader = RECORD_VALUES.get()
     if reader is None:
-        raise EvalError(error(f"`{expr.func.name}(…)` reads an image record: it can set a pulse's phase, area, "
-                              "rabi or detuning, or a `when` condition, and nothing else", expr.span))
+        raise EvalError(error(f"`{expr.func.name}(…)` reads an image record; only pulse parameters and `when` "
+                              "conditions can use one", expr.span,
+                              "a record can set a pulse's phase, area, rabi or detuning"))
     return reader(expr, scope)
 
 

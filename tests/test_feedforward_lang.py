@@ -98,8 +98,8 @@ def test_branches_of_different_length_are_padded_with_a_warning(tmp_path):
   when mid[h1] is bright { pulse mw_rb area pi } otherwise { wait 10 us }
   pulse mw_rb area pi/2""")
     (warning,) = seq.warnings
-    assert warning.message == ("the `otherwise` branch is 15 us shorter; it is padded with idle time so that the "
-                               "timeline after the `when` is the same for every outcome")
+    assert warning.message == ("the `otherwise` branch is 15 us shorter; it is padded with idle time so that "
+                               "what follows starts at the same time for every outcome")
     last = seq.played.pulses()[-1]
     assert last.start_s == pytest.approx(seq.played.pulses()[0].end_s, abs=1e-8)
 

@@ -271,7 +271,7 @@ class FeedForwardMixin:
         shorter = "`otherwise` branch" if b < a else "`when` branch"
         self.diags.append(warning(
             f"the {shorter} is {units.format_quantity(abs(a - b), units.DURATION)} shorter; it is padded with "
-            "idle time so that the timeline after the `when` is the same for every outcome", stmt.span,
+            "idle time so that what follows starts at the same time for every outcome", stmt.span,
             "make both branches equally long (e.g. with `wait`) to silence this"))
 
     # ---- pulses with record-dependent values -------------------------------------

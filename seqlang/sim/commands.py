@@ -12,7 +12,7 @@ from ..lang.diagnostics import render, sort_diagnostics
 # seqlang.sim.noise.SOURCES.
 ENGINES = ("auto", "fast", "lindblad", "qutip")
 SOURCES = ("decay", "dephasing", "scattering", "laser_noise", "intensity", "doppler", "motion",
-           "detuning_error", "t2_star", "field_noise", "preparation", "imaging")
+           "detuning_error", "t2_star", "field_noise", "preparation", "imaging", "crosstalk")
 
 
 def register(sub) -> None:

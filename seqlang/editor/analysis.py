@@ -159,7 +159,8 @@ def _local_lets(body, scope: Span) -> Iterator[Symbol]:
     for stmt in body:
         if isinstance(stmt, ast.LetStmt):
             yield Symbol(stmt.name.name, "constant", stmt.name.span, stmt, scope)
-        yield from _local_lets(getattr(stmt, "body", ()), scope)
+        for part in ("body", "then", "otherwise"):  # `when` keeps its statements in then/otherwise
+            yield from _local_lets(getattr(stmt, part, None) or (), scope)
 
 
 def related_files(source: ast.SourceFile, read: Callable[[str], ast.SourceFile | None]) -> list[ast.SourceFile]:

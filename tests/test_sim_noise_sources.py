@@ -310,7 +310,7 @@ def test_sampled_counts_are_reproducible_and_binomial(tmp_path):
     assert sum(a["sampled_counts"].values()) == n
     assert a["sampled_counts"] == b["sampled_counts"]
     for label, p in a["populations"].items():
-        assert a["populations_error"][label] == pytest.approx(math.sqrt(p * (1 - p) / n), rel=1e-6)
+        assert a["sampled_error"][label] == pytest.approx(math.sqrt(p * (1 - p) / n), rel=1e-6)
         assert a["sampled_counts"][label] == pytest.approx(n * p, abs=5 * math.sqrt(n * p * (1 - p)) + 1)
 
 

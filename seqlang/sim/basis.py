@@ -78,12 +78,29 @@ def full_basis(size: int, base: int = DIM) -> Basis:
 
 
 def reduced_basis(allowed: list[tuple[int, ...]], base: int = DIM,
-                  truncated_pairs: tuple[tuple[int, int], ...] = (), neglected_bound: float = 0.0) -> Basis:
-    """Products of each site's `allowed` levels, without |rr⟩ on the truncated pairs."""
-    levels = np.array(list(itertools.product(*[sorted(a) for a in allowed])), dtype=np.int8)
-    levels = levels.reshape(-1, len(allowed))
+                  truncated_pairs: tuple[tuple[int, int], ...] = (), neglected_bound: float = 0.0,
+                  limit: int | None = None, on_limit=None) -> Basis:
+    """Products of each site's `allowed` levels, without |rr⟩ on the truncated pairs.
+
+    Built site by site, dropping forbidden |rr⟩ as soon as both sites are placed, so the
+    full product is never materialised. Every site allows |0⟩ and |1⟩, so the count can
+    only grow as sites are added: past `limit`, ``on_limit(count, placed)`` is raised
+    before anything larger is allocated.
+    """
+    partners: dict[int, list[int]] = {}
     for i, j in truncated_pairs:
-        levels = levels[~((levels[:, i] == RYD) & (levels[:, j] == RYD))]
+        partners.setdefault(max(i, j), []).append(min(i, j))
+    levels = np.zeros((1, 0), dtype=np.int8)
+    for site, options in enumerate(allowed):
+        options = np.array(sorted(options), dtype=np.int8)
+        grown = np.empty((levels.shape[0] * len(options), site + 1), dtype=np.int8)
+        grown[:, :site] = np.repeat(levels, len(options), axis=0)
+        grown[:, site] = np.tile(options, levels.shape[0])
+        for other in partners.get(site, ()):
+            grown = grown[~((grown[:, site] == RYD) & (grown[:, other] == RYD))]
+        levels = grown
+        if limit is not None and levels.shape[0] > limit:
+            raise on_limit(levels.shape[0], site + 1)
     return Basis(levels, base, tuple(truncated_pairs), neglected_bound)
 
 

@@ -20,7 +20,7 @@ def budget(sequence, shots: int = 200, seed: int = 1, **options) -> dict:
         for name, result in results.items():
             x = result.expectations[k]
             entry["infidelity"][name] = round(1 - x["fidelity"], 12)
-            entry["error"][name] = x.get("fidelity_error", 0.0)
+            entry["error"][name] = x.get("fidelity_error")  # None: an exact number, no error bar
         expectations.append(entry)
     engines = sorted({r.engine for r in results.values()})
     return {"program": sequence.program.name, "shots": shots, "seed": seed, "engines": engines,
@@ -34,7 +34,7 @@ def budget_table(numbers: dict) -> str:
         lines.append(f"\n{', '.join(e['sites'])} as {e['state']}:")
         ordered = sorted(e["infidelity"].items(), key=lambda kv: -kv[1])
         for name, value in ordered:
-            error = f" ± {e['error'][name]:.2g}" if e["error"][name] else ""
+            error = f" ± {e['error'][name]:.2g}" if e["error"][name] is not None else ""
             label = {"none": "no noise (gate error only)", "all": "all sources"}.get(name, name + " alone")
             lines.append(f"  {label:<28} infidelity {value:.3e}{error}")
     return "\n".join(lines)
@@ -52,7 +52,7 @@ def plot_budget(numbers: dict, path: str) -> None:
     for ax, e in zip(axes[:, 0], numbers["expectations"]):
         ordered = sorted(e["infidelity"].items(), key=lambda kv: kv[1])
         ax.barh([n for n, _ in ordered], [v for _, v in ordered],
-                xerr=[e["error"][n] for n, _ in ordered], color="tab:blue")
+                xerr=[e["error"][n] or 0.0 for n, _ in ordered], color="tab:blue")
         ax.set_xlabel("infidelity")
         ax.set_title(f"{', '.join(e['sites'])} as {e['state']}")
     fig.tight_layout()

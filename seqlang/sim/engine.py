@@ -11,6 +11,11 @@ samples (shots) of a segment are taken in one batched call. Two forms:
   (row-major vec(AρB) = (A ⊗ Bᵀ) vec ρ), for dissipation that returns into the
   qubit space (decay branching, pure dephasing); |x⟩ is kept where decay or
   scattering can lead, so every probability is exact.
+* ``trajectories``: kets as in ``fast``, with pure dephasing L = √(2γ)|r⟩⟨r|
+  unravelled as Gaussian phase kicks e^{−iφ n_r}, φ ~ N(0, 2γ·dt), drawn per shot
+  and site between sub-steps of each driven segment (symmetric Trotter splitting;
+  the kick average is exactly the dephasing channel of the sub-step). The shot
+  average converges to the Lindblad result; sub-steps keep Ω·dt ≤ KICK_ANGLE.
 
 The states a segment's couplings connect form blocks (an atom in |0⟩ sits out a
 Rydberg pulse); each block holding amplitude is exponentiated on its own, densely
@@ -43,6 +48,10 @@ MIN_WEIGHT = 1e-14
 HISTORY_STEPS = 40
 WORKERS = min(2, os.cpu_count() or 1)  # threads sharing a large stack of exponentials
 PARALLEL_WORK = 2**18  # matrices × size³ above which a stack is split over the threads
+KICK_ANGLE = 0.25  # largest Rabi angle Ω·dt of one sub-step between dephasing kicks (rad)
+# Above this many squarings (‖A‖ ≳ 3·10⁵) scaling and squaring loses accuracy (each squaring
+# doubles the rounding error); such exponentials are taken from an eigendecomposition.
+MAX_SQUARINGS = 16
 
 
 @dataclass
@@ -59,15 +68,54 @@ def needs_lindblad(jumps: list[Jump]) -> bool:
     return any(j.target != LOST for j in jumps)
 
 
+def is_dephasing(jump: Jump) -> bool:
+    """A pure-dephasing operator √rate·|l⟩⟨l| (no population moves)."""
+    return jump.source == jump.target
+
+
+def can_unravel(jumps: list[Jump]) -> bool:
+    """True when kets with phase kicks describe every jump: loss and pure dephasing only."""
+    return all(j.target == LOST or is_dephasing(j) for j in jumps)
+
+
 def run(basis: Basis, shots: Shots, jumps: list[Jump], density: bool,
-        image_loss: dict[str, float] | None = None, record_history: bool = False) -> Run:
-    """Propagate all shots through the model's segments, branching at each imaging."""
+        image_loss: dict[str, float] | None = None, record_history: bool = False,
+        rng: np.random.Generator | None = None) -> Run:
+    """Propagate all shots through the model's segments, branching at each imaging.
+
+    For kets with pure-dephasing jumps, `rng` draws the phase kicks (see ``trajectories``)."""
+    kicks = None
+    if not density and any(is_dephasing(j) for j in jumps):
+        if rng is None:
+            raise ValueError("pure dephasing in kets needs phase-kick trajectories (a random generator)")
+        kicks = _Kicks(basis, [j for j in jumps if is_dephasing(j)], shots.count, rng)
+        jumps = [j for j in jumps if not is_dephasing(j)]
     with single_threaded_blas():
-        return _run(basis, shots, jumps, density, image_loss, record_history)
+        return _run(basis, shots, jumps, density, image_loss, record_history, kicks)
 
 
-def _run(basis, shots, jumps, density, image_loss, record_history) -> Run:
-    stepper = _Stepper(basis, shots, jumps, density)
+class _Kicks:
+    """Gaussian phase kicks that unravel pure dephasing √rate·|l⟩⟨l| (one stream per run)."""
+
+    def __init__(self, basis: Basis, jumps: list[Jump], rows: int, rng: np.random.Generator):
+        self.masks = np.array([basis.mask(j.site, j.source) for j in jumps], dtype=float)  # (n, D)
+        self.rates = np.array([j.rate for j in jumps])
+        self.rows, self.rng = rows, rng
+
+    def phases(self, durations: np.ndarray) -> np.ndarray:
+        """(len(durations), rows, D) factors e^{−iΣφ n}, φ ~ N(0, rate·duration) per kick."""
+        sigma = np.sqrt(self.rates[None, None, :] * durations[:, None, None])
+        phi = sigma * self.rng.standard_normal((len(durations), self.rows, len(self.rates)))
+        return np.exp(-1j * (phi @ self.masks))
+
+    def substeps(self, couplings: np.ndarray, dt: float) -> int:
+        """Sub-steps of a driven segment so that Ω·dt stays below KICK_ANGLE."""
+        omega = np.abs(couplings[..., 0]).max(initial=0.0)
+        return max(1, math.ceil(omega * dt / KICK_ANGLE))
+
+
+def _run(basis, shots, jumps, density, image_loss, record_history, kicks=None) -> Run:
+    stepper = _Stepper(basis, shots, jumps, density, kicks)
     kets = np.stack([basis.state(levels) for levels in shots.initial])
     states = [np.einsum("bi,bj->bij", kets, kets.conj()) if density else kets]
     outcomes: list[tuple] = [()]
@@ -99,8 +147,8 @@ def _pieces(segment: Segment, fine: bool) -> list[tuple[float, float]]:
 class _Stepper:
     """Builds the batched generator of a segment and applies its exponential."""
 
-    def __init__(self, basis: Basis, shots: Shots, jumps: list[Jump], density: bool):
-        self.basis, self.shots, self.density = basis, shots, density
+    def __init__(self, basis: Basis, shots: Shots, jumps: list[Jump], density: bool, kicks: _Kicks | None = None):
+        self.basis, self.shots, self.density, self.kicks = basis, shots, density, kicks
         self.loss_diag = np.zeros(basis.size)
         for j in jumps:
             self.loss_diag += j.rate * basis.mask(j.site, j.source)
@@ -151,8 +199,16 @@ class _Stepper:
         stacked = _rotate(stacked, np.exp(-1j * frame * t0), self.density)
         if not seg.couplings and not self.returning:
             stacked = self._diagonal_step(stacked, diag, dt)
+            if self.kicks is not None:  # kicks commute with a diagonal step: one kick for all of it
+                stacked = stacked * self.kicks.phases(np.array([dt]))[0][None]
         elif self.density:
             stacked = self._lindblad_step(seg, couplings, diag, dt, stacked, shifts, levels)
+        elif self.kicks is not None:
+            n = self.kicks.substeps(couplings, dt)
+            durations = np.full(n + 1, dt / n)
+            durations[[0, -1]] = dt / (2 * n)  # symmetric splitting: half kicks at both ends
+            kick = self.kicks.phases(durations)
+            stacked = self._ket_step(seg, couplings, diag, dt / n, stacked * kick[0][None], kick[1:])
         else:
             stacked = self._ket_step(seg, couplings, diag, dt, stacked)
         stacked = _rotate(stacked, np.exp(1j * frame * (t0 + dt)), self.density)
@@ -164,24 +220,39 @@ class _Stepper:
             return stacked * phase
         return stacked * phase[..., :, None] * phase.conj()[..., None, :]
 
-    def _ket_step(self, seg, couplings, diag, dt, stacked):
+    def _ket_step(self, seg, couplings, diag, dt, stacked, kicks=None):
+        """e^{−iH_eff·dt} on every block; with `kicks` (n, rows, D), n times, each followed by
+        its kick (the kicks are diagonal, so they act block by block)."""
         occupied = np.any(stacked != 0, axis=(0, 1))
         out = np.zeros_like(stacked)
         rows = diag.shape[0]
+        repeats = 1 if kicks is None else len(kicks)
         for idx in self.blocks(seg):
             idx = idx[occupied[idx].any(axis=1)]  # blocks holding no amplitude stay empty
             if not len(idx):
                 continue
             if idx.shape[1] > DENSE_LIMIT or self._sparse_is_cheaper(seg, couplings, diag, dt, idx, stacked.shape[0]):
                 for block in idx:
-                    out[..., block] = self._sparse_block_step(seg, couplings, diag, dt, stacked[..., block], block)
+                    part = stacked[..., block]
+                    for r in range(repeats):
+                        part = self._sparse_block_step(seg, couplings, diag, dt, part, block)
+                        part = part if kicks is None else part * kicks[r][None][..., block]
+                    out[..., block] = part
                 continue
             for lo, hi in _chunks(rows, idx.shape[1], idx.shape[0]):
                 u = batched_expm(-1j * dt * self.block_hamiltonian(seg, couplings[lo:hi], diag[lo:hi], idx))
                 if rows > 1:  # u: (rows, blocks, k, k); states: (branches, rows, D)
-                    out[:, lo:hi, idx] = np.einsum("rmij,krmj->krmi", u, stacked[:, lo:hi][..., idx])
+                    part = stacked[:, lo:hi][..., idx]
+                    for r in range(repeats):
+                        part = np.einsum("rmij,krmj->krmi", u, part)
+                        part = part if kicks is None else part * kicks[r][None, lo:hi][..., idx]
+                    out[:, lo:hi, idx] = part
                 else:
-                    out[..., idx] = np.einsum("mij,krmj->krmi", u[0], stacked[..., idx])
+                    part = stacked[..., idx]
+                    for r in range(repeats):
+                        part = np.einsum("mij,krmj->krmi", u[0], part)
+                        part = part if kicks is None else part * kicks[r][None][..., idx]
+                    out[..., idx] = part
         return out
 
     def _sparse_is_cheaper(self, seg, couplings, diag, dt, idx, branches) -> bool:
@@ -400,6 +471,8 @@ def batched_expm(a: np.ndarray) -> np.ndarray:
     shape = a.shape
     if shape[-1] == 1:
         return np.exp(a)
+    if shape[-1] == 2:
+        return _expm2(a)
     m = a.reshape(-1, shape[-2], shape[-1])
     if WORKERS > 1 and m.shape[0] * shape[-1] ** 3 >= PARALLEL_WORK:
         with ThreadPoolExecutor(WORKERS) as pool:  # numpy's batched kernels release the GIL
@@ -407,10 +480,56 @@ def batched_expm(a: np.ndarray) -> np.ndarray:
     return _expm_stack(m).reshape(shape)
 
 
+def _expm2(a: np.ndarray) -> np.ndarray:
+    """exp of 2×2 matrices in closed form: with A = τI + B, B traceless and s² = −det B,
+    e^A = ½[(e^{τ+s} + e^{τ−s}) I + (e^{τ+s} − e^{τ−s}) B/s] (Cayley–Hamilton). Exact at any
+    norm: a long pulse stays a contraction, where repeated squaring would amplify rounding."""
+    tau = 0.5 * (a[..., 0, 0] + a[..., 1, 1])
+    b00 = a[..., 0, 0] - tau
+    s = np.sqrt(b00 * b00 + a[..., 0, 1] * a[..., 1, 0])
+    plus, minus = np.exp(tau + s), np.exp(tau - s)
+    small = np.abs(s) < 1e-6
+    safe = np.where(small, 1.0, s)
+    ratio = np.where(small, 2 * np.exp(tau) * (1 + s * s / 6), (plus - minus) / safe)  # (e^{τ+s} − e^{τ−s})/s
+    even = 0.5 * (plus + minus)
+    out = np.empty(a.shape, dtype=complex)
+    out[..., 0, 0] = even + 0.5 * ratio * b00
+    out[..., 1, 1] = even - 0.5 * ratio * b00
+    out[..., 0, 1] = 0.5 * ratio * a[..., 0, 1]
+    out[..., 1, 0] = 0.5 * ratio * a[..., 1, 0]
+    return out
+
+
+def _expm_eig(m: np.ndarray) -> np.ndarray:
+    """exp of matrices of very large norm from their eigendecomposition: unitary to rounding
+    for anti-Hermitian ones (−iH·t), and a contraction for −iH_eff·t, whose eigenvalues have
+    non-positive real parts. No error grows with the norm, unlike repeated squaring."""
+    out = np.empty_like(m)
+    hermitian = np.all(np.abs(m + np.conj(np.swapaxes(m, -1, -2))) <= 1e-12 * np.abs(m).max(axis=(-1, -2),
+                                                                                             keepdims=True),
+                       axis=(-1, -2))
+    if hermitian.any():
+        values, vectors = np.linalg.eigh(1j * m[hermitian])
+        out[hermitian] = (vectors * np.exp(-1j * values)[..., None, :]) @ np.conj(np.swapaxes(vectors, -1, -2))
+    if (~hermitian).any():
+        values, vectors = np.linalg.eig(m[~hermitian])
+        out[~hermitian] = np.linalg.solve(np.swapaxes(vectors, -1, -2),
+                                          np.swapaxes(vectors * np.exp(values)[..., None, :], -1, -2)
+                                          ).swapaxes(-1, -2)
+    return out
+
+
 def _expm_stack(m: np.ndarray) -> np.ndarray:
     shape = m.shape
     norms = np.abs(m).sum(axis=1).max(axis=1)
     squarings = np.maximum(0, np.ceil(np.log2(np.maximum(norms, 1e-300) / _THETA13))).astype(int)
+    long = squarings > MAX_SQUARINGS
+    if long.any():
+        out = np.empty_like(m)
+        out[long] = _expm_eig(m[long])
+        if (~long).any():
+            out[~long] = _expm_stack(m[~long])
+        return out
     m = m / (2.0 ** squarings)[:, None, None]
     b = _PADE13
     eye = np.eye(shape[-1])

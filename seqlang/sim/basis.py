@@ -150,11 +150,14 @@ def partial_trace_kets(basis: Basis, kets: np.ndarray, keep: list[int], dim: int
     """Σ over kets of Tr_rest |ψ⟩⟨ψ| on the `keep` sites (levels ≥ dim must be empty)."""
     inner, outer, count = _split(basis, keep, dim)
     inside = _inside(basis, keep, dim)
+    kets = kets.reshape(-1, basis.size)
     rho = np.zeros((dim ** len(keep),) * 2, dtype=complex)
-    for psi in kets.reshape(-1, basis.size):
-        block = np.zeros((dim ** len(keep), count), dtype=complex)
-        block[inner[inside], outer[inside]] = psi[inside]
-        rho += block @ block.conj().T
+    for lo in range(0, kets.shape[0], 256):  # Σ_k B_k B_k† as one product per batch of kets
+        part = kets[lo:lo + 256]
+        block = np.zeros((dim ** len(keep), part.shape[0], count), dtype=complex)
+        block[inner[inside], :, outer[inside]] = part[:, inside].T
+        flat = block.reshape(dim ** len(keep), -1)
+        rho += flat @ flat.conj().T
     return rho
 
 

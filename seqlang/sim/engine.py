@@ -48,7 +48,7 @@ MIN_WEIGHT = 1e-14
 HISTORY_STEPS = 40
 WORKERS = min(2, os.cpu_count() or 1)  # threads sharing a large stack of exponentials
 PARALLEL_WORK = 2**18  # matrices × size³ above which a stack is split over the threads
-KICK_ANGLE = 0.25  # largest Rabi angle Ω·dt of one sub-step between dephasing kicks (rad)
+KICK_ANGLE = 0.5  # largest Rabi angle Ω·dt of one sub-step between dephasing kicks (rad)
 # Above this many squarings (‖A‖ ≳ 3·10⁵) scaling and squaring loses accuracy (each squaring
 # doubles the rounding error); such exponentials are taken from an eigendecomposition.
 MAX_SQUARINGS = 16
@@ -98,15 +98,30 @@ class _Kicks:
     """Gaussian phase kicks that unravel pure dephasing √rate·|l⟩⟨l| (one stream per run)."""
 
     def __init__(self, basis: Basis, jumps: list[Jump], rows: int, rng: np.random.Generator):
-        self.masks = np.array([basis.mask(j.site, j.source) for j in jumps], dtype=float)  # (n, D)
+        masks = np.array([basis.mask(j.site, j.source) for j in jumps], dtype=bool)  # (n, D)
+        self.size = basis.size
+        self.columns = np.nonzero(masks.any(axis=0))[0]  # only states with a dephased level get kicked
+        # Per kicked state, the jumps whose level it holds (padded with a jump-free slot, factor 1):
+        # its factor is the product of those few e^{−iφ}, gathered instead of exponentiated per state.
+        held = masks.T
+        width = max(1, int(held.sum(axis=1).max(initial=1)))
+        self.gather = np.full((self.size, width), len(jumps))
+        for k in self.columns:
+            where = np.nonzero(held[k])[0]
+            self.gather[k, :len(where)] = where
         self.rates = np.array([j.rate for j in jumps])
         self.rows, self.rng = rows, rng
 
-    def phases(self, durations: np.ndarray) -> np.ndarray:
-        """(len(durations), rows, D) factors e^{−iΣφ n}, φ ~ N(0, rate·duration) per kick."""
-        sigma = np.sqrt(self.rates[None, None, :] * durations[:, None, None])
-        phi = sigma * self.rng.standard_normal((len(durations), self.rows, len(self.rates)))
-        return np.exp(-1j * (phi @ self.masks))
+    def apply(self, states: np.ndarray, duration: float) -> np.ndarray:
+        """Kick (branches, rows, D) kets: e^{−iΣφ n} with φ ~ N(0, rate·duration) per shot and jump."""
+        phi = np.sqrt(self.rates * duration) * self.rng.standard_normal((self.rows, len(self.rates)))
+        single = np.ones((self.rows, len(self.rates) + 1), dtype=complex)
+        single[:, :-1] = np.exp(-1j * phi)
+        factors = single[:, self.gather[:, 0]]
+        for k in range(1, self.gather.shape[1]):
+            factors = factors * single[:, self.gather[:, k]]
+        states *= factors[None]
+        return states
 
     def substeps(self, couplings: np.ndarray, dt: float) -> int:
         """Sub-steps of a driven segment so that Ω·dt stays below KICK_ANGLE."""
@@ -182,14 +197,18 @@ class _Stepper:
         b = self.basis
         rows = max(couplings.shape[0], shifts.shape[0], interactions.shape[0])
         frame = np.zeros((rows, b.size))
-        for j, c in enumerate(seg.couplings):
-            frame -= couplings[:, j, 1:2] * b.mask(c.site, c.upper)
-        diag = frame.astype(complex)
-        for j, (site, level) in enumerate(levels):
-            diag += (shifts[:, j, 0:1] - 0.5j * shifts[:, j, 1:2]) * b.mask(site, level)
-        for j, pair in enumerate(pairs):
-            diag += interactions[:, j:j + 1] * self._pair_mask(pair)
-        return diag - 0.5j * self.loss_diag, frame
+        if seg.couplings:  # one matrix product per kind of term: (rows, terms) @ (terms, D) masks
+            upper = np.array([b.mask(c.site, c.upper) for c in seg.couplings], dtype=float)
+            frame -= couplings[:, :, 1] @ upper
+        real = frame.copy()
+        imag = np.broadcast_to(-0.5 * self.loss_diag, (rows, b.size)).copy()
+        if levels:
+            masks = np.array([b.mask(site, level) for site, level in levels], dtype=float)
+            real += shifts[:, :, 0] @ masks
+            imag -= 0.5 * (shifts[:, :, 1] @ masks)
+        if pairs:
+            real += interactions @ np.array([self._pair_mask(p) for p in pairs], dtype=float)
+        return real + 1j * imag, frame
 
     def step(self, k: int, t0: float, dt: float, states: list[np.ndarray]) -> list[np.ndarray]:
         seg, couplings, shifts, levels, pairs, interactions = self.parameters(k)
@@ -200,15 +219,18 @@ class _Stepper:
         if not seg.couplings and not self.returning:
             stacked = self._diagonal_step(stacked, diag, dt)
             if self.kicks is not None:  # kicks commute with a diagonal step: one kick for all of it
-                stacked = stacked * self.kicks.phases(np.array([dt]))[0][None]
+                stacked = self.kicks.apply(stacked, dt)
         elif self.density:
             stacked = self._lindblad_step(seg, couplings, diag, dt, stacked, shifts, levels)
-        elif self.kicks is not None:
+        elif self.kicks is not None:  # symmetric splitting: half kicks at both ends, full ones between
             n = self.kicks.substeps(couplings, dt)
-            durations = np.full(n + 1, dt / n)
-            durations[[0, -1]] = dt / (2 * n)  # symmetric splitting: half kicks at both ends
-            kick = self.kicks.phases(durations)
-            stacked = self._ket_step(seg, couplings, diag, dt / n, stacked * kick[0][None], kick[1:])
+            stacked = self.kicks.apply(stacked, dt / (2 * n))
+            done = [0]
+
+            def kick(states):
+                done[0] += 1
+                return self.kicks.apply(states, dt / n if done[0] < n else dt / (2 * n))
+            stacked = self._ket_step(seg, couplings, diag, dt / n, stacked, n, kick)
         else:
             stacked = self._ket_step(seg, couplings, diag, dt, stacked)
         stacked = _rotate(stacked, np.exp(1j * frame * (t0 + dt)), self.density)
@@ -220,40 +242,33 @@ class _Stepper:
             return stacked * phase
         return stacked * phase[..., :, None] * phase.conj()[..., None, :]
 
-    def _ket_step(self, seg, couplings, diag, dt, stacked, kicks=None):
-        """e^{−iH_eff·dt} on every block; with `kicks` (n, rows, D), n times, each followed by
-        its kick (the kicks are diagonal, so they act block by block)."""
+    def _ket_step(self, seg, couplings, diag, dt, stacked, repeats: int = 1, kick=None):
+        """e^{−iH_eff·dt} on every block, `repeats` times; after each, `kick(states)` (the
+        dephasing kicks, diagonal, applied to the whole state)."""
         occupied = np.any(stacked != 0, axis=(0, 1))
-        out = np.zeros_like(stacked)
         rows = diag.shape[0]
-        repeats = 1 if kicks is None else len(kicks)
+        dense, sparse = [], []
         for idx in self.blocks(seg):
             idx = idx[occupied[idx].any(axis=1)]  # blocks holding no amplitude stay empty
             if not len(idx):
                 continue
             if idx.shape[1] > DENSE_LIMIT or self._sparse_is_cheaper(seg, couplings, diag, dt, idx, stacked.shape[0]):
-                for block in idx:
-                    part = stacked[..., block]
-                    for r in range(repeats):
-                        part = self._sparse_block_step(seg, couplings, diag, dt, part, block)
-                        part = part if kicks is None else part * kicks[r][None][..., block]
-                    out[..., block] = part
+                sparse += list(idx)
                 continue
             for lo, hi in _chunks(rows, idx.shape[1], idx.shape[0]):
                 u = batched_expm(-1j * dt * self.block_hamiltonian(seg, couplings[lo:hi], diag[lo:hi], idx))
+                dense.append((idx, lo, hi, u))
+        for _ in range(repeats):
+            out = np.zeros_like(stacked)
+            for idx, lo, hi, u in dense:
                 if rows > 1:  # u: (rows, blocks, k, k); states: (branches, rows, D)
-                    part = stacked[:, lo:hi][..., idx]
-                    for r in range(repeats):
-                        part = np.einsum("rmij,krmj->krmi", u, part)
-                        part = part if kicks is None else part * kicks[r][None, lo:hi][..., idx]
-                    out[:, lo:hi, idx] = part
+                    out[:, lo:hi, idx] = np.einsum("rmij,krmj->krmi", u, stacked[:, lo:hi][..., idx])
                 else:
-                    part = stacked[..., idx]
-                    for r in range(repeats):
-                        part = np.einsum("mij,krmj->krmi", u[0], part)
-                        part = part if kicks is None else part * kicks[r][None][..., idx]
-                    out[..., idx] = part
-        return out
+                    out[..., idx] = np.einsum("mij,krmj->krmi", u[0], stacked[..., idx])
+            for block in sparse:
+                out[..., block] = self._sparse_block_step(seg, couplings, diag, dt, stacked[..., block], block)
+            stacked = out if kick is None else kick(out)
+        return stacked
 
     def _sparse_is_cheaper(self, seg, couplings, diag, dt, idx, branches) -> bool:
         """Compare flop estimates: scaling and squaring (~k³ per squaring) against the
@@ -355,9 +370,11 @@ class _Stepper:
         for group in _pair_groups(labels, jumps, occupied):
             elements, pairs = _group_elements(labels, group, d)
             if len(elements) > MAX_LINDBLAD_BLOCK:
-                raise MemoryError(f"the Lindblad engine would need a block of {len(elements)} density-matrix "
-                                  "elements; use the fast engine (no pure dephasing or decay back into the "
-                                  "qubit space) or fewer atoms per cluster")
+                from .limits import SimulationLimit
+                raise SimulationLimit(f"the Lindblad engine would need a block of {len(elements):,} density-matrix "
+                                      f"elements (limit {MAX_LINDBLAD_BLOCK:,}); what would help: the trajectories "
+                                      "engine (pure dephasing) or the fast engine (loss only), or fewer atoms "
+                                      "within one blockade radius")
             for lo, hi in _chunks(rows, len(elements)):
                 whole = np.arange(self.basis.size)[None]  # all states as one block: the dense H_eff
                 h = self.block_hamiltonian(seg, couplings[lo:hi], diag[lo:hi], whole)[:, 0]

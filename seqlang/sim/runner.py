@@ -51,6 +51,8 @@ class Plan:
     done: int = 0
     bytes: int = 0
     flops: float = 0.0
+    prepared_lost: tuple[int, ...] = ()  # sites a preparation error can start in |x⟩
+    imaging_lost: tuple[int, ...] = ()  # sites imaging can lose
 
 
 def choose_engine(requested: str, jumps, states: int) -> tuple[str, str]:
@@ -110,6 +112,10 @@ class Runner:
         readout = {name: noise.readout_errors(program, sp, sources) for name, sp in zip(model.sites, model.species)}
         rng = np.random.default_rng([self.options["seed"], KICK_STREAM, number]) if engine == "trajectories" else None
         plan = Plan(nominal, model, jumps, engine, basis, shots, stochastic, readout, note, rng)
+        plan.prepared_lost = tuple(sorted(noise.lossy_sites(program, model, tuple(s for s in sources
+                                                                                  if s == "preparation"))))
+        plan.imaging_lost = tuple(sorted(noise.lossy_sites(program, model, tuple(s for s in sources
+                                                                                 if s == "imaging"))))
         plan.bytes, plan.flops = _estimate(plan, engine in ("lindblad", "qutip"))
         return plan
 
@@ -181,14 +187,36 @@ class Runner:
         chunk = plan.shots.rows(lo, hi)
         if plan.engine == "qutip":
             self._qutip_chunk(plan, chunk, lo)
-        else:
+        elif plan.engine == "lindblad" or self.options["history"] or not plan.prepared_lost:
             loss = noise.image_loss(self.program, self.sources)
             found = fast.run(plan.basis, chunk, plan.jumps, plan.engine == "lindblad", loss, self.options["history"],
                              plan.rng)
-            _merge(plan.merged, found.outcomes, found.states, lo)
+            _merge(plan.merged, found.outcomes, found.states, np.arange(lo, lo + chunk.count))
             plan.history = plan.history or tuple(found.history)
+        else:
+            self._by_pattern(plan, chunk, lo)
         if not plan.stochastic:
             plan.done = hi
+
+    def _by_pattern(self, plan: Plan, chunk: noise.Shots, lo: int) -> None:
+        """Kets, split by atoms prepared lost: an atom that starts in |x⟩ stays there (imaging
+        loss aside), so the shots where every atom was prepared are propagated on the states
+        without a prepared loss (a basis several times smaller), the few others on the full
+        basis, and the results embedded back."""
+        loss = noise.image_loss(self.program, self.sources)
+        patterns: dict[bool, list[int]] = {}
+        for k, levels in enumerate(chunk.initial):
+            patterns.setdefault(any(levels[i] == LOST for i in plan.prepared_lost), []).append(k)
+        for some_lost, rows in sorted(patterns.items()):
+            sub = plan.basis if some_lost else _pattern_basis(plan, ())
+            found = fast.run(sub, chunk.take(np.array(rows)), plan.jumps, False, loss, False, plan.rng)
+            where = plan.basis.find(sub.keys)
+            states = []
+            for state in found.states:
+                full = np.zeros(state.shape[:-1] + (plan.basis.size,), dtype=complex)
+                full[..., where] = state
+                states.append(full)
+            _merge(plan.merged, found.outcomes, states, lo + np.array(rows))
 
     def _qutip_chunk(self, plan: Plan, chunk: noise.Shots, offset: int) -> None:
         c_ops = noise.collapse_operators(self.program, plan.model, self.sources)
@@ -198,7 +226,7 @@ class Runner:
             draws = tuple(d[k] for d in chunk.image_draws)
             found, hist = propagate(chunk.shot_model(k), c_ops, self.options["history"], initial, loss, draws)
             plan.history = plan.history or tuple(hist)
-            _merge(plan.merged, [b.outcomes for b in found], [b.state[None] for b in found], offset + k)
+            _merge(plan.merged, [b.outcomes for b in found], [b.state[None] for b in found], np.array([offset + k]))
 
 
 def final_states(plan: Plan) -> tuple[tuple, tuple]:
@@ -207,19 +235,32 @@ def final_states(plan: Plan) -> tuple[tuple, tuple]:
     return outcomes, tuple(_pad(plan.merged[o], plan.done) for o in outcomes)
 
 
-def _merge(merged: dict, outcomes, states, offset: int) -> None:
-    """Collect per-branch state arrays over chunks of shots: (first shot index, array)."""
+def _pattern_basis(plan: Plan, pattern: tuple[int, ...]) -> Basis:
+    """The kept states with exactly the atoms of `pattern` prepared lost (others may still be
+    lost by imaging where that can happen)."""
+    levels = plan.basis.levels
+    keep = np.ones(plan.basis.size, dtype=bool)
+    for site in plan.prepared_lost:
+        if site in pattern:
+            keep &= levels[:, site] == LOST
+        elif site not in plan.imaging_lost:
+            keep &= levels[:, site] != LOST
+    return Basis(levels[keep], plan.basis.base, plan.basis.truncated_pairs, plan.basis.neglected_bound)
+
+
+def _merge(merged: dict, outcomes, states, shots: np.ndarray) -> None:
+    """Collect per-branch state arrays over chunks of shots: (shot indices, array)."""
     for labels, state in zip(outcomes, states):
-        merged.setdefault(tuple(labels), []).append((offset, state))
+        merged.setdefault(tuple(labels), []).append((shots, state))
 
 
 def _pad(parts: list, total: int) -> np.ndarray:
     """One (shots, …) array per branch, with zeros for shots where the branch was dropped."""
     first = parts[0][1]
     out = np.zeros((total,) + first.shape[1:], dtype=complex)
-    for offset, state in parts:
-        if offset < total:
-            out[offset:offset + state.shape[0]] = state[: total - offset]
+    for shots, state in parts:
+        inside = shots < total
+        out[shots[inside]] = state[inside]
     return out
 
 
@@ -231,6 +272,8 @@ def _estimate(plan: Plan, density: bool) -> tuple[int, float]:
     branches = 2 ** min(imaged, 12)
     samples = sum(a.nbytes for a in plan.shots.couplings + plan.shots.shifts) + plan.shots.interactions.nbytes
     size = limits.run_bytes(d, shots, branches, density, SHOT_CHUNK, samples)
+    if plan.engine == "qutip":  # dense H, and with collapse operators the dense Liouvillian and its exponential
+        size += 16 * d * d * 4 + (16 * d**4 * 4 if plan.jumps else 0)
     flops = 0.0
     for seg, c in zip(plan.model.segments, plan.shots.couplings):
         if seg.image is not None or seg.duration_s <= 0:

@@ -56,7 +56,9 @@ def cluster_key(program: Program, model) -> tuple:
                       None if seg.image is None else (seg.image.record, tuple(s in seg.image.targets
                                                                                 for s in model.sites)))
                      for seg in model.segments)
-    return (model.species, geometry, segments, tuple(sorted(model.interactions.items())), model.dim)
+    # Pair shifts agree to rounding only (distances from different absolute positions).
+    interactions = tuple((pair, float(f"{v:.10g}")) for pair, v in sorted(model.interactions.items()))
+    return (model.species, geometry, segments, interactions, model.dim)
 
 
 def representatives(program: Program, models: list) -> list[int]:

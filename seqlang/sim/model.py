@@ -97,13 +97,16 @@ def pair_interactions_hz(program: Program, sites: tuple[str, ...],
     """
     from ..atoms import rydberg
     out = {}
+    c6s: dict[tuple[str, str], object] = {}  # one lookup per species pair
     for a, b in _candidate_pairs(program, sites, cutoff_hz):
         sa, sb = program.sites[a], program.sites[b]
         spa, spb = program.rig.species[sa.species], program.rig.species[sb.species]
         if spa.rydberg is None or spb.rydberg is None:
             continue
-        c6 = rydberg.c6_hz_m6(spa.data, spa.rydberg, spb.data, spb.rydberg)
-        out[(a, b)] = rydberg.interaction_hz(c6, math.dist(sa.position_m, sb.position_m))
+        key = (sa.species, sb.species)
+        if key not in c6s:
+            c6s[key] = rydberg.c6_hz_m6(spa.data, spa.rydberg, spb.data, spb.rydberg)
+        out[(a, b)] = rydberg.interaction_hz(c6s[key], math.dist(sa.position_m, sb.position_m))
     return out
 
 

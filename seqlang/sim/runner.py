@@ -55,9 +55,10 @@ class Plan:
     imaging_lost: tuple[int, ...] = ()  # sites imaging can lose
 
 
-def choose_engine(requested: str, jumps, states: int) -> tuple[str, str]:
+def choose_engine(requested: str, jumps, states: int, sampled: bool = False) -> tuple[str, str]:
     """(engine, note) for a model: Lindblad where dissipation returns into the simulated states
-    and cannot be unravelled; pure dephasing as trajectories when the density matrix is large."""
+    and cannot be unravelled; pure dephasing as trajectories when the density matrix is large,
+    or when shots are drawn anyway (sampled noise: the kicks then cost no extra runs)."""
     returning = fast.needs_lindblad(jumps)
     unravel = returning and fast.can_unravel(jumps)
     if requested == "auto":
@@ -66,6 +67,8 @@ def choose_engine(requested: str, jumps, states: int) -> tuple[str, str]:
         if unravel and states > AUTO_DENSITY_STATES:
             return "trajectories", (f"pure dephasing unravelled as phase-kick trajectories: a density matrix "
                                     f"would hold {states:,}² elements per shot")
+        if unravel and sampled:
+            return "trajectories", ""
         return "lindblad", ""
     if requested == "fast" and returning:
         raise ValueError("the fast engine needs all dissipation to end in the loss level; this model has decay "
@@ -101,7 +104,7 @@ class Runner:
             self._count(basis, model)
         else:
             basis = self._basis(model, jumps, density_first)
-            engine, note = choose_engine(requested, jumps, basis.size)
+            engine, note = choose_engine(requested, jumps, basis.size, noise.is_sampled(sources))
             if density_first and engine != "lindblad":  # kets need no |x⟩ for decay: a smaller basis
                 basis = self._basis(model, jumps, False)
             self._count(basis, model)

@@ -111,3 +111,25 @@ def test_exact_runs_carry_no_error_bars_and_no_shot_count(tmp_path):
     assert e["populations"]["1"] == pytest.approx(0.5, abs=1e-9)
     assert not [k for k in e if k.endswith("_error")]
     assert "site_populations_error" not in document
+
+
+def test_interrupt_on_the_command_line_prints_the_finished_shots(tmp_path, monkeypatch, capsys):
+    """Ctrl-C during the second chunk: the JSON of the first chunk's shots, marked interrupted,
+    on every cluster alike (chunks run cluster by cluster within each chunk of shots)."""
+    from seqlang import cli
+    from seqlang.sim import api, runner
+    real_chunk, calls = runner.Runner._chunk, []
+
+    def interrupted_chunk(self, plan, lo, hi):
+        calls.append(lo)
+        if calls.count(api.SHOT_CHUNK) == 2:  # the second cluster's second chunk
+            raise KeyboardInterrupt
+        return real_chunk(self, plan, lo, hi)
+    monkeypatch.setattr(runner.Runner, "_chunk", interrupted_chunk)
+    sites = "site u = a at (0, 0) um\nsite v = a at (200, 0) um"
+    path = _program(tmp_path, "pulse mw_a area pi/2\npulse ryd_a on v area pi", sites, "expect u, v as |10>")
+    code = cli.main(["simulate", path, "--json", "--noise", "preparation", "--shots", str(3 * api.SHOT_CHUNK)])
+    document = json.loads(capsys.readouterr().out)
+    assert code == 0
+    assert document["noise"]["shots"] == api.SHOT_CHUNK and "interrupted" in document["noise"]
+    assert document["expectations"][0]["fidelity"] == pytest.approx(0.25, abs=0.03)  # 1/2 · 1/2

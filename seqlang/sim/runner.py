@@ -211,7 +211,8 @@ class Runner:
         for k, levels in enumerate(chunk.initial):
             patterns.setdefault(any(levels[i] == LOST for i in plan.prepared_lost), []).append(k)
         for some_lost, rows in sorted(patterns.items()):
-            sub = plan.basis if some_lost else _pattern_basis(plan, ())
+            lost = {i for k in rows for i in plan.prepared_lost if chunk.initial[k][i] == LOST}
+            sub = _pattern_basis(plan, (), lost)
             found = fast.run(sub, chunk.take(np.array(rows)), plan.jumps, False, loss, False, plan.rng)
             where = plan.basis.find(sub.keys)
             states = []
@@ -238,15 +239,15 @@ def final_states(plan: Plan) -> tuple[tuple, tuple]:
     return outcomes, tuple(_pad(plan.merged[o], plan.done) for o in outcomes)
 
 
-def _pattern_basis(plan: Plan, pattern: tuple[int, ...]) -> Basis:
-    """The kept states with exactly the atoms of `pattern` prepared lost (others may still be
-    lost by imaging where that can happen)."""
+def _pattern_basis(plan: Plan, pattern: tuple[int, ...], maybe: set[int] = frozenset()) -> Basis:
+    """The kept states with the atoms of `pattern` prepared lost, those of `maybe` in |x⟩ or
+    not, and the others not lost (unless imaging can lose them)."""
     levels = plan.basis.levels
     keep = np.ones(plan.basis.size, dtype=bool)
     for site in plan.prepared_lost:
         if site in pattern:
             keep &= levels[:, site] == LOST
-        elif site not in plan.imaging_lost:
+        elif site not in plan.imaging_lost and site not in maybe:
             keep &= levels[:, site] != LOST
     return Basis(levels[keep], plan.basis.base, plan.basis.truncated_pairs, plan.basis.neglected_bound)
 

@@ -350,3 +350,5 @@ def test_budget_lists_every_source_and_all_costs_at_least_none():
     assert set(entry["infidelity"]) == set(noise.SOURCES) | {"none", "all"}
     assert entry["infidelity"]["all"] >= entry["infidelity"]["none"]
     assert entry["infidelity"]["decay"] > entry["infidelity"]["none"]  # Rydberg decay costs fidelity
+    assert entry["error"]["none"] is None and entry["error"]["decay"] is None  # exact numbers: no error bar
+    assert entry["error"]["intensity"] > 0 and entry["error"]["all"] > 0  # sampled: a real Monte Carlo error

@@ -148,6 +148,7 @@ def _run(basis, shots, jumps, density, image_loss, record_history, kicks=None) -
     images = 0
     for k, segment in enumerate(segments):
         if segment.image is not None:
+            states = stepper.close(states)
             if kicks is not None:
                 states = kicks.flush(states)
             draws = shots.image_draws[images] if shots.image_draws else None
@@ -159,9 +160,11 @@ def _run(basis, shots, jumps, density, image_loss, record_history, kicks=None) -
             for t0, dt in _pieces(segment, record_history):
                 states = stepper.step(k, t0, dt, states)
                 if record_history:
+                    states = stepper.close(states)
                     if kicks is not None:
                         states = kicks.flush(states)
                     history.append((t0 + dt, _populations(basis, states, density)))
+    states = stepper.close(states)
     if kicks is not None:
         states = kicks.flush(states)
     return Run(outcomes, states, history)
@@ -179,6 +182,8 @@ class _Stepper:
 
     def __init__(self, basis: Basis, shots: Shots, jumps: list[Jump], density: bool, kicks: _Kicks | None = None):
         self.basis, self.shots, self.density, self.kicks = basis, shots, density, kicks
+        self.frame: np.ndarray | None = None  # the drive frame the states are in (None: the atom frame)
+        self.now = 0.0
         self.loss_diag = np.zeros(basis.size)
         for j in jumps:
             self.loss_diag += j.rate * basis.mask(j.site, j.source)
@@ -230,7 +235,7 @@ class _Stepper:
         diag, frame = self.diagonal(seg, couplings, shifts, levels, pairs, interactions)
         couplings = np.broadcast_to(couplings, (diag.shape[0],) + couplings.shape[1:])
         stacked = np.stack(states)  # (K, B, D) or (K, B, D, D)
-        stacked = _rotate(stacked, np.exp(-1j * frame * t0), self.density)
+        stacked = self._enter(stacked, frame, t0)
         if not seg.couplings and not self.returning:
             stacked = self._diagonal_step(stacked, diag, dt)
             if self.kicks is not None:  # kicks commute with a diagonal step: kick it with the next one
@@ -256,8 +261,30 @@ class _Stepper:
             stacked = self._ket_step(seg, couplings, diag, dt / n, stacked, n, kick)
         else:
             stacked = self._ket_step(seg, couplings, diag, dt, stacked)
-        stacked = _rotate(stacked, np.exp(1j * frame * (t0 + dt)), self.density)
+        self.now = t0 + dt  # left in the drive frame: the next step with the same frame skips two rotations
         return list(stacked)
+
+    def _enter(self, stacked: np.ndarray, frame: np.ndarray, t0: float) -> np.ndarray:
+        """Map the states into the drive frame of a step starting at t0, leaving the open one."""
+        if self.frame is not None and self.frame.shape == frame.shape and np.array_equal(self.frame, frame):
+            return stacked
+        stacked = self._leave(stacked, t0)
+        if frame.any():
+            stacked = _rotate(stacked, np.exp(-1j * frame * t0), self.density)
+            self.frame = frame
+        return stacked
+
+    def _leave(self, stacked: np.ndarray, t: float) -> np.ndarray:
+        if self.frame is not None:
+            stacked = _rotate(stacked, np.exp(1j * self.frame * t), self.density)
+            self.frame = None
+        return stacked
+
+    def close(self, states: list[np.ndarray]) -> list[np.ndarray]:
+        """The states back in the atom frame (before a measurement, a record or the end)."""
+        if self.frame is None:
+            return states
+        return list(self._leave(np.stack(states), self.now))
 
     def _separable(self, seg: Segment) -> bool:
         """Qubit rotations only (0↔1, one coupling per site): then every block's H_eff is a sum

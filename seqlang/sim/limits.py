@@ -15,7 +15,7 @@ MAX_STATES = 2**20  # kept product states in one cluster
 MAX_SHOTS = 10**6  # Monte Carlo shots of one run
 WORK_FACTOR = 6  # working copies of a chunk's states while a segment is propagated
 ESTIMATE_SECONDS = 3.0  # runs estimated above this print their estimate on a terminal
-FLOPS = 1.5e9  # floating-point operations per second assumed by the time estimate
+FLOPS = 0.7e9  # operations per second of the time estimate (calibrated on the GHZ benchmarks, one core)
 
 
 class SimulationLimit(ValueError):

@@ -271,6 +271,7 @@ def _pad(parts: list, total: int) -> np.ndarray:
 def _estimate(plan: Plan, density: bool) -> tuple[int, float]:
     """(bytes, floating-point operations) of a plan, from its states, segments and shots."""
     d, shots = plan.basis.size, plan.shots.count
+    work = _pattern_basis(plan, ()).size if plan.prepared_lost and not density else d  # most shots
     imaged = sum(1 for seg in plan.model.segments if seg.image is not None for s in plan.model.sites
                  if s in seg.image.targets)
     branches = 2 ** min(imaged, 12)
@@ -283,14 +284,15 @@ def _estimate(plan: Plan, density: bool) -> tuple[int, float]:
         if seg.image is not None or seg.duration_s <= 0:
             continue
         rows = c.shape[0]
-        k = min(d, 2 ** len(seg.couplings)) if seg.couplings else 1
+        qubit_only = len(seg.couplings) > 1 and all(x.upper == 1 for x in seg.couplings)
+        k = 2 if qubit_only or len(seg.couplings) == 1 else min(d, 2 ** len(seg.couplings)) if seg.couplings else 1
         sub = 1
-        if plan.engine == "trajectories" and seg.couplings:
+        if plan.engine == "trajectories" and seg.couplings and not qubit_only:
             sub = max(1, math.ceil(np.abs(c[..., 0]).max(initial=0.0) * seg.duration_s / fast.KICK_ANGLE))
         if density:
-            flops += rows * (d / k) ** 2 * 10 * k**6 / max(k, 1) ** 2 + shots * d * d * k * 8
-        else:
-            flops += rows * (d / k) * 30 * k**3 + shots * branches * d * k * 8 * sub
+            flops += rows * (d / k) ** 2 * 10 * k**4 + shots * d * d * k * 8
+        else:  # exponentials of the blocks, then their action on every shot, branch and sub-step
+            flops += rows * (work / k) * 30 * k**3 + shots * branches * work * (k + 6) * 8 * sub
     return size, flops
 
 

@@ -40,8 +40,9 @@ MANY = ("ghz", "w")  # named states of any number of atoms
 
 
 def target_state(state: str, is_ket: bool, count: int | None = None, phase: float = 0.0) -> np.ndarray:
-    """The expected state as a vector in the computational basis (first site = leftmost bit)."""
-    return target_vector(state, is_ket, count, phase)
+    """The expected state as a vector in the computational basis (first site = leftmost bit);
+    named many-atom states default to two atoms."""
+    return target_vector(state, is_ket, 2 if count is None else count, phase)
 
 
 def target_vector(state: str, is_ket: bool, count: int | None = None, phase: float = 0.0) -> np.ndarray:

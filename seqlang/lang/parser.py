@@ -17,7 +17,6 @@ import contextlib
 import functools
 import gc
 import sys
-from dataclasses import replace
 from importlib import resources
 
 from lark import Lark, Token, Transformer, Tree, v_args
@@ -474,7 +473,7 @@ class _Builder(Transformer):
     def product_state(self, children):
         factors = tuple(self._ident(c) for c in children)
         first, last = factors[0].span, factors[-1].span
-        span = replace(first, end_line=last.end_line, end_column=last.end_column, end=last.end)
+        span = first._replace(end_line=last.end_line, end_column=last.end_column, end=last.end)
         return (ast.Ident("*".join(f.name for f in factors), span), False, factors)
 
     @v_args(meta=True)

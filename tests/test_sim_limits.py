@@ -25,8 +25,8 @@ rig limitbench {
 """
 
 
-def _program(tmp_path, body, sites, expect) -> str:
-    (tmp_path / "l.rig").write_text(RIG.replace("tick 1 ns", "tick 1 ns\n  counter_bits 64"))
+def _program(tmp_path, body, sites, expect, tick="1 ns") -> str:
+    (tmp_path / "l.rig").write_text(RIG.replace("tick 1 ns", f"tick {tick}\n  counter_bits 64"))
     path = tmp_path / "l.seq"
     path.write_text(f'use "l.rig"\n{sites}\nsequence l {{\n{body}\n}}\n{expect}\n')
     return str(path)
@@ -82,12 +82,13 @@ def test_incremental_basis_equals_the_filtered_full_product():
 def test_a_pulse_of_a_billion_seconds_keeps_probabilities(tmp_path):
     """10⁹ s of Rabi flopping, with and without loss: every probability stays in [0, 1] and the
     populations sum to one (the exponential is unitary, resp. a contraction, at any norm)."""
-    path = _program(tmp_path, "pulse mw_a duration 1e9 s", "site q = a at (0, 0) um", "expect q as |1>")
+    # A 1 µs tick keeps 10⁹ s within the 2^53 ticks where tick arithmetic is exact.
+    path = _program(tmp_path, "pulse mw_a duration 1e9 s", "site q = a at (0, 0) um", "expect q as |1>", "1 us")
     result = seqlang.simulate(path, interactions_hz={})
     p = result.reduced_density(("q",)).diagonal().real
     assert np.all(p >= -1e-12) and np.all(p <= 1 + 1e-12) and p.sum() == pytest.approx(1.0, abs=1e-12)
-    ryd = _program(tmp_path, "pulse mw_a area pi\npulse ryd_a duration 1e9 s", "site q = a at (0, 0) um",
-                   "expect q as |1>")
+    ryd = _program(tmp_path, "pulse mw_a area pi rabi 100 kHz\npulse ryd_a duration 1e9 s",
+                   "site q = a at (0, 0) um", "expect q as |1>", "1 us")
     decayed = seqlang.simulate(ryd, interactions_hz={}, noise="decay")
     assert decayed.expectations[0]["loss"] == pytest.approx(1.0, abs=1e-9)  # τ ~ 100 µs ≪ 10⁹ s
 

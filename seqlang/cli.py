@@ -80,6 +80,13 @@ def cmd_show(args) -> int:
     print(timeline_table(sequence.checked))
     print()
     print(compile_summary(sequence.checked))
+    from .show import decision_summary
+    if decision_summary(sequence.checked):
+        print("\n" + decision_summary(sequence.checked))
+    from .sim.crosstalk import summary as crosstalk_summary
+    crosstalk = crosstalk_summary(sequence.program, sequence.played)
+    if crosstalk:
+        print("\nimaging crosstalk (far-detuned scattering, Grimm et al. 2000):\n" + "\n".join(crosstalk))
     if not args.no_pairs and len(sequence.program.sites) > 1:
         table = pair_table(sequence.program)
         if table:
@@ -94,6 +101,12 @@ def cmd_plot(args) -> int:
     if args.what == "timeline":
         from .plot.timeline import plot_timeline
         plot_timeline(sequence.checked, args.output)
+    elif args.what == "array":
+        from .plot.array import plot_array
+        try:
+            plot_array(sequence, args.output, args.record)
+        except ValueError as exc:
+            raise UsageError(str(exc)) from None
     else:
         from .plot.results import plot_results
         plot_results(sequence, args.what, args.output)
@@ -145,8 +158,9 @@ def build_parser() -> argparse.ArgumentParser:
     _add_file(p)
     p.add_argument("-o", "--output", required=True, metavar="FILE",
                    help="image file to write; its extension names the format (.png, .svg or .pdf)")
-    p.add_argument("--what", choices=("timeline", "populations", "correlators"), default="timeline",
-                   help="what to draw (default: timeline)")
+    p.add_argument("--what", choices=("timeline", "populations", "correlators", "array"), default="timeline",
+                   help="what to draw (default: timeline); `array`: the site map shaded by P(bright)")
+    p.add_argument("--record", metavar="NAME", help="with --what array: the record whose P(bright) shades the map")
     p.set_defaults(run=cmd_plot)
 
     _add_optional_commands(sub)

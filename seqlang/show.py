@@ -82,3 +82,24 @@ def pair_table(program: Program) -> str:
                     f"V/h = {_f(rydberg.interaction_hz(c6, distance), units.FREQUENCY)}, "
                     f"blockade radius {_f(radius, units.LENGTH)} at {_f(rabi, units.FREQUENCY)}{flag}")
     return "\n".join(rows)
+
+
+def decision_summary(checked: Checked) -> str:
+    """The decision points: per conditioned event its record, keys, and when the key is needed."""
+    from .compile.decisions import issue_time, ready_time, variant_of, writer_of
+    timeline, program = checked.quantized, checked.program
+    lines = []
+    for e in timeline.conditioned():
+        sel, image = e.decision.selection, writer_of(timeline, e)
+        plays = [k for k in sel.keys if variant_of(e, k) is not None]
+        slack = issue_time(program, e) - ready_time(program, image) if image is not None else 0.0
+        lines.append(f"  #{e.index} {e.kind} {e.drive or e.port} (line {e.span.line}) looked up by "
+                     f"{'outcome of' if len(sel.sites) == 1 else 'bright count of'} {sel.label()}: plays for keys "
+                     f"{', '.join(map(str, plays)) or 'none'} of 0..{len(sel.sites)}; key ready "
+                     f"{_f(slack, units.DURATION)} before the event is issued")
+        if image is not None and e.kind == "pulse" and e.species == image.species \
+                and set(e.targets) & set(image.targets):
+            lines.append(f"    note: acts on `{e.species}` atoms that the imaging on line {image.span.line} "
+                         "projected: they are in |0> or |1> (or lost), so this pulse acts on the measured "
+                         "state (e.g. a reset or re-preparation), not on a superposition")
+    return "decision points (feed-forward):\n" + "\n".join(lines) if lines else ""

@@ -32,7 +32,7 @@ from seqlang import cli
 SEED = 20261203
 MUTANTS = 2000
 CLI_MUTANTS = 24
-TIME_BOUND_S = 10.0  # per case; normal cases take ~10 ms
+TIME_BOUND_S = 10.0  # CPU seconds per case; normal cases take ~10 ms
 GOOD = ("ok", "diagnosed")
 
 

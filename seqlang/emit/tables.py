@@ -144,4 +144,7 @@ def timing_json(checked: Checked) -> str:
         "ports": {port: [_port_entry(checked, e) for e in events] for port, events in plan.ports.items()},
         "timeline": [timeline_entry(checked, e) for e in checked.quantized.events],
     }
+    if checked.quantized.conditioned():  # feed-forward: the branch table (emit/branches.py)
+        from .branches import branch_rows
+        document["branches"] = branch_rows(checked)
     return json.dumps(document, indent=1, sort_keys=False, ensure_ascii=False, allow_nan=False) + "\n"

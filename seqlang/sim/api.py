@@ -13,6 +13,7 @@ import numpy as np
 
 from ..lang.diagnostics import Diagnostic, warning
 from . import limits, noise, observables, statistics
+from . import shared as shared_noise
 from .basis import Basis, full_basis, norms, partial_trace_density, partial_trace_kets, probabilities, site_populations
 from .clusters import CLUSTER_THRESHOLD, representatives, smallest_rydberg_rabi_hz
 from .clusters import clusters as find_clusters
@@ -22,7 +23,7 @@ from .runner import SHOT_CHUNK, TRUNCATION_TOLERANCE, Plan, Progress, Runner, fi
 ENGINES = ("auto", "fast", "trajectories", "lindblad", "qutip")
 OPTIONS = {"interactions_hz": None, "history": False, "ladder": False, "noise": "off", "shots": 200, "seed": 1,
            "engine": "auto", "truncate": True, "repetitions": None, "progress": False,
-           "memory_limit": limits.MEMORY_LIMIT}
+           "memory_limit": limits.MEMORY_LIMIT, "shared_noise": True, "feed_forward": True}
 # Outcomes rarer than this are not worth a conditioned report.
 MIN_CONDITION_PROBABILITY = 1e-9
 FULL_DENSITY_SITES = 5  # expectations over more sites are read from the qubit block only
@@ -146,6 +147,7 @@ class SimulationResult:
     noise: dict = field(default_factory=dict)
     engine: str = "qutip"
     reduction: dict = field(default_factory=dict)
+    program: object = field(default=None, repr=False, compare=False)  # for array summaries
 
     def reduced_density(self, sites: tuple[str, ...], condition=None) -> np.ndarray:
         """Density matrix (4 levels per atom) of `sites`, optionally given one imaging outcome."""
@@ -215,10 +217,14 @@ def simulate(source, **options) -> SimulationResult:
     if options["ladder"] and not any(leg_rabi(d, 1.0) for d in program.rig.drives.values()):
         warnings.append(warning("ladder mode: no Rydberg drive declares `intermediate`, `lower_rabi` and "
                                 "`upper_rabi`, so the explicit ladder is the effective model", program.rig.span))
+    if timeline.conditioned():  # measurement-conditioned operations: the feed-forward path
+        return _feed_forward(program, timeline, options, sources, interactions, warnings)
     models = [build_model(program, timeline, group, interactions, ladder=options["ladder"])
               for group in find_clusters(program, timeline, interactions)]
     reps = representatives(program, models)
     runner = Runner(program, options, sources, np.random.default_rng(options["seed"]))
+    if options["shared_noise"] and noise.is_sampled(sources):
+        runner.shared = shared_noise.draw_shared(list(program.rig.drives), options["shots"], options["seed"])
     plans = {r: runner.plan(models[r], r) for r in sorted(set(reps))}
     seconds, total_bytes = runner.check(list(plans.values()), reps)
     stochastic = [p for p in plans.values() if p.stochastic]
@@ -251,9 +257,75 @@ def simulate(source, **options) -> SimulationResult:
         info["interrupted"] = f"stopped after {done} of {options['shots']} shots"
     if runner.notes:
         info["notes"] = list(runner.notes)
+    if noise.is_sampled(sources):
+        info["shared_noise"] = bool(options["shared_noise"])
     engines = sorted({r.engine for r in results})
     return SimulationResult(program.name, results, expectations, _records(results), interactions,
-                            tuple(warnings), info, "+".join(engines), runner.reduction)
+                            tuple(warnings), info, "+".join(engines), runner.reduction, program)
+
+
+def _feed_forward(program, timeline, options, sources, interactions, warnings) -> SimulationResult:
+    """Programs with measurement-conditioned operations (seqlang/sim/feedforward.py): every
+    cluster shot by shot with sampled imaging outcomes, with and without feed-forward."""
+    from . import feedforward
+    shots = options["shots"]
+    runner = _ClusterRunner(program, options, sources, shots, np.random.default_rng(options["seed"]))
+    if options["shared_noise"]:
+        runner.shared = shared_noise.draw_shared(list(program.rig.drives), shots, options["seed"])
+    groups = find_clusters(program, timeline, interactions)
+    ff = feedforward.run(runner, timeline, groups, interactions)
+    results = tuple(replace(r, sampled=True) for r in (ff.with_ff if options["feed_forward"] else ff.without))
+    expectations = tuple(_expectation(program, results, e) for e in program.expects)
+    expectations = tuple({**e, "conditioned": ff.conditioned(program, x) if options["feed_forward"]
+                          else e["conditioned"],
+                          "feed_forward": ff.summary(program, x, _expectation,
+                                                     e if options["feed_forward"] else None)}
+                         for e, x in zip(expectations, program.expects))
+    if options["repetitions"]:
+        expectations = tuple({**e, "sampled_counts": sample_counts(e["populations"], options["repetitions"],
+                                                                   (options["seed"], k))}
+                             for k, e in enumerate(expectations))
+    done = min(r.shots for r in results)
+    info = {"sources": list(sources), "shots": done, "seed": options["seed"],
+            "shared_noise": bool(options["shared_noise"])}
+    if options["repetitions"]:
+        info["repetitions"] = options["repetitions"]
+    engines = sorted({r.engine for r in results})
+    return SimulationResult(program.name, results, expectations, _records(results), interactions,
+                            tuple(warnings), info, "+".join(engines), runner.reduction, program)
+
+
+def _choose(requested: str, jumps) -> str:
+    """The engine of the feed-forward path: Lindblad when dissipation returns into the kept states."""
+    returning = fast.needs_lindblad(jumps)
+    if requested in ("auto", "trajectories"):
+        return "lindblad" if returning else "fast"
+    if requested == "fast" and returning:
+        raise ValueError("the fast engine needs all dissipation to end in the loss level; this model has decay "
+                         "back into the qubit space or pure dephasing: use --engine lindblad or auto")
+    return requested
+
+
+class _ClusterRunner:
+    """What the feed-forward path asks of a runner: draws with shared noise, and the basis."""
+
+    def __init__(self, program, options, sources, shots, rng):
+        self.program, self.options, self.sources, self.shots, self.rng = program, options, sources, shots, rng
+        self.interrupted = False
+        self.shared = None  # classical noise shared by the array (sim/shared.py)
+        self._planner = Runner(program, options, sources, rng)
+        self.reduction = self._planner.reduction
+
+    def _draw(self, model: Model) -> noise.Shots:
+        if not noise.is_sampled(self.sources):
+            return noise.nominal_shots(model)
+        draws = shared_noise.apply(self.shared, model, noise.draw(model, self.shots, self.rng), self.rng)
+        return noise.sample(self.program, model, self.sources, draws)
+
+    def _basis(self, model: Model, jumps, density: bool) -> Basis:
+        basis = self._planner._basis(model, jumps, density)
+        self._planner._count(basis, model)
+        return basis
 
 
 def _announce(notes: list[str], seconds: float, total_bytes: int, plans) -> None:

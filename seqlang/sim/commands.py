@@ -12,7 +12,7 @@ from ..lang.diagnostics import render, sort_diagnostics
 # seqlang.sim.noise.SOURCES.
 ENGINES = ("auto", "fast", "trajectories", "lindblad", "qutip")
 SOURCES = ("decay", "dephasing", "scattering", "laser_noise", "intensity", "doppler", "motion",
-           "detuning_error", "t2_star", "field_noise", "preparation", "imaging")
+           "detuning_error", "t2_star", "field_noise", "preparation", "imaging", "crosstalk")
 
 
 def register(sub) -> None:
@@ -22,6 +22,8 @@ def register(sub) -> None:
     p.add_argument("--ladder", action="store_true",
                    help="keep the intermediate state of Rydberg drives explicit (needs the legs' Rabi frequencies)")
     _noise_options(p)
+    p.add_argument("--unshared-noise", dest="shared_noise", action="store_false",
+                   help="draw the field and beam noise per cluster instead of once per shot for the array")
     p.add_argument("--sample", type=int, metavar="N",
                    help="error bars for N repetitions of the experiment, and a sampled histogram of N outcomes")
     p.set_defaults(run=cmd_simulate)
@@ -78,7 +80,8 @@ def cmd_simulate(args) -> int:
     from .limits import SimulationLimit
     try:
         result = simulate(sequence, ladder=args.ladder, noise=sources, shots=args.shots, seed=args.seed,
-                          engine=args.engine, truncate=args.truncate, repetitions=args.sample, progress=True)
+                          engine=args.engine, truncate=args.truncate, repetitions=args.sample, progress=True,
+                          shared_noise=args.shared_noise)
     except SimulationLimit as exc:
         print(f"seqlang: {args.file}: {exc}", file=sys.stderr)
         return 1
@@ -125,15 +128,22 @@ def as_document(result) -> dict:
         "engine": result.engine,
         "reduction": result.reduction,
         "note": "model prediction for the played (tick-quantized) timeline; not a guarantee of the apparatus",
+        "array_summary": _array_summary(result, sites),
     }
 
 
+def _array_summary(result, sites: dict) -> dict:
+    from .array import summarize
+    return summarize(result.program, sites, result.records) if getattr(result, "program", None) else {}
+
+
 def summary(document: dict) -> str:
+    from .array import MANY_SITES, cluster_line, lines as array_lines
     noise = document.get("noise", {})
-    clusters = document["clusters"]
-    listed = (", ".join("{" + ",".join(c) + "}" for c in clusters) if len(clusters) <= MAX_LISTED
-              else f"{len(clusters)} clusters, largest {max(len(c) for c in clusters)} atoms")
-    lines = [f"simulated {document['program']} (clusters: {listed}); noise: "
+    many = len(document["site_populations"]) > MANY_SITES
+    clusters = cluster_line(document["clusters"]) if many else \
+        "clusters: " + ", ".join("{" + ",".join(c) + "}" for c in document["clusters"])
+    lines = [f"simulated {document['program']} (" + clusters + "); noise: "
              + (", ".join(noise.get("sources", [])) or "off")
              + (f"; {noise['shots']} shots, seed {noise['seed']}" if "shots" in noise else "; exact (no sampling)")
              + f"; engine {document.get('engine', 'qutip')}"]
@@ -147,6 +157,11 @@ def summary(document: dict) -> str:
         lines.append(f"note: {note}")
     for e in document["expectations"]:
         lines += _expectation_lines(e, noise)
+    if many and document.get("array_summary"):
+        lines.append(f"\narray of {len(document['site_populations'])} sites, final level populations "
+                     "(mean ± spread over sites; per site in --json):")
+        lines += array_lines(document["array_summary"])
+        return "\n".join(lines)
     lines.append("\nfinal level populations per site:")
     populations = list(document["site_populations"].items())
     for site, pops in populations[:MAX_LISTED]:
@@ -198,13 +213,28 @@ def _expectation_lines(e: dict, noise: dict) -> list[str]:
     others = [k for k in c if len(k) != 2 or len(e["sites"]) != 2]
     if others:
         lines.append("  " + "  ".join(f"<{k}> {c[k]:+.4f}" + _pm(ce, k, ".1g") for k in others))
+    if "feed_forward" in e:
+        lines += feed_forward_lines(e["feed_forward"])
     for cond in e["conditioned"]:
         lines.append(f"  given {cond['record']}[{cond['site']}] = {cond['outcome']} "
                      f"(p = {cond['probability']:.4f}): fidelity {cond['fidelity']:.6f}")
     return lines
 
 
-__all__ = ["register", "as_document", "summary"]
+def feed_forward_lines(ff: dict) -> list[str]:
+    """The fidelity with and without feed-forward, and how often each key occurred."""
+    lines = [f"  feed-forward: fidelity {ff['with']['fidelity']:.6f} with, {ff['without']['fidelity']:.6f} without"]
+    for table in ff["keys"]:
+        label = f"{table['record']}[{', '.join(table['sites'])}]"
+        lines.append(f"    keys of {label} ({table['key_kind'].replace('_', ' ')}; without feed-forward key "
+                     f"{table['fixed_key_without']} is played): "
+                     + "  ".join(f"{row['key']}: p {row['probability']:.3f}"
+                                 + (f" F {row['fidelity']:.4f}" if "fidelity" in row else "")
+                                 for row in table["keys"]))
+    return lines
+
+
+__all__ = ["register", "as_document", "summary", "feed_forward_lines"]
 
 
 def cmd_budget(args) -> int:

@@ -86,6 +86,7 @@ class Runner:
     def __init__(self, program, options: dict, sources: tuple[str, ...], rng: np.random.Generator):
         self.program, self.options, self.sources, self.rng = program, options, sources, rng
         self.interrupted = False
+        self.shared = None  # classical noise shared by the array (sim/shared.py), drawn once per shot
         self.reduction: dict = {"truncated_pairs": [], "neglected_bound": 0.0, "states": 0, "full_states": 0}
         self.notes: list[str] = []
 
@@ -134,7 +135,9 @@ class Runner:
         if not noise.is_sampled(self.sources):
             shots = noise.nominal_shots(model)
             return replace(shots, initial=shots.initial * count)  # shared parameters, one row per shot
-        return noise.sample(self.program, model, self.sources, noise.draw(model, count, self.rng))
+        from . import shared as shared_noise
+        draws = shared_noise.apply(self.shared, model, noise.draw(model, count, self.rng), self.rng)
+        return noise.sample(self.program, model, self.sources, draws)
 
     def _basis(self, model: Model, jumps, density: bool) -> Basis:
         rydberg = {c.site for seg in model.segments for c in seg.couplings if RYD in (c.lower, c.upper)}

@@ -12,6 +12,7 @@ from dataclasses import dataclass, field, replace
 import numpy as np
 
 from ..lang.diagnostics import Diagnostic, warning
+from . import engine as fast
 from . import limits, noise, observables, statistics
 from . import shared as shared_noise
 from .basis import Basis, full_basis, norms, partial_trace_density, partial_trace_kets, probabilities, site_populations

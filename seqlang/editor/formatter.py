@@ -315,7 +315,9 @@ def _print_group(printer, item: ast.GroupStmt, depth):
 
 
 def _print_expect(printer, item: ast.ExpectStmt, depth):
-    _line(printer, item, f"expect {_names(item.sites)} as {item.state.name}", depth)
+    state = " * ".join(f.name for f in item.factors) if item.factors else item.state.name
+    words = f"expect {_names(item.sites)} as {state}{_inline_props(item.props, printer.text)}"
+    _line(printer, item, words, depth)
 
 
 def _print_rig(printer, item: ast.RigDef, depth):

@@ -470,10 +470,17 @@ class _Builder(Transformer):
     def ket_state(self, children):
         return (self._ident(children[0]), True)
 
+    def product_state(self, children):
+        factors = tuple(self._ident(c) for c in children)
+        first, last = factors[0].span, factors[-1].span
+        span = first._replace(end_line=last.end_line, end_column=last.end_column, end=last.end)
+        return (ast.Ident("*".join(f.name for f in factors), span), False, factors)
+
     @v_args(meta=True)
     def expect_stmt(self, meta, children):
-        (state, is_ket) = children[1]
-        return ast.ExpectStmt(children[0], state, is_ket, self._span(meta))
+        state, is_ket, *factors = children[1]
+        return ast.ExpectStmt(children[0], state, is_ket, self._span(meta), tuple(children[2:]),
+                              factors[0] if factors else ())
 
     # feed-forward
     @v_args(meta=True)

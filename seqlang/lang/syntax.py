@@ -393,6 +393,8 @@ class ExpectStmt:
     state: Ident
     is_ket: bool
     span: Span
+    props: tuple["Prop", ...] = ()  # ``phase 90 deg``, ``correlate (XXX, ZZZ)``
+    factors: tuple[Ident, ...] = ()  # a product of single-site states: ``plus * zero``
 
 
 @node

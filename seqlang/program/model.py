@@ -260,9 +260,11 @@ class Expectation:
     """The state a sequence means to make on named sites."""
 
     sites: tuple[str, ...]
-    state: str  # "phi_plus" ... or a ket like "01"
+    state: str  # "phi_plus" ..., "ghz", "w", a product "plus*zero", or a ket like "01"
     is_ket: bool
     span: Span
+    phase_rad: float = 0.0  # relative phase φ of (|0…0⟩ + e^{iφ}|1…1⟩)/√2 for "ghz"
+    correlators: tuple[str, ...] = ()  # Pauli strings asked for with `correlate`
 
 
 @dataclass(frozen=True)

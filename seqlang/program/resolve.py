@@ -205,7 +205,7 @@ def _resolve_loaded(loaded: Loaded, diags: list[Diagnostic], failed: set[str], p
     resolver = SequenceResolver(rig, sites, groups, blocks, diags)
     body = resolver.resolve_body(sequences[0].body, scope, sequences[0].span) if sequences \
         else SerialOp((), Span(loaded.main.path, 1, 1, 1, 1))
-    expects = _expects(loaded.main, sites, groups, diags, failed)
+    expects = _expects(loaded.main, sites, groups, diags, failed, scope)
     return Program(name, loaded.main.path, rig, sites, groups, body, expects,
                    dict(sorted(loaded.hashes.items())), dict(scope.values), space, values, point, free)
 
@@ -324,7 +324,7 @@ def _blocks(files, diags: list[Diagnostic]) -> dict[str, ast.BlockDef]:
 
 
 def _expects(source: ast.SourceFile, sites, groups, diags: list[Diagnostic],
-             failed: set[str]) -> tuple[Expectation, ...]:
+             failed: set[str], scope: Scope | None = None) -> tuple[Expectation, ...]:
     out = []
     for stmt in (i for i in source.items if isinstance(i, ast.ExpectStmt)):
         if any(ident.name in failed for ident in stmt.sites):
@@ -339,9 +339,47 @@ def _expects(source: ast.SourceFile, sites, groups, diags: list[Diagnostic],
                 diags.append(error(f"unknown site `{ident.name}`", ident.span,
                                    did_you_mean(ident.name, list(sites) + list(groups))))
         state = _expected_state(stmt, len(names), diags)
-        if state is not None:
-            out.append(Expectation(tuple(names), state, stmt.is_ket, stmt.span))
+        extras = _expect_props(stmt, state, len(names), scope or Scope(), diags)
+        if state is not None and extras is not None:
+            out.append(Expectation(tuple(names), state, stmt.is_ket, stmt.span, *extras))
     return tuple(out)
+
+
+MANY_ATOM_STATES = ("ghz", "w")
+SINGLE_SITE_STATES = ("zero", "one", "plus", "minus", "plus_i", "minus_i")
+EXPECT_KEYS = ("phase", "correlate")
+
+
+def _expect_props(stmt: ast.ExpectStmt, state, count: int, scope: Scope, diags) -> tuple | None:
+    """(phase, correlators) from ``phase 90 deg`` (GHZ only) and ``correlate XXZ`` or
+    ``correlate (XXX, ZZZ)`` (Pauli strings of I, X, Y, Z, one letter per named site)."""
+    phase, strings, ok = 0.0, [], True
+    for prop in stmt.props:
+        key = prop.key.name
+        if key == "phase" and state == "ghz":
+            try:
+                phase = expect_kind(evaluate(prop.value, scope), units.ANGLE, prop.value.span)
+            except EvalError as exc:
+                diags.append(exc.diagnostic)
+                ok = False
+        elif key == "phase":
+            diags.append(error("only a GHZ target takes a `phase`", prop.key.span))
+            ok = False
+        elif key == "correlate":
+            items = prop.value.items if isinstance(prop.value, ast.TupleExpr) else (prop.value,)
+            for item in items:
+                text = item.name if isinstance(item, ast.NameRef) else ""
+                if not text or set(text) - set("IXYZ") or len(text) != count:
+                    diags.append(error(f"expected a Pauli string of {count} letters I, X, Y or Z (one per named "
+                                       "site), such as `" + "X" * count + "`", item.span))
+                    ok = False
+                else:
+                    strings.append(text)
+        else:
+            diags.append(error(f"unknown property `{key}` of `expect`", prop.key.span,
+                               did_you_mean(key, EXPECT_KEYS) or f"known: {', '.join(EXPECT_KEYS)}"))
+            ok = False
+    return (phase, tuple(dict.fromkeys(strings))) if ok else None
 
 
 def _expected_state(stmt: ast.ExpectStmt, count: int, diags: list[Diagnostic]) -> str | None:
@@ -351,9 +389,26 @@ def _expected_state(stmt: ast.ExpectStmt, count: int, diags: list[Diagnostic]) -
             diags.append(error(f"the ket has {len(bits)} qubits but {count} sites are named", stmt.state.span))
             return None
         return bits
+    if stmt.factors:
+        unknown = [f for f in stmt.factors if f.name not in SINGLE_SITE_STATES]
+        for f in unknown:
+            diags.append(error(f"unknown single-site state `{f.name}`", f.span,
+                               did_you_mean(f.name, SINGLE_SITE_STATES) or f"known: {', '.join(SINGLE_SITE_STATES)}"))
+        if not unknown and len(stmt.factors) != count:
+            diags.append(error(f"the product has {len(stmt.factors)} factors but {count} sites are named",
+                               stmt.state.span))
+            return None
+        return None if unknown else stmt.state.name
+    if stmt.state.name in MANY_ATOM_STATES:
+        if count < 2:
+            diags.append(error(f"a {stmt.state.name.upper()} state needs at least two sites, got {count}", stmt.span))
+            return None
+        return stmt.state.name
     if stmt.state.name not in BELL_STATES:
+        known = BELL_STATES + MANY_ATOM_STATES
         diags.append(error(f"unknown state `{stmt.state.name}`", stmt.state.span,
-                           did_you_mean(stmt.state.name, BELL_STATES) or f"known: {', '.join(BELL_STATES)}"))
+                           did_you_mean(stmt.state.name, known) or f"known: {', '.join(known)}, a ket such as "
+                           "|01>, or a product such as `plus * zero`"))
         return None
     if count != 2:
         diags.append(error(f"a Bell state needs two sites, got {count}", stmt.span))

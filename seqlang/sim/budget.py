@@ -20,7 +20,7 @@ def budget(sequence, shots: int = 200, seed: int = 1, **options) -> dict:
         for name, result in results.items():
             x = result.expectations[k]
             entry["infidelity"][name] = round(1 - x["fidelity"], 12)
-            entry["error"][name] = x.get("fidelity_error", 0.0)
+            entry["error"][name] = x.get("fidelity_error")  # None: an exact number, no error bar
         expectations.append(entry)
     engines = sorted({r.engine for r in results.values()})
     from .declared import not_declared
@@ -38,7 +38,7 @@ def budget_table(numbers: dict) -> str:
             if name in numbers.get("not_declared", {}):
                 lines.append(f"  {name + ' alone':<28} not declared ({numbers['not_declared'][name]})")
                 continue
-            error = f" ± {e['error'][name]:.2g}" if e["error"][name] else ""
+            error = f" ± {e['error'][name]:.2g}" if e["error"][name] is not None else ""
             label = {"none": "no noise (gate error only)", "all": "all sources"}.get(name, name + " alone")
             lines.append(f"  {label:<28} infidelity {value:.3e}{error}")
     return "\n".join(lines)

@@ -271,6 +271,14 @@ class Shots:
                      self.pairs, cut(self.interactions), self.initial[lo:hi],
                      tuple(d[lo:hi] for d in self.image_draws))
 
+    def take(self, indices: np.ndarray) -> "Shots":
+        """The shots at `indices` (shared parameters stay shared)."""
+        def cut(a):
+            return a[indices] if a.shape[0] > 1 else a
+        return Shots(self.model, tuple(map(cut, self.couplings)), tuple(map(cut, self.shifts)), self.shift_levels,
+                     self.pairs, cut(self.interactions), tuple(self.initial[k] for k in indices),
+                     tuple(d[indices] for d in self.image_draws))
+
     def shot_model(self, k: int) -> Model:
         """The model of shot k, for the reference path."""
         def row(a):

@@ -173,6 +173,18 @@ def _arc_c6(pair, window_hz: float) -> float:
         raise ValueError(f"exact Förster resonance, perturbative C6 undefined: {error}") from None
 
 
+def _arc_c6_at(pair, theta: float) -> float:
+    """ARC's perturbative C6 (GHz um^6, ARC sign) at angle theta to the quantisation axis."""
+    return _arc_c6_theta(pair, theta, C6_ENERGY_WINDOW_HZ)
+
+
+def _arc_c6_theta(pair, theta: float, window_hz: float) -> float:
+    try:
+        return float(pair.getC6perturbatively(theta, 0.0, C6_N_RANGE, window_hz))
+    except ValueError as error:
+        raise ValueError(f"exact Förster resonance, perturbative C6 undefined: {error}") from None
+
+
 def _forster_channel(pair, groups: list[float], total: float) -> tuple[float, float]:
     """(defect, own C6) of the nearest channel group carrying >= 10 % of ``total``.
 

@@ -5,8 +5,8 @@
 from __future__ import annotations
 
 from ..lang.diagnostics import SeqlangError, error
-from ..program.model import ImageOp, PortOp, Program, PulseOp, RepeatOp, SerialOp, TogetherOp, WaitOp
-from .timeline import IMAGE, PULSE, Event, Timeline
+from ..program.model import FieldOp, ImageOp, MoveOp, PortOp, Program, PulseOp, RepeatOp, SerialOp, TogetherOp, WaitOp
+from .timeline import FIELD, IMAGE, MOVE, PULSE, Event, Timeline
 
 MAX_EVENTS = 5_000_000
 
@@ -22,8 +22,10 @@ def lower(program: Program) -> Timeline:
 
 def duration_of(op) -> float:
     """How long an operation lasts (a together lasts as long as its longest part)."""
-    if isinstance(op, (PulseOp, WaitOp, ImageOp, PortOp)):
+    if isinstance(op, (PulseOp, WaitOp, ImageOp, PortOp, MoveOp)):
         return op.duration_s
+    if isinstance(op, FieldOp):
+        return duration_of(op.body)
     if isinstance(op, SerialOp):
         return sum(duration_of(o) for o in op.body)
     if isinstance(op, TogetherOp):
@@ -46,6 +48,8 @@ class _Placer:
             self._together(op, start)
         elif isinstance(op, RepeatOp):
             self._repeat(op, start)
+        elif isinstance(op, FieldOp):
+            self._field(op, start)
         elif not isinstance(op, WaitOp):
             self._emit(op, start)
 
@@ -55,6 +59,12 @@ class _Placer:
             slack = longest - duration_of(child)
             offset = {"start": 0.0, "end": slack, "center": slack / 2}[op.align]
             self.place(child, start + offset)
+
+    def _field(self, op: FieldOp, start: float) -> None:
+        port = self.program.rig.ports[op.port]
+        self.events.append(Event(len(self.events), FIELD, start, duration_of(op.body), port.channel, op.span,
+                                 value=op.field_v_m))
+        self.place(op.body, start)
 
     def _repeat(self, op: RepeatOp, start: float) -> None:
         period = duration_of(op.body)
@@ -76,6 +86,9 @@ class _Placer:
             targets = self.program.sites_of(op.species)
             self.events.append(Event(index, IMAGE, start, op.duration_s, imaging.port, op.span,
                                      targets=targets, species=op.species, record=op.record))
+        elif isinstance(op, MoveOp):
+            self.events.append(Event(index, MOVE, start, op.duration_s, "move " + ",".join(op.sites), op.span,
+                                     targets=op.sites, displacement_m=op.displacement_m, profile=op.profile))
         else:
             port = rig.ports[op.port]
             self.events.append(Event(index, op.action, start, op.duration_s, port.channel, op.span,
@@ -83,8 +96,10 @@ class _Placer:
 
 
 def _count_events(op) -> int:
-    if isinstance(op, (PulseOp, ImageOp, PortOp)):
+    if isinstance(op, (PulseOp, ImageOp, PortOp, MoveOp)):
         return 1
+    if isinstance(op, FieldOp):
+        return 1 + _count_events(op.body)
     if isinstance(op, (SerialOp, TogetherOp)):
         return sum(_count_events(o) for o in op.body)
     if isinstance(op, RepeatOp):

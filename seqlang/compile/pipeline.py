@@ -11,6 +11,7 @@ from ..lang.diagnostics import ERROR, Diagnostic, SeqlangError
 from ..program.model import Program
 from ..program.resolve import resolve
 from .checks import check_timeline
+from .geometry import check_geometry
 from .hardware import HardwarePlan, plan
 from .lower import lower
 from .quantize import quantize
@@ -36,6 +37,8 @@ def check(path: str, sources: Mapping[str, str] | None = None) -> Checked:
     program, diags = resolve(path, sources)
     timeline = lower(program)
     diags = diags + check_timeline(program, timeline)
+    if not any(d.severity == ERROR for d in diags):
+        diags += check_geometry(program, timeline)
     quantized, report, quant_diags = quantize(program, timeline)
     diags += quant_diags + [d for d in check_timeline(program, quantized) if d.span not in {x.span for x in diags}]
     if any(d.severity == ERROR for d in diags):

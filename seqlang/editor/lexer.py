@@ -16,11 +16,11 @@ from pygments.token import (Comment, Keyword, Name, Number, Operator, Punctuatio
 # The statement and declaration words of the grammar (grammar/seqlang.lark).
 KEYWORDS = ("use", "import", "rig", "species", "drive", "image", "port", "let", "site", "group",
             "at", "block", "sequence", "pulse", "on", "off", "wait", "together", "align", "repeat",
-            "do", "switch", "set", "trigger", "expect", "as")
+            "do", "switch", "set", "trigger", "expect", "as", "field", "move", "to", "by")
 # Values that are words: drive kinds, reach, alignments, qubit encodings, shapes, states.
 CONSTANTS = ("microwave", "raman", "rydberg", "all", "each", "start", "end", "center", "clock",
              "digital", "analog", "counter", "co", "square", "ramped", "gaussian", "blackman",
-             "phi_plus", "phi_minus", "psi_plus", "psi_minus")
+             "phi_plus", "phi_minus", "psi_plus", "psi_minus", "electrode", "deflector", "minimum_jerk")
 FUNCTIONS = ("sqrt", "sin", "cos", "tan", "exp", "log", "abs")
 UNIT_PATTERN = (r"(THz|GHz|MHz|kHz|Hz|ps|ns|us|µs|ms|s|cm|mm|um|µm|nm|m|nK|uK|µK|mK|K|mrad|rad|deg|"
                 r"pi|mV|V|mA|A|mG|G|uW|µW|mW|W)(?![A-Za-z0-9_])")

@@ -311,8 +311,29 @@ class TriggerStmt:
     span: Span
 
 
+@dataclass(frozen=True)
+class FieldStmt:
+    """``field port value { ... }``: an electric field for the statements of the body."""
+
+    port: Ident
+    value: "Expr"
+    body: tuple["Stmt", ...]
+    span: Span
+
+
+@dataclass(frozen=True)
+class MoveStmt:
+    """``move sites to|by (x, y) um duration ... [profile minimum_jerk]``."""
+
+    sites: tuple[Ident, ...]
+    relative: bool
+    target: "Expr"
+    props: tuple[Prop, ...]
+    span: Span
+
+
 Stmt = Union[PulseStmt, WaitStmt, TogetherStmt, RepeatStmt, DoStmt, ImageStmt,
-             SwitchStmt, SetStmt, TriggerStmt, LetStmt]
+             SwitchStmt, SetStmt, TriggerStmt, LetStmt, FieldStmt, MoveStmt]
 
 
 @dataclass(frozen=True)

@@ -132,6 +132,7 @@ class SimulationResult:
     noise: dict = field(default_factory=dict)
     engine: str = "qutip"
     reduction: dict = field(default_factory=dict)
+    pair_models: dict = field(default_factory=dict)  # (a, b) -> atoms.pairs.PairShift, when computed here
 
     def reduced_density(self, sites: tuple[str, ...], condition=None) -> np.ndarray:
         """Density matrix (4 levels per atom) of `sites`, optionally given one imaging outcome."""
@@ -176,9 +177,11 @@ def simulate(source, **options) -> SimulationResult:
     sequence = source if isinstance(source, Sequence) else load(str(source))
     program, timeline = sequence.program, sequence.played
     interactions = options["interactions_hz"]
-    warnings = []
+    warnings, pair_models = [], {}
     if interactions is None:
-        interactions = pair_interactions_hz(program, tuple(program.sites))
+        from ..compile.geometry import pair_shifts
+        pair_models = pair_shifts(program, timeline)
+        interactions = {pair: model.shift_hz for pair, model in pair_models.items()}
         warnings = _forster_warnings(program)
     if options["ladder"] and not any(leg_rabi(d, 1.0) for d in program.rig.drives.values()):
         warnings.append(warning("ladder mode: no Rydberg drive declares `intermediate`, `lower_rabi` and "
@@ -202,7 +205,7 @@ def simulate(source, **options) -> SimulationResult:
         info["interrupted"] = f"stopped after {done} of {shots} shots"
     engines = sorted({r.engine for r in results})
     return SimulationResult(program.name, tuple(results), expectations, _records(results), interactions,
-                            tuple(warnings), info, "+".join(engines), runner.reduction)
+                            tuple(warnings), info, "+".join(engines), runner.reduction, pair_models)
 
 
 class _ClusterRunner:

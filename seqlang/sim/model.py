@@ -87,8 +87,18 @@ class Model:
         return len(self.sites)
 
 
-def pair_interactions_hz(program: Program, sites: tuple[str, ...]) -> dict[tuple[str, str], float]:
-    """V/h = C6/R⁶ for every pair of sites whose species have Rydberg levels."""
+def pair_interactions_hz(program: Program, sites: tuple[str, ...], timeline: Timeline | None = None
+                         ) -> dict[tuple[str, str], float]:
+    """V/h for every pair of sites whose species have Rydberg levels.
+
+    With the timeline: the pair model of seqlang.compile.geometry.pair_shifts (perturbative or
+    diagonalised, at the positions, angle and field of the pair's Rydberg pulses). Without:
+    C6/R⁶ at the declared positions.
+    """
+    if timeline is not None:
+        from ..compile.geometry import pair_shifts
+        return {pair: shift.shift_hz for pair, shift in pair_shifts(program, timeline).items()
+                if set(pair) <= set(sites)}
     from ..atoms import rydberg
     out = {}
     for a, b in itertools.combinations(sites, 2):
@@ -112,9 +122,25 @@ def build_model(program: Program, timeline: Timeline, sites: tuple[str, ...],
     pairs = {(index[a], index[b]): 2 * math.pi * v for (a, b), v in interactions_hz.items()
              if a in index and b in index}
     relevant = [e for e in timeline.events if e.kind in (PULSE, IMAGE) and set(e.targets) & set(sites)]
-    segments = _segments(program, relevant, index, timeline.duration_s, ladder)
+    segments = _stark_shifted(program, timeline, sites,
+                              _segments(program, relevant, index, timeline.duration_s, ladder))
     species = tuple(program.sites[s].species for s in sites)
     return Model(tuple(sites), species, pairs, tuple(segments), LADDER_DIM if ladder else DIM)
+
+
+def _stark_shifted(program: Program, timeline: Timeline, sites, segments: list[Segment]) -> list[Segment]:
+    """Each site's Rydberg level moved by its DC Stark shift where a `field` stretch runs (at segment midpoints)."""
+    from ..compile.geometry import field_at, stark_shift_hz
+    if not any(e.kind == "field" for e in timeline.events):
+        return segments
+    out = []
+    for seg in segments:
+        field = field_at(timeline, seg.start_s + seg.duration_s / 2)
+        extra = tuple(LevelShift(i, RYD, 2 * math.pi * stark_shift_hz(program, program.sites[s].species, field))
+                      for i, s in enumerate(sites) if field)
+        out.append(Segment(seg.start_s, seg.duration_s, seg.couplings, seg.image, seg.shifts + extra)
+                   if extra and seg.image is None else seg)
+    return out
 
 
 def _tick(t: float, tick: float) -> int:

@@ -42,10 +42,11 @@ PAIR_N_RANGE = 2  # basis: n' within n ± 2 ...
 PAIR_L_MAX = 3  # ... l' up to F ...
 PAIR_WINDOW_HZ = 10e9  # ... and pair energies within 10 GHz of the bare pair
 STARK_WINDOW_HZ = 2e9  # basis states this close get their Stark shifts; farther ones keep E(0)
-GRID_MIN_M, GRID_MAX_M, GRID_POINTS = 0.5e-6, 30e-6, 48
+GRID_MIN_M, GRID_MAX_M, GRID_POINTS = 0.5e-6, 50e-6, 54
 DENSE_LIMIT = 400  # above this basis size, shift-invert ARPACK instead of a dense eigh
 GHZ = 1e9
-CHANNEL_GROUPS = 12
+CHANNEL_GROUPS = 8
+TIE_SHARE = 0.99
 
 
 @dataclass(frozen=True)
@@ -245,7 +246,10 @@ def _eigen_near(matrix, index: int, dense: bool):
         from scipy.sparse.linalg import eigsh
         values, vectors = eigsh(matrix, k=16, sigma=float(matrix[index, index]), which="LM", tol=1e-9)
     weights = np.abs(vectors[index]) ** 2
-    best = int(np.argmax(weights))
+    # Exact resonances split the bare state evenly over two branches: take the upper one
+    # every time, so that the tabulated V keeps one sign.
+    ties = np.flatnonzero(weights >= TIE_SHARE * weights.max())
+    best = int(ties[np.argmax(values[ties])])
     return float(values[best]), float(weights[best])
 
 
@@ -272,7 +276,7 @@ def diagonalised_table(species_a, level_a, species_b, level_b, theta_rad: float 
     p = _pair(species_a, level_a, species_b, level_b)
     theta, field = round(theta_rad, 6), round(field_v_m, 4)
     key = _pair_key(p, theta=theta, field=field, n_range=PAIR_N_RANGE, l_max=PAIR_L_MAX,
-                    window_hz=PAIR_WINDOW_HZ, stark_window_hz=STARK_WINDOW_HZ,
+                    window_hz=PAIR_WINDOW_HZ, stark_window_hz=STARK_WINDOW_HZ, tie=TIE_SHARE,
                     grid=[GRID_MIN_M, GRID_MAX_M, GRID_POINTS])
     return cached("pairtable", key, lambda: _compute_table(p, theta, field))
 

@@ -112,6 +112,9 @@ def _earliest_issue(program: Program, event: Event, tick: float, latency: dict[s
         drive = program.rig.drives[event.drive]
         gate = _ticks(drive.gate_lead_s, tick) + latency[drive.gate] if drive.gate else 0
         return start - max(latency[drive.port], gate)
+    if event.kind == MOVE:  # issued on the deflectors, each early by its own latency
+        deflectors = [p.channel for p in program.rig.ports.values() if p.kind == "deflector"]
+        return start - max((latency.get(c, 0) for c in deflectors), default=0)
     return start - latency.get(event.port, 0)
 
 

@@ -253,10 +253,15 @@ def _eigen_near(matrix, index: int, dense: bool):
     return float(values[best]), float(weights[best])
 
 
+def _define_basis(pair, theta: float) -> None:
+    rydberg.arc_retry(lambda: pair.defineBasis(theta, 0.0, PAIR_N_RANGE, PAIR_L_MAX, PAIR_WINDOW_HZ,
+                                               progressOutput=False))
+
+
 def _compute_table(p: _Pair, theta: float, field_v_m: float) -> dict:
     import numpy as np
     pair = rydberg._arc_pair(p.a, p.la, p.b, p.lb)
-    pair.defineBasis(theta, 0.0, PAIR_N_RANGE, PAIR_L_MAX, PAIR_WINDOW_HZ, progressOutput=False)
+    _define_basis(pair, theta)
     diagonal = pair.matDiagonal.toarray().diagonal()
     base = np.diag(diagonal + _stark_diagonal_ghz(p, pair.basisStates, diagonal, field_v_m))
     terms = [m.toarray() for m in pair.matR]  # R^-3, R^-4, R^-5 parts (GHz at 1 m)

@@ -165,10 +165,22 @@ def _window_above(groups: list[float], k: int) -> float:
     return C6_ENERGY_WINDOW_HZ
 
 
+def arc_retry(call):
+    """Run an ARC pair-state call, retried: ARC memoises angular factors in one sqlite file
+    shared by all of the user's processes, and two processes filling it at once can collide."""
+    import sqlite3
+    for attempt in range(3):
+        try:
+            return call()
+        except sqlite3.Error:
+            if attempt == 2:
+                raise
+
+
 def _arc_c6(pair, window_hz: float) -> float:
     """ARC's perturbative C6 (GHz um^6, ARC sign) with channels below ``window_hz``."""
     try:
-        return float(pair.getC6perturbatively(0.0, 0.0, C6_N_RANGE, window_hz))
+        return float(arc_retry(lambda: pair.getC6perturbatively(0.0, 0.0, C6_N_RANGE, window_hz)))
     except ValueError as error:
         raise ValueError(f"exact Förster resonance, perturbative C6 undefined: {error}") from None
 
@@ -180,7 +192,7 @@ def _arc_c6_at(pair, theta: float) -> float:
 
 def _arc_c6_theta(pair, theta: float, window_hz: float) -> float:
     try:
-        return float(pair.getC6perturbatively(theta, 0.0, C6_N_RANGE, window_hz))
+        return float(arc_retry(lambda: pair.getC6perturbatively(theta, 0.0, C6_N_RANGE, window_hz)))
     except ValueError as error:
         raise ValueError(f"exact Förster resonance, perturbative C6 undefined: {error}") from None
 

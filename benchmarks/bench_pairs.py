@@ -34,11 +34,32 @@ def timed_check(path: str, cache: str) -> float:
     return elapsed
 
 
+_IN_PROCESS = r"""
+import sys, time
+import seqlang
+from seqlang.compile.geometry import check_geometry
+sequence = seqlang.load(sys.argv[1])
+start = time.perf_counter()
+check_geometry(sequence.program, sequence.timeline)
+print(time.perf_counter() - start, 'arc' in sys.modules)
+"""
+
+
+def geometry_only(cache: str) -> tuple[float, bool]:
+    """Seconds spent in the geometry and pair checks of a warm run, and whether ARC got imported."""
+    env = {**os.environ, "SEQLANG_CACHE_DIR": cache, "PYTHONPATH": ROOT}
+    run = subprocess.run([sys.executable, "-c", _IN_PROCESS, DEMO], env=env, capture_output=True, text=True)
+    seconds, imported = run.stdout.split()
+    return float(seconds), imported == "True"
+
+
 def main() -> None:
     with tempfile.TemporaryDirectory() as cache:
         cold = timed_check(DEMO, cache)
         warm = min(timed_check(DEMO, cache) for _ in range(3))
         baseline = min(timed_check(BASELINE, cache) for _ in range(3))
+        pair_checks, imported = geometry_only(cache)
+    print(f"warm pair checks in process: {pair_checks * 1e3:.0f} ms; ARC imported: {imported}")
     print(f"forster_gate.seq check: cold {cold:.2f} s, warm {warm:.2f} s (best of 3; target < 0.5 s)")
     print(f"baseline rabi_ramsey.seq check: {baseline:.2f} s; warm/baseline = {warm / baseline:.2f}")
 

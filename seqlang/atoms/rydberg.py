@@ -36,7 +36,8 @@ C6_ENERGY_WINDOW_HZ = 25e9  # channels with |defect| below 25 GHz
 FORSTER_THRESHOLD_HZ = 100e6
 SIGNIFICANT_CHANNEL_SHARE = 0.1
 _MAX_CHANNEL_GROUPS = 12
-BBR_LEVEL_MARGIN = 20  # black-body sum includes levels up to n + 20
+BBR_LEVEL_MARGIN = 20
+ARC_ATTEMPTS = 8  # retries of ARC's shared sqlite memo, about 50 s in all  # black-body sum includes levels up to n + 20
 
 LADDERS = {"d2": 0, "blue": 1}  # intermediate nP3/2: n = ground n + offset
 
@@ -90,6 +91,7 @@ def _level(level: str | RydbergLevel, data: SpeciesData) -> RydbergLevel:
     return level
 
 
+@lru_cache(maxsize=1)
 def _arc_version() -> str:
     return metadata.version("arc-alkali-rydberg-calculator")
 
@@ -169,12 +171,14 @@ def arc_retry(call):
     """Run an ARC pair-state call, retried: ARC memoises angular factors in one sqlite file
     shared by all of the user's processes, and two processes filling it at once can collide."""
     import sqlite3
-    for attempt in range(3):
+    import time
+    for attempt in range(ARC_ATTEMPTS):
         try:
             return call()
         except sqlite3.Error:
-            if attempt == 2:
+            if attempt == ARC_ATTEMPTS - 1:
                 raise
+            time.sleep(0.2 * 2**attempt)  # another process holds the file: wait for it
 
 
 def _arc_c6(pair, window_hz: float) -> float:

@@ -19,6 +19,7 @@ from __future__ import annotations
 
 import math
 from dataclasses import dataclass
+from functools import lru_cache
 
 from .cache import cached
 from .species import RydbergLevel, SpeciesData
@@ -74,7 +75,14 @@ def polarisability(species: str | SpeciesData, level: str | RydbergLevel, mj: fl
     data = rydberg._species(species)
     lvl = rydberg._level(level, data)
     mj = lvl.j if mj is None else float(mj)
-    key = rydberg._key(species=data.name, level=lvl.label, mj=mj, n_range=STARK_N_RANGE)
+    return _polarisability(data.name, lvl.label, mj)
+
+
+@lru_cache(maxsize=None)
+def _polarisability(name: str, label: str, mj: float) -> Polarisability:
+    data = rydberg._species(name)
+    lvl = rydberg._level(label, data)
+    key = rydberg._key(species=name, level=label, mj=mj, n_range=STARK_N_RANGE)
     record = cached("polarisability", key, lambda: _compute(data, lvl, mj))
     # The quadratic law ends where the mixing coupling·E reaches a share of the gap.
     limit = QUADRATIC_SHARE * record["gap_hz"] / record["coupling_hz_per_v_m"] if record["coupling_hz_per_v_m"] else math.inf

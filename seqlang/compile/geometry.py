@@ -45,7 +45,19 @@ def check_geometry(program: Program, timeline: Timeline) -> list[Diagnostic]:
     out = _static_spacing(program) + _move_checks(program, timeline) + _pulses_while_moving(program, timeline)
     if any(d.is_error for d in out) or not rydberg_pairs(program, timeline):
         return out
-    return out + _pair_checks(program, timeline) + _stark_limits(program, timeline)
+    try:
+        return out + _pair_checks(program, timeline) + _stark_limits(program, timeline)
+    except (OSError, RuntimeError) as exc:  # sqlite3.Error is neither: see below
+        return out + [_skipped(program, exc)]
+    except Exception as exc:  # the atomic-data library failed (e.g. its shared database locked)
+        if type(exc).__module__.split(".")[0] not in ("sqlite3", "arc"):
+            raise
+        return out + [_skipped(program, exc)]
+
+
+def _skipped(program: Program, exc: Exception) -> Diagnostic:
+    return warning(f"pair checks skipped: the atomic-data library failed ({exc}); run `check` again",
+                   program.rig.span)
 
 
 def _static_spacing(program: Program) -> list[Diagnostic]:

@@ -54,7 +54,7 @@ def pair_models_table(program: Program, timeline) -> str:
     for (a, b), m in pair_shifts(program, timeline).items():
         rows.append(f"{a}-{b}: R = {_f(m.distance_m, units.LENGTH)}, θ = {math.degrees(m.theta_rad):.1f} deg, "
                     f"E = {m.field_v_m:.4g} V/m: {m.model}, V/h = {_f(m.shift_hz, units.FREQUENCY)}, "
-                    f"overlap {m.overlap:.3f}, nearest channel defect {_f(m.defect_hz, units.FREQUENCY)}, "
+                    f"overlap {m.overlap:.3f}, dominant channel defect {_f(m.defect_hz, units.FREQUENCY)}, "
                     f"crossover radius {_f(m.crossover_radius_m, units.LENGTH)}, "
                     f"Le Roy radius {_f(m.le_roy_radius_m, units.LENGTH)}")
     return "\n".join(rows + _field_rows(program, timeline))

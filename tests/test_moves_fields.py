@@ -150,3 +150,13 @@ def test_partial_blockade_warns_with_ratio_and_radius(tmp_path, distance):
     warnings = [w.message for w in seqlang.load(str(path)).warnings]
     assert any("blockade is partial" in w and "times the Rabi frequency" in w and "blockade radius" in w
                for w in warnings), warnings
+
+
+@pytest.mark.slow
+def test_show_lists_the_pair_model_and_the_defects_at_the_field():
+    run = subprocess.run([sys.executable, "-m", "seqlang", "show", os.path.join(DEMO, "forster_gate.seq")],
+                         capture_output=True, text=True, env={**os.environ, "PYTHONPATH": ROOT})
+    assert run.returncode == 0, run.stderr
+    assert "E = 10.2 V/m: diagonalised" in run.stdout
+    assert "na-cs channel defects: 55P3/2+59P3/2" in run.stdout
+    assert "Stark shifts na 57S1/2 -554" in run.stdout

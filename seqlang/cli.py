@@ -1,4 +1,9 @@
-"""The `seqlang` command line. Exit codes: 0 ok, 1 the program has errors, 2 misuse."""
+"""The `seqlang` command line.
+
+Exit codes: 0 ok, 1 the program has errors (or an output could not be written),
+2 the command was used wrongly, 70 an internal error (a bug in seqlang), 130
+interrupted.
+"""
 from __future__ import annotations
 
 import argparse
@@ -9,6 +14,7 @@ from . import __version__
 from .lang.diagnostics import SeqlangError, render, render_all, sort_diagnostics
 
 EXIT_OK, EXIT_ERRORS, EXIT_USAGE = 0, 1, 2
+EXIT_INTERNAL = 70  # EX_SOFTWARE of the BSD sysexits convention
 
 
 class UsageError(Exception):
@@ -34,11 +40,26 @@ def _load(path: str):
 
 
 def cmd_check(args) -> int:
-    sequence = _load(args.file)
+    """Check every file named; the exit code is 1 if any of them has errors."""
+    failed = 0
+    for path in args.files:
+        try:
+            _check_one(path)
+        except SeqlangError as exc:
+            if len(args.files) == 1:
+                raise
+            _print_errors(exc)
+            failed += 1
+    if failed and len(args.files) > 1:
+        print(f"{failed} of {len(args.files)} files have errors", file=sys.stderr)
+    return EXIT_ERRORS if failed else EXIT_OK
+
+
+def _check_one(path: str) -> None:
+    sequence = _load(path)
     counts = (len(sequence.timeline.events), len(sequence.program.sites), len(sequence.warnings))
     words = ", ".join(f"{n} {w}{'' if n == 1 else 's'}" for n, w in zip(counts, ("event", "site", "warning")))
-    print(f"{args.file}: ok ({words})")
-    return EXIT_OK
+    print(f"{path}: ok ({words})")
 
 
 def cmd_compile(args) -> int:
@@ -72,6 +93,7 @@ def cmd_show(args) -> int:
 
 
 def cmd_plot(args) -> int:
+    _check_figure_name(args.output)
     sequence = _load(args.file)
     if args.what == "timeline":
         from .plot.timeline import plot_timeline
@@ -83,6 +105,15 @@ def cmd_plot(args) -> int:
     return EXIT_OK
 
 
+def _check_figure_name(path: str) -> None:
+    """Refuse an unknown figure extension before any work is done."""
+    from .plot.formats import FormatError, figure_format
+    try:
+        figure_format(path)
+    except FormatError as exc:
+        raise UsageError(str(exc)) from None
+
+
 def _add_file(parser: argparse.ArgumentParser) -> None:
     parser.add_argument("file", help="a sequence file (*.seq)")
 
@@ -91,13 +122,17 @@ def build_parser() -> argparse.ArgumentParser:
     parser = argparse.ArgumentParser(
         prog="seqlang",
         description="Check, compile and simulate pulse sequences for two-species neutral-atom arrays.",
-        epilog="Exit codes: 0 ok, 1 the program has errors, 2 the command was used wrongly.")
+        epilog="Exit codes: 0 ok, 1 the program has errors or an output could not be written, "
+               "2 the command was used wrongly, 70 an internal error (a bug in seqlang).")
     parser.add_argument("--version", action="version", version=f"seqlang {__version__}")
+    parser.add_argument("--rig-dir", action="append", default=[], metavar="DIR",
+                        help="a further directory that `use` and `import` may read from (repeatable; "
+                             "also $SEQLANG_RIG_PATH)")
     sub = parser.add_subparsers(dest="command", metavar="command")
     sub.required = True
 
-    p = sub.add_parser("check", help="report every problem of a sequence file (no output files)")
-    _add_file(p)
+    p = sub.add_parser("check", help="report every problem of one or more sequence files (no output files)")
+    p.add_argument("files", nargs="+", metavar="file", help="sequence files (*.seq)")
     p.set_defaults(run=cmd_check)
 
     p = sub.add_parser("compile", help="write timing.csv, timing.json and waveforms.npz")
@@ -112,7 +147,8 @@ def build_parser() -> argparse.ArgumentParser:
 
     p = sub.add_parser("plot", help="draw the timeline, or simulated populations or correlators")
     _add_file(p)
-    p.add_argument("-o", "--output", required=True, metavar="PNG", help="image file to write")
+    p.add_argument("-o", "--output", required=True, metavar="FILE",
+                   help="image file to write; its extension names the format (.png, .svg or .pdf)")
     p.add_argument("--what", choices=("timeline", "populations", "correlators"), default="timeline",
                    help="what to draw (default: timeline)")
     p.set_defaults(run=cmd_plot)
@@ -135,12 +171,11 @@ def _add_optional_commands(sub) -> None:
 def main(argv: list[str] | None = None) -> int:
     parser = build_parser()
     args = parser.parse_args(argv)
+    _add_rig_dirs(args.rig_dir)
     try:
         return args.run(args)
     except SeqlangError as exc:
-        print(render_all(exc.diagnostics), file=sys.stderr)
-        errors = sum(d.is_error for d in exc.diagnostics)
-        print(f"{errors} error{'s' if errors != 1 else ''}", file=sys.stderr)
+        _print_errors(exc)
         return EXIT_ERRORS
     except UsageError as exc:
         print(f"seqlang: {exc}", file=sys.stderr)
@@ -149,13 +184,38 @@ def main(argv: list[str] | None = None) -> int:
         print("seqlang: interrupted", file=sys.stderr)
         return 130
     except BrokenPipeError:
-        # The reader (e.g. `| head`) went away; nothing more to say.
-        sys.stderr.close()
-        return EXIT_OK
-    except BrokenPipeError:
         # The reader went away (`seqlang show … | head`): stop quietly, not with a traceback.
         os.dup2(os.open(os.devnull, os.O_WRONLY), sys.stdout.fileno())
         return EXIT_OK
+    except Exception as exc:  # noqa: BLE001 - the last net: a bug, told apart from user errors
+        from .emit.atomic import OutputError
+        if isinstance(exc, OutputError):
+            print(f"seqlang: {exc}", file=sys.stderr)
+            return EXIT_ERRORS
+        return _internal_error(exc)
+
+
+def _print_errors(exc: SeqlangError) -> None:
+    print(render_all(exc.diagnostics), file=sys.stderr)
+    errors = sum(d.is_error for d in exc.diagnostics)
+    print(f"{errors} error{'s' if errors != 1 else ''}", file=sys.stderr)
+
+
+def _add_rig_dirs(dirs: list[str]) -> None:
+    """`--rig-dir` extends $SEQLANG_RIG_PATH, which the resolver (and scan workers) read."""
+    if dirs:
+        known = [p for p in os.environ.get("SEQLANG_RIG_PATH", "").split(os.pathsep) if p]
+        os.environ["SEQLANG_RIG_PATH"] = os.pathsep.join(known + [os.path.abspath(d) for d in dirs])
+
+
+def _internal_error(exc: Exception) -> int:
+    print(f"seqlang: internal error: {type(exc).__name__}: {str(exc)[:500]}", file=sys.stderr)
+    print(f"This is a bug in seqlang {__version__}, not in your program; please report it with the "
+          "input that caused it (set SEQLANG_TRACEBACK=1 to see where it happened).", file=sys.stderr)
+    if os.environ.get("SEQLANG_TRACEBACK"):
+        import traceback
+        traceback.print_exception(exc)
+    return EXIT_INTERNAL
 
 
 if __name__ == "__main__":

@@ -35,15 +35,34 @@ def compile_summary(checked: Checked) -> str:
     plan, report = checked.plan, checked.plan.report
     return "\n".join([
         f"tick {_f(plan.tick_s, units.DURATION)}; {len(checked.quantized.events)} events; "
-        f"total {_f(checked.quantized.duration_s, units.DURATION)}",
+        f"total {_f(checked.quantized.duration_s, units.DURATION)}" + _total_parts(checked),
         f"latency compensation shifted the sequence by {plan.shift_ticks} ticks "
         f"({_f(plan.shift_s, units.DURATION)})" if plan.shift_ticks else "no latency shift needed",
-        f"largest residual pulse-area error after tick and amplitude rounding: {report.max_area_error_rad:.3g} rad",
+        f"largest residual pulse-area error after tick and amplitude rounding: {report.max_area_error_rad:.3g} rad"
+        + (f"; detuning scaled with the Rabi frequency on {len(report.detuning_changes_hz)} pulse(s), "
+           f"by up to {_f(report.max_detuning_change_hz, units.FREQUENCY)}" if report.detuning_changes_hz else ""),
         f"largest timing rounding: {_f(report.max_timing_error_s, units.DURATION)}"
         + (f"; {report.stretched} pulse(s) lengthened by one tick to stay under the drive maximum, "
            f"moving later events by up to {_f(report.max_stretch_shift_s, units.DURATION)}"
            if report.stretched else ""),
-    ])
+    ] + ([f"{plan.holds} hold row(s) split gaps longer than the sequencer's duration counter "
+          f"({2 ** checked.program.rig.counter_bits - 1:,} ticks = "
+          f"{_f((2 ** checked.program.rig.counter_bits - 1) * plan.tick_s, units.DURATION)})"] if plan.holds else []))
+
+
+def _total_parts(checked: Checked) -> str:
+    """Why the played total differs from the written one: rounding and stretches, latency shift."""
+    written, shift = checked.timeline.duration_s, checked.plan.shift_s
+    rounding = checked.quantized.duration_s - shift - written
+    if abs(rounding) < 1e-15 and shift == 0:
+        return ""
+    parts = [f"written {_f(written, units.DURATION)}"]
+    if abs(rounding) >= 1e-15:
+        parts.append(f"{'+' if rounding > 0 else '−'}{_f(abs(rounding), units.DURATION)} tick rounding"
+                     + (" and one-tick stretches" if checked.plan.report.stretched else ""))
+    if shift:
+        parts.append(f"+{_f(shift, units.DURATION)} latency shift")
+    return " (" + " ".join(parts) + ")"
 
 
 def pair_models_table(program: Program, timeline) -> str:

@@ -20,7 +20,7 @@ from seqlang.atoms.species import RydbergLevel
 
 RYDBERG_CONSTANT_HZ = 3.2898419602508e15  # R_inf c, CODATA 2018
 ELECTRON_MASS_U = 5.48579909065e-4  # CODATA 2018
-ATOMIC_UNIT_C6_GHZ_UM6 = 1.44481e-19  # REFERENCES.md: 1 a.u. of C6 in GHz um^6
+ATOMIC_UNIT_C6_GHZ_UM6 = 1.44481e-19  # docs/references.md: 1 a.u. of C6 in GHz um^6
 HZ_M6_PER_GHZ_UM6 = 1e-27
 
 
@@ -43,7 +43,7 @@ def effective_n(name, label):
 
 
 def ritz_energy_hz(name, n, d0, d2, d4=0.0):
-    """Modified Rydberg-Ritz formula of REFERENCES.md."""
+    """Modified Rydberg-Ritz formula of docs/references.md."""
     defect = d0 + d2 / (n - d0) ** 2 + d4 / (n - d0) ** 4
     return -reduced_rydberg_hz(name) / (n - defect) ** 2
 
@@ -88,7 +88,7 @@ def test_s_state_pairs_repel(name, label):
 
 
 def test_c6_scales_as_effective_n_to_the_eleventh():
-    # REFERENCES.md: C6 of nS+nS ~ n*^11 (common practice); log-log slope 50 -> 80.
+    # docs/references.md: C6 of nS+nS ~ n*^11 (common practice); log-log slope 50 -> 80.
     c6 = [rydberg.c6_hz_m6("Rb87", f"{n}S1/2", "Rb87", f"{n}S1/2").c6_hz_m6 for n in (50, 80)]
     ns = [effective_n("Rb87", f"{n}S1/2") for n in (50, 80)]
     slope = math.log(c6[1] / c6[0]) / math.log(ns[1] / ns[0])
@@ -162,7 +162,7 @@ def test_second_c6_call_does_not_touch_arc(monkeypatch):
 
 # ----------------------------------------------------------------- lifetimes
 # Beterov, Ryabtsev, Tretyakov & Entin, PRA 79, 052504 (2009), nS fits (coefficients
-# from transcriptions: from memory). REFERENCES.md: ARC's sums differ from the fit by
+# copied by hand: from memory). docs/references.md: ARC's sums differ from the fit by
 # up to ~10 % at 0 K and ~3 % at 300 K; tolerances 12 % (0 K) and 8 % (300 K).
 BETEROV_NS = {
     "Rb87": (1.368e-9, 3.0008, 0.134, 0.251, 2.567, 4.426),

@@ -90,7 +90,7 @@ def test_failed_write_keeps_the_old_file(tmp_path, monkeypatch):
         raise OSError("disk full")
 
     monkeypatch.setattr(os, "replace", refuse)
-    with pytest.raises(OSError):
+    with pytest.raises(atomic.OutputError, match="disk full"):
         atomic.write_text(str(target), "new contents\n")
     assert target.read_text() == "old contents\n"
     assert os.listdir(tmp_path) == ["timing.csv"], "the temporary file is cleaned up"
@@ -104,10 +104,50 @@ def test_compile_failing_write_keeps_old_tables(program_dir, monkeypatch, capsys
     (program_dir / "good.seq").write_text((program_dir / "good.seq").read_text().replace("area pi", "area pi/2"))
 
     def refuse(*_args, **_kwargs):
-        raise OSError("disk full")
+        raise OSError(28, "No space left on device")
 
-    monkeypatch.setattr(os, "replace", refuse)
-    with pytest.raises(OSError):
-        cli.main(["compile", "good.seq", "-o", "out"])
+    monkeypatch.setattr(atomic, "_write_file", refuse)
+    assert cli.main(["compile", "good.seq", "-o", "out"]) == 1
+    assert "cannot write" in capsys.readouterr().err
     assert (program_dir / "out" / "timing.json").read_bytes() == before
-    assert not [name for name in os.listdir(program_dir / "out") if name.startswith(".seqlang-")]
+    assert not [n for n in os.listdir(program_dir) if n.startswith(".")], "no staging folder left behind"
+
+
+@pytest.mark.parametrize("extension, magic", [(".png", b"\x89PNG"), (".svg", b"<?xml"), (".pdf", b"%PDF")])
+def test_plot_writes_the_format_its_extension_names(program_dir, monkeypatch, extension, magic):
+    monkeypatch.chdir(program_dir)
+    assert cli.main(["plot", "good.seq", "-o", f"timeline{extension}"]) == 0
+    data = (program_dir / f"timeline{extension}").read_bytes()
+    assert data.startswith(magic)
+    assert cli.main(["plot", "good.seq", "-o", f"again{extension}"]) == 0
+    assert (program_dir / f"again{extension}").read_bytes() == data, "no dates or ids in the figure"
+
+
+def test_plot_refuses_an_unknown_extension(program_dir, monkeypatch, capsys):
+    monkeypatch.chdir(program_dir)
+    assert cli.main(["plot", "good.seq", "-o", "timeline.jpeg"]) == 2
+    assert "use one of .png, .svg, .pdf" in capsys.readouterr().err
+    assert not (program_dir / "timeline.jpeg").exists()
+
+
+def test_check_takes_several_files(program_dir):
+    both = _run("check", "good.seq", "bad.seq", cwd=program_dir)
+    assert both.returncode == 1
+    assert "good.seq: ok" in both.stdout
+    assert "bad.seq:4:" in both.stderr and "1 of 2 files have errors" in both.stderr
+    assert _run("check", "good.seq", "good.seq", cwd=program_dir).returncode == 0
+
+
+def test_internal_error_is_told_apart_from_user_errors(program_dir, monkeypatch, capsys):
+    """A bug exits 70 (EX_SOFTWARE, BSD sysexits) with a short line, not 1 and a traceback."""
+    import seqlang.api
+
+    def broken(_path):
+        raise ZeroDivisionError("division by zero")
+
+    monkeypatch.setattr(seqlang.api, "load", broken)
+    monkeypatch.chdir(program_dir)
+    assert cli.main(["check", "good.seq"]) == cli.EXIT_INTERNAL == 70
+    err = capsys.readouterr().err
+    assert "internal error: ZeroDivisionError" in err and "bug in seqlang" in err
+    assert "Traceback" not in err

@@ -106,12 +106,17 @@ def test_parser_stops_at_the_first_syntax_error():
     assert diags[0].message == "unexpected number `1`; expected a name"
 
 
-def test_missing_brace_names_the_brace_first():
-    diags = _syntax_error("sequence s {\n  wait 1 us\n")
-    assert diags[0].message.startswith("unexpected end of file; expected `}`")
-    assert diags[0].hint == "a closing `}` is probably missing"
-    # the caret sits just after the last character written
-    assert (diags[0].span.line, diags[0].span.column) == (2, 12)
+def test_missing_brace_is_reported_at_the_brace_never_closed():
+    diags = _syntax_error("sequence s {\n  together {\n    wait 1 us\n  }\n  wait 2 us\n")
+    assert diags[0].message == "this `{` is never closed: the file ends before its `}`"
+    assert diags[0].hint == "add `}` where the block opened on line 1 should end"
+    assert (diags[0].span.line, diags[0].span.column, diags[0].span.end_column) == (1, 12, 13)
+
+
+def test_missing_brace_before_a_top_level_keyword():
+    diags = _syntax_error("sequence s {\n  wait 1 us\n\nexpect a as |0>\n")
+    assert diags[0].message == "this `{` is never closed: `expect` on line 4 comes before its `}`"
+    assert (diags[0].span.line, diags[0].span.column) == (1, 12)
 
 
 def test_no_lark_internal_names_in_messages():
@@ -138,3 +143,40 @@ def test_rendered_diagnostics_match_golden(name, monkeypatch, capsys):
     err = capsys.readouterr().err
     assert "Traceback" not in err
     check_golden(f"errors/{name}.txt", err)
+
+
+def test_a_new_rule_needs_only_a_builder_method(monkeypatch):
+    """The recipe of DEVELOPERS.md ("How to add a statement"): a grammar rule plus a method."""
+    from dataclasses import dataclass
+    from importlib import resources
+
+    from lark import Lark, v_args
+
+    from seqlang.lang import parser
+
+    grammar = resources.files("seqlang").joinpath("grammar/seqlang.lark").read_text("utf-8")
+    grammar = grammar.replace("_stmt: pulse_stmt", "_stmt: hold_stmt\n     | pulse_stmt")
+    grammar += '\nhold_stmt: "hold" NAME [expr]\n'
+    extended = Lark(grammar, parser="lalr", maybe_placeholders=True)
+
+    @dataclass(frozen=True)
+    class Hold:
+        name: ast.Ident
+        time: object
+        span: object
+
+    class Builder(parser._Builder):
+        @v_args(meta=True)
+        def hold_stmt(self, meta, children):
+            return Hold(self._ident(children[0]), children[1], self._span(meta))
+
+    monkeypatch.setattr(parser, "_lark", lambda: extended)
+    monkeypatch.setattr(parser, "_Builder", Builder)
+    tree = parse_text("sequence s {\n  wait 1 us\n  hold coil 2 ms\n  hold coil\n}\n", "h.seq")
+    hold, bare = tree.items[0].body[1:]
+    assert isinstance(hold, Hold) and hold.name.name == "coil" and hold.time.unit == "ms"
+    assert (hold.span.line, hold.span.column, hold.span.end_column) == (3, 3, 17)
+    assert bare.time is None
+    with pytest.raises(SeqlangError) as info:
+        parse_text("sequence s {\n  = 1\n}\n", "h.seq")
+    assert "a statement (hold, pulse, wait" in info.value.diagnostics[0].message

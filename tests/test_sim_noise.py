@@ -36,7 +36,7 @@ def _rydberg_population(result) -> float:
 
 @pytest.mark.parametrize("wait_us", [2, 5, 10])
 def test_white_laser_noise_gives_exponential_ramsey_contrast(tmp_path, wait_us):
-    """Lorentzian linewidth Δν: coherence decays as exp(−γt), γ = πΔν (REFERENCES.md, derived)."""
+    """Lorentzian linewidth Δν: coherence decays as exp(−γt), γ = πΔν (docs/references.md, derived)."""
     result = _run(tmp_path, RYDBERG_RAMSEY.format(wait=f"{wait_us} us"), ("dephasing",), linewidth="20 kHz")
     gamma = math.pi * 20e3
     # The two 50 ns pulses add ~50 ns of dephasing time on average (derived, small).

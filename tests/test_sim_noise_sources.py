@@ -183,7 +183,7 @@ def _scattering_loss(tmp_path, leg_ratio: float, ladder: bool) -> float:
 
 
 def _adiabatic_scattering(leg_ratio: float) -> float:
-    """P = (πΓ_e/4Δ)(Ω₁/Ω₂ + Ω₂/Ω₁) (REFERENCES.md, derived by adiabatic elimination)."""
+    """P = (πΓ_e/4Δ)(Ω₁/Ω₂ + Ω₂/Ω₁) (docs/references.md, derived by adiabatic elimination)."""
     gamma_e = 1 / RB_D2_LIFETIME_S
     return math.pi * gamma_e / (4 * 2 * math.pi * INTERMEDIATE_HZ) * (leg_ratio + 1 / leg_ratio)
 
@@ -230,7 +230,7 @@ def test_decay_branching_follows_exponential_law(tmp_path, back, engine_name, wa
 def _levine_time_in_rydberg(steps: int = 2000) -> float:
     """T_R·Ω of the Levine et al. gate averaged over |00⟩, |01⟩, |10⟩, |11⟩ with perfect blockade:
     |01⟩ is a two-level system at Ω, |11⟩ one at √2Ω (derived; integrated with scipy's expm)."""
-    ratio, tau, jump = 0.377371, 4.29268, 3.90242  # REFERENCES.md (memory; reproduced numerically)
+    ratio, tau, jump = 0.377371, 4.29268, 3.90242  # docs/references.md (memory; reproduced numerically)
 
     def integral(coupling: float) -> float:
         psi, dt, occupation = np.array([1, 0], complex), tau / steps, [0.0]
@@ -246,7 +246,7 @@ def _levine_time_in_rydberg(steps: int = 2000) -> float:
 
 def test_two_pulse_cz_decay_error_is_gamma_times_time_in_rydberg():
     """Error ≈ Γ·T_R, T_R·Ω ≈ 3.29 for the two-pulse gate of Levine et al., PRL 123, 170503 (2019),
-    averaged over the four inputs (REFERENCES.md, derived; the time-optimal gate of Jandura &
+    averaged over the four inputs (docs/references.md, derived; the time-optimal gate of Jandura &
     Pupillo, PRX Quantum 3, 010353 (2022) has 2.96). The demo's Bell state is an equal superposition
     of the inputs, so the average applies."""
     assert _levine_time_in_rydberg() == pytest.approx(3.29, abs=0.02)

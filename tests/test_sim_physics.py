@@ -135,7 +135,7 @@ def test_bell_fidelity_approaches_one_as_blockade_grows(tmp_path):
 # ---- the two-pulse global CZ -------------------------------------------------------------
 def test_two_pulse_cz_with_published_parameters(tmp_path):
     """Δ/Ω = 0.377371, τΩ = 4.29268, phase jump ξ = 3.90242 (Levine et al., PRL 123, 170503 (2019);
-    values from memory, see REFERENCES.md): CZ up to single-qubit phases, fidelity ≥ 0.999."""
+    values from memory, see docs/references.md): CZ up to single-qubit phases, fidelity ≥ 0.999."""
     tau = 500e-9
     rabi = 4.29268 / (2 * math.pi * tau)
     pulse = f"pulse ryd_a on p, q duration 500 ns rabi {rabi} Hz detuning {0.377371 * rabi} Hz"

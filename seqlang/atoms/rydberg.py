@@ -22,7 +22,6 @@ from __future__ import annotations
 import math
 from dataclasses import dataclass
 from functools import lru_cache
-from importlib import metadata
 
 from seqlang.atoms.cache import cached
 from seqlang.atoms.species import RydbergLevel, SpeciesData, lookup, parse_level
@@ -93,6 +92,7 @@ def _level(level: str | RydbergLevel, data: SpeciesData) -> RydbergLevel:
 
 @lru_cache(maxsize=1)
 def _arc_version() -> str:
+    from importlib import metadata  # slow to import; needed only with atomic data
     return metadata.version("arc-alkali-rydberg-calculator")
 
 

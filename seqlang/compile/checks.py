@@ -6,9 +6,12 @@ from __future__ import annotations
 
 from collections import defaultdict
 
+import math
+
 from ..lang import units
 from ..lang.diagnostics import Diagnostic, error
 from ..program.model import Program
+from . import envelopes
 from .timeline import IMAGE, PULSE, Event, Timeline
 
 # Events closer than this are touching, not overlapping (float rounding of sums).
@@ -75,3 +78,52 @@ def _first_per_statement(diags: list[Diagnostic]) -> list[Diagnostic]:
             seen.add(key)
             out.append(d)
     return out
+
+
+# ---- sampled waveforms (after quantization) ------------------------------------
+MAX_SAMPLES_PER_WAVEFORM = 10_000_000  # 240 MB as time, Rabi frequency and phase (float64)
+MAX_SAMPLES_TOTAL = 20_000_000  # over every shaped pulse of one compile
+SAMPLED_AREA_RTOL = 1e-3  # the played samples must hold the area to 0.1 %
+
+
+def check_waveforms(program: Program, timeline: Timeline) -> list[Diagnostic]:
+    """Shaped pulses whose samples would be too many, or would not reproduce the area.
+
+    Counted before anything is allocated; the area of the samples is integrated in chunks.
+    """
+    out, total = [], 0
+    for pulse in timeline.pulses():
+        if pulse.shape.kind == "square":
+            continue
+        rate = program.rig.drives[pulse.drive].sample_rate_hz
+        count = envelopes.sample_count(pulse.duration_s, rate)
+        total += count
+        problem = _too_many_samples(pulse, count, total, rate) or _sampled_area_off(pulse, rate, count)
+        if problem is not None:
+            out.append(problem)
+            if total > MAX_SAMPLES_TOTAL:
+                break
+    return _first_per_statement(out)
+
+
+def _too_many_samples(pulse: Event, count: int, total: int, rate: float) -> Diagnostic | None:
+    where = f"{units.format_quantity(pulse.duration_s, units.DURATION)} {pulse.shape.kind} pulse"
+    if count > MAX_SAMPLES_PER_WAVEFORM:
+        return error(f"this {where} needs {count:,} samples at {units.format_quantity(rate, units.FREQUENCY)}; "
+                     f"the limit is {MAX_SAMPLES_PER_WAVEFORM:,} per waveform", pulse.span,
+                     "shorten the pulse, use a square one, or lower the drive's `sample_rate`")
+    if total > MAX_SAMPLES_TOTAL:
+        return error(f"with this pulse the waveforms hold {total:,} samples; the limit is "
+                     f"{MAX_SAMPLES_TOTAL:,} for one compile", pulse.span,
+                     "use fewer or shorter shaped pulses, or lower the drive's `sample_rate`")
+    return None
+
+
+def _sampled_area_off(pulse: Event, rate: float, count: int) -> Diagnostic | None:
+    played = 2 * math.pi * pulse.rabi_hz * envelopes.sampled_area_factor(pulse.shape, pulse.duration_s, rate)
+    if abs(played - pulse.area_rad) <= SAMPLED_AREA_RTOL * abs(pulse.area_rad):
+        return None
+    return error(f"the sampled {pulse.shape.kind} envelope does not reproduce the pulse area: "
+                 f"{count:,} samples at {units.format_quantity(rate, units.FREQUENCY)} give "
+                 f"{played / math.pi:.6g}π, the pulse needs {pulse.area_rad / math.pi:.6g}π", pulse.span,
+                 "widen the envelope or raise the drive's `sample_rate`")

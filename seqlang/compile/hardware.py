@@ -5,6 +5,11 @@ their physical time; when that reaches before tick 0 the whole sequence shifts
 later and the shift is reported. Rydberg and Raman pulses with a TTL gate get
 the gate opened ``gate_lead`` before and closed ``gate_lag`` after the pulse;
 overlapping gate windows on one line merge (the gate stays open).
+
+The sequencer counts the time from one row to the next with its duration
+counter (``counter_bits``). Where two rows are further apart than the counter
+holds (a long wait), ``hold`` rows on the pseudo-output ``sequencer`` split
+the gap into counter-sized pieces; the compile report says how many.
 """
 from __future__ import annotations
 
@@ -17,6 +22,7 @@ from . import motion
 from .timeline import FIELD, IMAGE, MOVE, PULSE, SET, Event, Timeline, evolve
 
 GATE = "gate"
+HOLD, SEQUENCER = "hold", "sequencer"
 
 
 @dataclass(frozen=True)
@@ -50,6 +56,7 @@ class HardwarePlan:
     timeline: Timeline  # quantized and shifted: the physical times the atoms see
     report: QuantizeReport
     latency_ticks: dict[str, int]
+    holds: int = 0  # hold rows inserted where a gap is longer than the duration counter
 
     @property
     def shift_s(self) -> float:
@@ -75,11 +82,13 @@ def plan(program: Program, timeline: Timeline, report: QuantizeReport) -> Hardwa
         else:
             raw += _port_events(program, event, tick, latencies, shift)
     ports: dict[str, list[PortEvent]] = defaultdict(list)
-    for entry in _merge_gates(raw):
+    merged = _merge_gates(raw)
+    holds = _holds(merged, 2 ** program.rig.counter_bits - 1)
+    for entry in merged + holds:
         ports[entry.port].append(entry)
     ordered = {p: tuple(sorted(es, key=lambda e: (e.tick, e.kind, e.event))) for p, es in sorted(ports.items())}
     shifted = _shift_timeline(timeline, shift * tick)
-    return HardwarePlan(tick, shift, ordered, shifted, report, latencies)
+    return HardwarePlan(tick, shift, ordered, shifted, report, latencies, len(holds))
 
 
 def _ticks(seconds: float, tick: float) -> int:
@@ -186,6 +195,22 @@ def _merge_gates(entries: list[PortEvent]) -> list[PortEvent]:
         else:
             merged.append(gate)
     return [e for e in entries if e.kind != GATE] + merged
+
+
+def _holds(entries: list[PortEvent], limit: int) -> list[PortEvent]:
+    """Hold rows so that no two consecutive issue ticks (from tick 0) are more than `limit` apart.
+
+    A hold carries the source line of the row it leads to.
+    """
+    out: list[PortEvent] = []
+    previous = 0
+    for entry in sorted(entries, key=lambda e: (e.tick, e.port, e.kind, e.event)):
+        tick = previous + limit
+        while tick < entry.tick:
+            out.append(PortEvent(SEQUENCER, tick, min(limit, entry.tick - tick), HOLD, entry.event, entry.source))
+            tick += limit
+        previous = max(previous, entry.tick)
+    return out
 
 
 def _shift_timeline(timeline: Timeline, shift_s: float) -> Timeline:

@@ -4,16 +4,23 @@
 """
 from __future__ import annotations
 
+from ..lang import units
 from ..lang.diagnostics import SeqlangError, error
 from ..program.model import FieldOp, ImageOp, MoveOp, PortOp, Program, PulseOp, RepeatOp, SerialOp, TogetherOp, WaitOp
 from .timeline import FIELD, IMAGE, MOVE, PULSE, Event, Timeline
 
-MAX_EVENTS = 5_000_000
+MAX_EVENTS = 5_000_000  # after expanding repeats; waits count too (each is work to place)
+MAX_TICKS = 2 ** 53  # exact integer arithmetic on tick numbers (float mantissa)
 
 
 def lower(program: Program) -> Timeline:
     """Place every operation in time; the result is sorted by start."""
     events: list[Event] = []
+    culprit = _too_long(program.body, program.rig.tick_s)
+    if culprit is not None:
+        raise SeqlangError([error(f"this makes the sequence last {units.format_quantity(duration_of(culprit), units.DURATION)}"
+                                  f", beyond 2^53 ticks ({units.format_quantity(MAX_TICKS * program.rig.tick_s, units.DURATION)})"
+                                  ", where tick arithmetic stops being exact", culprit.span)])
     _Placer(program, events).place(program.body, 0.0)
     total = duration_of(program.body)
     events.sort(key=lambda e: (e.start_s, e.index))
@@ -38,6 +45,7 @@ def duration_of(op) -> float:
 class _Placer:
     def __init__(self, program: Program, events: list[Event]):
         self.program, self.events = program, events
+        self.placed = 0  # events and waits placed so far
 
     def place(self, op, start: float) -> None:
         if isinstance(op, SerialOp):
@@ -49,8 +57,12 @@ class _Placer:
         elif isinstance(op, RepeatOp):
             self._repeat(op, start)
         elif isinstance(op, FieldOp):
+            self.placed += 1
             self._field(op, start)
-        elif not isinstance(op, WaitOp):
+        elif isinstance(op, WaitOp):
+            self.placed += 1
+        else:
+            self.placed += 1
             self._emit(op, start)
 
     def _together(self, op: TogetherOp, start: float) -> None:
@@ -68,8 +80,13 @@ class _Placer:
 
     def _repeat(self, op: RepeatOp, start: float) -> None:
         period = duration_of(op.body)
-        if op.count * _count_events(op.body) + len(self.events) > MAX_EVENTS:
-            raise SeqlangError([error(f"this repetition makes more than {MAX_EVENTS:,} events", op.span)])
+        work = op.count * _count_events(op.body)
+        if work + self.placed > MAX_EVENTS:
+            raise SeqlangError([error(f"this repetition makes more than {MAX_EVENTS:,} events "
+                                      "(waits included)", op.span)])
+        if not _makes_events(op.body):
+            self.placed += work  # waits only: nothing to place, however often
+            return
         for i in range(op.count):
             self.place(op.body, start + i * period)
 
@@ -95,8 +112,33 @@ class _Placer:
                                      value=op.value))
 
 
+def _makes_events(op) -> bool:
+    if isinstance(op, (PulseOp, ImageOp, PortOp, MoveOp, FieldOp)):
+        return True
+    if isinstance(op, (SerialOp, TogetherOp)):
+        return any(_makes_events(o) for o in op.body)
+    if isinstance(op, RepeatOp):
+        return _makes_events(op.body)
+    return False
+
+
+def _too_long(op, tick: float):
+    """The innermost operation that takes the sequence beyond MAX_TICKS, or None."""
+    if duration_of(op) / tick < MAX_TICKS:
+        return None
+    children = op.body.body if isinstance(op, RepeatOp) else getattr(op, "body", ())
+    if isinstance(op, RepeatOp) and duration_of(op.body) / tick < MAX_TICKS:
+        return op
+    for child in children:
+        found = _too_long(child, tick)
+        if found is not None:
+            return found
+    return op
+
+
 def _count_events(op) -> int:
-    if isinstance(op, (PulseOp, ImageOp, PortOp, MoveOp)):
+    """Events and waits after expansion (waits cost placing time even though they make no event)."""
+    if isinstance(op, (PulseOp, ImageOp, PortOp, WaitOp, MoveOp)):
         return 1
     if isinstance(op, FieldOp):
         return 1 + _count_events(op.body)

@@ -8,9 +8,10 @@ from dataclasses import dataclass
 from typing import Mapping
 
 from ..lang.diagnostics import ERROR, Diagnostic, SeqlangError
+from ..lang.parser import cyclic_gc_paused
 from ..program.model import Program
 from ..program.resolve import resolve
-from .checks import check_timeline
+from .checks import check_timeline, check_waveforms
 from .geometry import check_geometry
 from .hardware import HardwarePlan, plan
 from .lower import lower
@@ -34,6 +35,11 @@ def check(path: str, sources: Mapping[str, str] | None = None) -> Checked:
 
     `sources` optionally maps paths to unsaved texts (see :func:`resolve`).
     """
+    with cyclic_gc_paused():
+        return _check(path, sources)
+
+
+def _check(path: str, sources: Mapping[str, str] | None) -> Checked:
     program, diags = resolve(path, sources)
     timeline = lower(program)
     diags = diags + check_timeline(program, timeline)
@@ -41,6 +47,8 @@ def check(path: str, sources: Mapping[str, str] | None = None) -> Checked:
         diags += check_geometry(program, timeline)
     quantized, report, quant_diags = quantize(program, timeline)
     diags += quant_diags + [d for d in check_timeline(program, quantized) if d.span not in {x.span for x in diags}]
+    if not any(d.severity == ERROR for d in diags):
+        diags += check_waveforms(program, quantized)
     if any(d.severity == ERROR for d in diags):
         raise SeqlangError(diags)
     hardware = plan(program, quantized, report)

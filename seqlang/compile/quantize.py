@@ -2,8 +2,11 @@
 
 Start and end of every event are rounded to the tick (so neighbours stay
 neighbours); a pulse whose duration changed gets its Rabi frequency rescaled
-to keep its area, then rounded to the drive's amplitude resolution. What is
-left of the area error after that is reported per pulse.
+to keep its area, then rounded to the drive's amplitude resolution. Its
+detuning is scaled by the same factor, so that a detuned pulse keeps its
+rotation (Δ·T as well as Ω·T); the detuning must then stay inside the
+drive's range. What is left of the area error, and each detuning change,
+are reported per pulse.
 """
 from __future__ import annotations
 
@@ -15,6 +18,7 @@ from ..lang import units
 from ..lang.diagnostics import Diagnostic, error
 from ..program.model import Drive, Program
 from . import envelopes
+from .lower import MAX_TICKS  # exact integer tick arithmetic up to 2**53
 from .timeline import PULSE, Event, Timeline, evolve
 
 
@@ -27,17 +31,24 @@ class QuantizeReport:
     max_timing_error_s: float  # rounding to the tick grid alone (at most half a tick)
     stretched: int  # pulses lengthened by a tick to stay under the drive's maximum
     max_stretch_shift_s: float = 0.0  # how far those stretches moved later events
+    detuning_changes_hz: tuple[tuple[int, float], ...] = ()  # (event index, played − written), nonzero only
+    max_detuning_change_hz: float = 0.0
+
+
 
 
 def quantize(program: Program, timeline: Timeline) -> tuple[Timeline, QuantizeReport, list[Diagnostic]]:
     """The timeline the hardware will play, with a report and any errors."""
     tick, limit = program.rig.tick_s, 2 ** program.rig.counter_bits - 1
+    too_long = _beyond_tick_range(timeline, tick)
+    if too_long:
+        return Timeline((), 0.0, tick, quantized=True), QuantizeReport((), 0.0, 0.0, 0), too_long
     rounded = [(round(e.start_s / tick), round(e.end_s / tick)) for e in timeline.events]
     grows = [_needs_stretch(program, e, start, end, tick) for e, (start, end) in zip(timeline.events, rounded)]
     # A pulse lengthened by one tick pushes everything that starts at or after its end one
     # tick later, so that it never runs into the next pulse on its drive.
     stretch_ends = sorted(end for (_, end), grow in zip(rounded, grows) if grow)
-    events, errors, diags, worst_time = [], [], [], 0.0
+    events, errors, detunings, diags, worst_time = [], [], [], [], 0.0
     for event, (start, end), grow in zip(timeline.events, rounded, grows):
         # Rounding and the deliberate stretch shifts are reported apart: they have different causes.
         worst_time = max(worst_time, abs(start * tick - event.start_s), abs(end * tick - event.end_s))
@@ -46,16 +57,32 @@ def quantize(program: Program, timeline: Timeline) -> tuple[Timeline, QuantizeRe
         if not _representable(event, end - start, limit, tick, diags):
             continue
         if event.kind == PULSE:
+            written = event
             event, error_rad = _pulse(program.rig.drives[event.drive], event, start, end, tick)
             errors.append((event.index, error_rad))
+            if event.detuning_hz != written.detuning_hz:
+                detunings.append((event.index, event.detuning_hz - written.detuning_hz))
+                diags += _detuning_in_range(program.rig.drives[event.drive], written, event)
         else:
             event = evolve(event, start_s=start * tick, duration_s=(end - start) * tick)
         events.append(event)
-    total = (math.ceil(round(timeline.duration_s / tick, 6)) + len(stretch_ends)) * tick
+    # The end of the sequence is rounded like every event end, so a last pulse ending on it ends the total.
+    total = (round(timeline.duration_s / tick) + len(stretch_ends)) * tick
     total = max([total] + [e.end_s for e in events])
     report = QuantizeReport(tuple(errors), max((abs(e) for _, e in errors), default=0.0), worst_time,
-                            len(stretch_ends), len(stretch_ends) * tick)
+                            len(stretch_ends), len(stretch_ends) * tick, tuple(detunings),
+                            max((abs(d) for _, d in detunings), default=0.0))
     return Timeline(tuple(events), total, tick, quantized=True), report, diags
+
+
+def _beyond_tick_range(timeline: Timeline, tick: float) -> list[Diagnostic]:
+    """Events that end beyond 2**53 ticks, where tick numbers stop being exact integers."""
+    for event in timeline.events:
+        if not event.end_s / tick < MAX_TICKS:
+            return [error(f"this {event.kind} ends at {units.format_quantity(event.end_s, units.DURATION)}, "
+                          f"beyond 2^53 ticks ({units.format_quantity(MAX_TICKS * tick, units.DURATION)}), "
+                          "where tick arithmetic stops being exact", event.span)]
+    return []
 
 
 def _representable(event: Event, ticks: int, limit: int, tick: float, diags: list[Diagnostic]) -> bool:
@@ -80,12 +107,27 @@ def _needs_stretch(program: Program, event: Event, start: int, end: int, tick: f
 
 
 def _pulse(drive: Drive, event: Event, start: int, end: int, tick: float) -> tuple[Event, float]:
-    """Rescale the amplitude so that the pulse keeps its area over its played ticks."""
+    """Rescale amplitude and detuning so that the pulse keeps its rotation over its played ticks."""
     duration = (end - start) * tick
-    played = _amplitude_rounded(_rabi_for_area(event, duration), drive)
+    wanted = _rabi_for_area(event, duration)
+    played = _amplitude_rounded(wanted, drive)
     area = envelopes.pulse_area(event.shape, duration, played)
-    quantized = evolve(event, start_s=start * tick, duration_s=duration, rabi_hz=played, area_rad=area)
+    # Ω·T and Δ·T both set a detuned pulse's rotation: Δ follows Ω's scale factor (not its DAC rounding).
+    detuning = event.detuning_hz * (wanted / event.rabi_hz) if event.rabi_hz > 0 else event.detuning_hz
+    quantized = evolve(event, start_s=start * tick, duration_s=duration, rabi_hz=played, area_rad=area,
+                       detuning_hz=detuning)
     return quantized, area - event.area_rad
+
+
+def _detuning_in_range(drive: Drive, written: Event, played: Event) -> list[Diagnostic]:
+    low, high = drive.detuning_range_hz
+    if low <= played.detuning_hz <= high:
+        return []
+    f = lambda hz: units.format_quantity(hz, units.FREQUENCY)  # noqa: E731
+    return [error(f"after tick rounding the detuning {f(written.detuning_hz)} scales to "
+                  f"{f(played.detuning_hz)}, outside the range {f(low)} .. {f(high)} of drive `{drive.name}`",
+                  written.span, "move the detuning away from the edge of the range, or choose a duration "
+                  "of whole ticks")]
 
 
 def _rabi_for_area(event: Event, duration: float) -> float:

@@ -64,7 +64,5 @@ def evolve(obj, **changes):
     for programs of 10⁵ events.
     """
     new = object.__new__(type(obj))
-    fields = dict(obj.__dict__)
-    fields.update(changes)
-    new.__dict__.update(fields)
+    object.__setattr__(new, "__dict__", {**obj.__dict__, **changes})  # one copy of the fields
     return new

@@ -15,6 +15,7 @@ from dataclasses import dataclass, fields, is_dataclass
 from ..lang import syntax as ast
 from ..lang.diagnostics import SeqlangError, Span, error
 from ..lang.parser import parse_text
+from ..lang.source_text import split_lines
 
 INDENT = "  "
 
@@ -31,6 +32,7 @@ class Comment:
 def format_text(text: str, path: str) -> str:
     """Return the canonical form of `text`; raise :class:`SeqlangError` on a syntax error."""
     source = parse_text(text, path)
+    text = source.text  # line ends normalised: the spans' offsets refer to this text
     printer = _Printer(text, find_comments(text))
     for item in source.items:
         _ITEM_PRINTERS[type(item)](printer, item, 0)
@@ -43,7 +45,7 @@ def format_text(text: str, path: str) -> str:
 def find_comments(text: str) -> list[Comment]:
     """Every `#` comment outside a string, in order."""
     found = []
-    for number, line in enumerate(text.splitlines(), start=1):
+    for number, line in enumerate(split_lines(text), start=1):
         column = _comment_column(line)
         if column is not None:
             found.append(Comment(number, line[column:].rstrip(), bool(line[:column].strip())))
@@ -90,7 +92,7 @@ class _Printer:
 
     def __init__(self, text: str, comments: list[Comment]):
         self.text = text
-        self.source_lines = text.splitlines()
+        self.source_lines = split_lines(text)
         self.comments = comments
         self.next_comment = 0
         self.lines: list[str] = []

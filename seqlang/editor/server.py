@@ -23,6 +23,7 @@ from ..lang import syntax as ast
 from ..lang import units
 from ..lang.diagnostics import ERROR, Diagnostic, SeqlangError, Span
 from ..lang.parser import parse_text
+from ..lang.source_text import normalise
 from ..program.rig import IMAGE_KEYS, PORT_KEYS, RIG_SETTINGS, SPECIES_KEYS, drive_keys
 from ..program.sequence import PULSE_KEYS, TRIGGER_KEYS
 from .formatter import expression
@@ -57,6 +58,7 @@ class Symbol:
 
 def analyse(path: str, text: str, overlays: Mapping[str, str]) -> Analysis:
     """Parse and check a document; never raises (every failure becomes a diagnostic)."""
+    text = normalise(text)  # spans count CR LF and CR as one line end, as the parser does
     try:
         source = parse_text(text, path)
     except SeqlangError as exc:
@@ -177,8 +179,8 @@ def find_symbol(symbols: list[Symbol], name: str, path: str, offset: int) -> Sym
 # ---- positions ---------------------------------------------------------------------------
 def offset_of(text: str, position: lsp.Position) -> int:
     """The text offset of an LSP position."""
-    lines = text.splitlines(keepends=True)
-    before = sum(len(line) for line in lines[:position.line])
+    lines = text.split("\n")  # the protocol's line ends (CR LF and CR are made LF first)
+    before = sum(len(line) + 1 for line in lines[:position.line])
     return before + position.character
 
 
@@ -541,10 +543,9 @@ def references(ls: SeqlangServer, params: lsp.ReferenceParams) -> list[lsp.Locat
 def _occurrences(source: ast.SourceFile, name: str) -> Iterator[lsp.Location]:
     from pygments.token import Name
     from .lexer import SeqlangLexer
-    lines = source.text.splitlines(keepends=True)
     starts = [0]
-    for line in lines:
-        starts.append(starts[-1] + len(line))
+    for line in source.text.split("\n"):  # lines as the parser counts them
+        starts.append(starts[-1] + len(line) + 1)
     for offset, token, value in SeqlangLexer(stripnl=False, ensurenl=False).get_tokens_unprocessed(source.text):
         if value == name and token in Name:
             line = max(i for i, s in enumerate(starts) if s <= offset)
@@ -556,7 +557,7 @@ def _occurrences(source: ast.SourceFile, name: str) -> Iterator[lsp.Location]:
 @SERVER.feature(lsp.TEXT_DOCUMENT_COMPLETION, lsp.CompletionOptions(trigger_characters=[" "]))
 def completion(ls: SeqlangServer, params: lsp.CompletionParams) -> lsp.CompletionList:
     path = os.path.normpath(to_fs_path(params.text_document.uri) or "")
-    text = ls.workspace.get_text_document(params.text_document.uri).source
+    text = normalise(ls.workspace.get_text_document(params.text_document.uri).source)
     source = ls.last_parsed.get(path)
     symbols = [s for f in related_files(source, ls.read) for s in declared(f)] if source else []
     items = completions(text, offset_of(text, params.position), symbols)

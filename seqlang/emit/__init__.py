@@ -1,25 +1,21 @@
 """Timing-table writers: CSV, JSON and sampled waveforms, written atomically."""
 from __future__ import annotations
 
-import os
-
 from ..compile.pipeline import Checked
-from .atomic import write_bytes
+from .atomic import write_set
 from .tables import timing_csv, timing_json
 from .waveforms import waveforms_npz
 
 
 def write_all(checked: Checked, directory: str) -> list[str]:
-    """Write the three tables into `directory`; return their paths."""
-    os.makedirs(directory, exist_ok=True)
+    """Write the three tables into `directory` as one set; return their paths.
+
+    The folder is replaced as a whole (see :mod:`seqlang.emit.atomic`): a reader
+    never finds a new `timing.csv` beside an old `timing.json`.
+    """
     outputs = {
         "timing.csv": timing_csv(checked).encode("utf-8"),
         "timing.json": timing_json(checked).encode("utf-8"),
         "waveforms.npz": waveforms_npz(checked),
     }
-    paths = []
-    for name, data in outputs.items():
-        path = os.path.join(directory, name)
-        write_bytes(path, data)
-        paths.append(path)
-    return paths
+    return write_set(directory, outputs)

@@ -8,11 +8,13 @@ from __future__ import annotations
 import csv
 import io
 import json
+import math
 import os
 
 from .. import __version__
 from ..compile.pipeline import Checked
 from ..compile.timeline import Event
+from ..lang.diagnostics import SeqlangError, error
 
 FORMAT = "seqlang-timing/1"
 CAUTION = ("These tables drive lasers, RF amplifiers and electrodes. Review them before they drive "
@@ -24,6 +26,8 @@ CSV_COLUMNS = ("port", "tick", "ticks", "kind", "drive", "rabi_hz", "amplitude",
 
 def _num(x: float) -> float | int:
     """Stable float formatting: 12 significant digits, integers stay integers."""
+    if not math.isfinite(x):
+        raise ValueError(f"refusing to write the non-finite number {x}")
     if float(x).is_integer() and abs(x) < 2**53:
         return int(x)
     return float(f"{x:.12g}")
@@ -39,8 +43,32 @@ def _source(checked: Checked, source: str) -> str:
     return f"{_relative(checked, path)}:{line}"
 
 
+_ROW_NUMBERS = ("rabi_hz", "amplitude", "detuning_hz", "phase_rad", "value")
+_EVENT_NUMBERS = ("start_s", "duration_s", "rabi_hz", "detuning_hz", "phase_rad", "area_rad", "value")
+
+
+def refuse_non_finite(checked: Checked) -> None:
+    """Last line of defence: a NaN or infinity never reaches a table (the checks should stop it first)."""
+    spans = {e.index: e.span for e in checked.quantized.events}
+    for event in checked.quantized.events:
+        _refuse([getattr(event, name) for name in _EVENT_NUMBERS] + [v for _, v in event.shape.params],
+                event.span)
+    for row in checked.plan.rows():
+        _refuse([getattr(row, name) for name in _ROW_NUMBERS], spans.get(row.event))
+
+
+def _refuse(values: list[float], span) -> None:
+    bad = [v for v in values if not math.isfinite(v)]
+    if bad and span is not None:
+        raise SeqlangError([error(f"refusing to write the non-finite value {bad[0]} into the timing tables "
+                                  "(this is a bug in seqlang's checks; please report it)", span)])
+    if bad:
+        raise ValueError(f"refusing to write the non-finite value {bad[0]}")
+
+
 def timing_csv(checked: Checked) -> str:
     """One row per port event, in issue order, with the source line that made it."""
+    refuse_non_finite(checked)
     out = io.StringIO()
     out.write(f"# seqlang {__version__} timing table ({FORMAT}); tick_ns={_num(checked.plan.tick_s * 1e9)}; "
               f"shift_ticks={checked.plan.shift_ticks}\n")
@@ -96,6 +124,7 @@ def provenance(checked: Checked) -> dict:
 
 def timing_json(checked: Checked) -> str:
     """Per-port event lists, the drive-level timeline, the compile report and provenance."""
+    refuse_non_finite(checked)
     plan, report = checked.plan, checked.plan.report
     document = {
         "caution": CAUTION,
@@ -110,9 +139,12 @@ def timing_json(checked: Checked) -> str:
             "max_timing_error_ns": _num(report.max_timing_error_s * 1e9),
             "pulses_stretched_one_tick": report.stretched,
             "max_stretch_shift_ns": _num(report.max_stretch_shift_s * 1e9),
+            "hold_rows": plan.holds,
             "area_error_rad": {str(i): _num(err) for i, err in report.area_errors_rad},
+            "max_detuning_change_hz": _num(report.max_detuning_change_hz),
+            "detuning_change_hz": {str(i): _num(d) for i, d in report.detuning_changes_hz},
         },
         "ports": {port: [_port_entry(checked, e) for e in events] for port, events in plan.ports.items()},
         "timeline": [timeline_entry(checked, e) for e in checked.quantized.events],
     }
-    return json.dumps(document, indent=1, sort_keys=False, ensure_ascii=False) + "\n"
+    return json.dumps(document, indent=1, sort_keys=False, ensure_ascii=False, allow_nan=False) + "\n"

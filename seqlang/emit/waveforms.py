@@ -16,6 +16,7 @@ import zipfile
 import numpy as np
 
 from ..compile import envelopes
+from ..lang.diagnostics import SeqlangError, error
 from ..compile.pipeline import Checked
 from ..compile.timeline import PULSE, Event
 
@@ -24,7 +25,7 @@ _FIXED_TIME = (1980, 1, 1, 0, 0, 0)
 
 def sample(event: Event, sample_rate_hz: float) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
     """Sample times (s from pulse start), Rabi frequency (Hz) and phase (rad)."""
-    count = max(2, int(round(event.duration_s * sample_rate_hz)) + 1)
+    count = envelopes.sample_count(event.duration_s, sample_rate_hz)
     t = np.linspace(0.0, event.duration_s, count)
     rabi = event.rabi_hz * envelopes.envelope(event.shape, event.duration_s, t)
     return t, rabi, np.full(count, event.phase_rad)
@@ -37,6 +38,10 @@ def waveform_arrays(checked: Checked) -> dict[str, np.ndarray]:
             continue
         drive = checked.program.rig.drives[event.drive]
         t, rabi, phase = sample(event, drive.sample_rate_hz)
+        if not (np.isfinite(rabi).all() and np.isfinite(phase).all()):
+            # Last line of defence: the checks should have refused this pulse already.
+            raise SeqlangError([error("refusing to write non-finite samples into waveforms.npz "
+                                      "(this is a bug in seqlang's checks; please report it)", event.span)])
         arrays[f"event{event.index}_t_ns"] = t * 1e9
         arrays[f"event{event.index}_rabi_hz"] = rabi
         arrays[f"event{event.index}_phase_rad"] = phase

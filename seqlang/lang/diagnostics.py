@@ -6,17 +6,22 @@ tools read the fields, the command line prints them with :func:`render`.
 from __future__ import annotations
 
 import difflib
+import re
 from dataclasses import dataclass, field
-from typing import Iterable
+from typing import Iterable, NamedTuple
+
+from .source_text import split_lines
 
 ERROR = "error"
 WARNING = "warning"
 NOTE = "note"
 
 
-@dataclass(frozen=True)
-class Span:
-    """A range of source text: 1-based line/column of start and end, and offsets."""
+class Span(NamedTuple):
+    """A range of source text: 1-based line/column of start and end, and offsets.
+
+    A named tuple rather than a dataclass: a large program has millions of them, and
+    a tuple is built several times faster. It is immutable and compares by value."""
 
     file: str
     line: int
@@ -42,6 +47,13 @@ class Diagnostic:
     span: Span
     hint: str | None = None
 
+    def __post_init__(self):
+        # A name of a megabyte must not be echoed whole (by the terminal or an editor).
+        if len(self.message) > MAX_QUOTED:
+            object.__setattr__(self, "message", _shorten_quoted(self.message))
+        if self.hint is not None and len(self.hint) > MAX_QUOTED:
+            object.__setattr__(self, "hint", _shorten_quoted(self.hint))
+
     @property
     def is_error(self) -> bool:
         return self.severity == ERROR
@@ -55,6 +67,24 @@ class SeqlangError(Exception):
         super().__init__("; ".join(d.message for d in self.diagnostics))
 
 
+# Quoted names and source excerpts longer than this are shortened, saying how long they are.
+MAX_QUOTED = 80
+MAX_EXCERPT = 160
+
+
+def shorten(text: str, limit: int = MAX_QUOTED) -> str:
+    """`text` itself, or its start and end around "…" with its length, when longer than `limit`."""
+    if len(text) <= limit:
+        return text
+    keep = limit // 2
+    return f"{text[:keep]}…{text[-8:]} ({len(text):,} characters)"
+
+
+def _shorten_quoted(message: str) -> str:
+    message = re.sub(r"`([^`]{%d,})`" % (MAX_QUOTED + 1), lambda m: f"`{shorten(m.group(1))}`", message)
+    return shorten(message, 4 * MAX_QUOTED)
+
+
 def error(message: str, span: Span, hint: str | None = None) -> Diagnostic:
     return Diagnostic(ERROR, message, span, hint)
 
@@ -65,6 +95,8 @@ def warning(message: str, span: Span, hint: str | None = None) -> Diagnostic:
 
 def did_you_mean(name: str, candidates: Iterable[str]) -> str | None:
     """A "did you mean" hint for a misspelt name, or None when nothing is close."""
+    if len(name) > MAX_QUOTED:
+        return None  # nothing is close to a name that long, and comparing would be slow
     close = difflib.get_close_matches(name, sorted(set(candidates)), n=1, cutoff=0.6)
     return f"did you mean `{close[0]}`?" if close else None
 
@@ -74,15 +106,20 @@ class SourceRegistry:
     """Texts of the files read in this run, so diagnostics can quote them."""
 
     texts: dict[str, str] = field(default_factory=dict)
+    _lines: dict[str, list[str]] = field(default_factory=dict, repr=False)
 
     def add(self, path: str, text: str) -> None:
         self.texts[path] = text
+        self._lines.pop(path, None)
 
     def line(self, path: str, number: int) -> str | None:
+        """Line `number` (1-based), split exactly as the lexer counts lines."""
         text = self.texts.get(path)
         if text is None:
             return None
-        lines = text.splitlines()
+        if path not in self._lines:
+            self._lines[path] = split_lines(text)
+        lines = self._lines[path]
         return lines[number - 1] if 0 < number <= len(lines) else None
 
 
@@ -96,11 +133,34 @@ def render(diagnostic: Diagnostic, sources: SourceRegistry = SOURCES) -> str:
     text = sources.line(span.file, span.line)
     if text is not None:
         width = span.end_column - span.column if span.end_line == span.line else 1
+        text, column, width = _excerpt(text, span.column, max(1, width))
         out.append(f"  {text}")
-        out.append("  " + " " * (span.column - 1) + "^" * max(1, width))
+        out.append("  " + " " * (column - 1) + "^" * width)
     if diagnostic.hint:
         out.append(f"  hint: {diagnostic.hint}")
     return "\n".join(out)
+
+
+# Characters shown as one visible character each, so that the caret stays under its column:
+# blanks as a space, other control characters (a null byte, separators) as U+FFFD.
+_VISIBLE = {c: " " for c in "\t\f\v"}
+_VISIBLE.update({chr(c): "\ufffd" for c in list(range(32)) + list(range(0x7f, 0xa0)) + [0x2028, 0x2029]
+                 if chr(c) not in _VISIBLE})
+_VISIBLE_TABLE = str.maketrans(_VISIBLE)
+
+
+def _excerpt(text: str, column: int, width: int) -> tuple[str, int, int]:
+    """The source line as shown: invisible characters made visible, and a long line cut to a
+    window around the caret; the caret's new column and width."""
+    text = text.translate(_VISIBLE_TABLE)
+    if len(text) <= MAX_EXCERPT:
+        return text, column, width
+    width = min(width, MAX_EXCERPT // 2)
+    begin = max(0, min(column - 1 - MAX_EXCERPT // 4, len(text) - MAX_EXCERPT))
+    window = text[begin:begin + MAX_EXCERPT]
+    prefix = "…" if begin > 0 else ""
+    suffix = f"… ({len(text):,} characters)" if begin + MAX_EXCERPT < len(text) else ""
+    return prefix + window + suffix, column - begin + len(prefix), width
 
 
 def render_all(diagnostics: Iterable[Diagnostic], sources: SourceRegistry = SOURCES) -> str:

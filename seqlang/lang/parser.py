@@ -1,42 +1,86 @@
 """Parse seqlang text into the syntax tree of :mod:`seqlang.lang.syntax`.
 
 The grammar lives in ``grammar/seqlang.lark`` and ships inside the package.
-Lark's exceptions are translated here into :class:`SeqlangError`; callers
-never see lark types. Parsing stops at the first syntax error.
+Syntax nodes are built during the LALR parse itself (no intermediate lark tree):
+each grammar rule has a method of the same name on :class:`_Builder`, called
+when the parser reduces that rule, so the parse needs no recursion however
+deeply the text nests. Lark's exceptions are translated here into
+:class:`SeqlangError`; callers never see lark types. Parsing stops at the first
+syntax error.
 
 >>> parse_text("let t = 2 ns", "x.seq").items[0].name.name
 't'
 """
 from __future__ import annotations
 
+import contextlib
 import functools
-import re
+import gc
+import sys
 from importlib import resources
 
-from lark import Lark, Token, Transformer, v_args
-from lark.exceptions import UnexpectedCharacters, UnexpectedEOF, UnexpectedInput, UnexpectedToken
+from lark import Lark, Token, Transformer, Tree, v_args
+from lark.exceptions import UnexpectedInput
+# The LALR driver is lark's own; we only hand it our reduce callbacks (see _callbacks).
+from lark.parsers.lalr_analysis import Reduce
+from lark.parsers.lalr_parser import _Parser as _LalrDriver
+from lark.visitors import _vargs_meta
 
 from . import syntax as ast
+from . import source_text
 from .diagnostics import SOURCES, SeqlangError, Span, error
+from .grammar_cache import cached_lark
+from .syntax_errors import syntax_error, token_span as _token_span
+
+# Blocks (`{ }` bodies) and expression operators nest at most this deep; deeper text
+# would exhaust Python's recursion in the later passes, which walk the tree recursively.
+MAX_NESTING = 100
+# Rules whose nodes count one level of nesting.
+_NESTING_RULES = frozenset({"body", "add", "sub", "mul", "div", "pow", "neg", "with_unit", "call", "tuple",
+                            "kwtuple", "range"})
 
 
 @functools.lru_cache(maxsize=1)
 def _lark() -> Lark:
     text = resources.files("seqlang").joinpath("grammar/seqlang.lark").read_text("utf-8")
-    # cache=True keeps the built LALR tables in the temp directory, keyed by the grammar
-    # and lark version: start-up then skips rebuilding them.
-    return Lark(text, parser="lalr", propagate_positions=True, maybe_placeholders=True, cache=True)
+    # Not lark's own cache: it unpickles a file from the shared temporary directory, where
+    # a planted file could run code. Ours is JSON in a private directory (grammar_cache).
+    return cached_lark(text, lambda: Lark(text, parser="lalr", maybe_placeholders=True, cache=False))
 
 
 def parse_text(text: str, path: str) -> ast.SourceFile:
-    """Parse one file's text; raise :class:`SeqlangError` on a syntax error."""
+    """Parse one file's text; raise :class:`SeqlangError` on a syntax error.
+
+    Line ends are normalised first (see :mod:`seqlang.lang.source_text`); spans,
+    the stored text and the error printer all refer to the normalised text.
+    """
+    text = source_text.normalise(text)
     SOURCES.add(path, text)
+    lark = _lark()
+    frontend = lark.parser
+    driver = _LalrDriver(_fast_table(lark)[0], _callbacks(lark, _Builder(path)))
     try:
-        tree = _lark().parse(text)
+        with cyclic_gc_paused():
+            result = driver.parse(frontend._make_lexer_thread(text), "start")
     except UnexpectedInput as exc:
-        raise SeqlangError([_syntax_error(exc, text, path)]) from None
-    items = _Builder(path).transform(tree)
-    return ast.SourceFile(path, text, tuple(items.children))
+        raise SeqlangError([syntax_error(exc, text, path, lark)]) from None
+    return ast.SourceFile(path, text, tuple(result.value.children))
+
+
+@contextlib.contextmanager
+def cyclic_gc_paused():
+    """Pause Python's cycle collector while a large tree of (acyclic) objects is built.
+
+    Its full passes walk every live object, so with 10⁶ new nodes they would make
+    building the tree grow faster than linearly; reference counting still frees
+    everything that is dropped."""
+    was_enabled = gc.isenabled()
+    gc.disable()
+    try:
+        yield
+    finally:
+        if was_enabled:
+            gc.enable()
 
 
 def parse_file(path: str) -> ast.SourceFile:
@@ -45,101 +89,187 @@ def parse_file(path: str) -> ast.SourceFile:
         return parse_text(handle.read(), path)
 
 
-# ---- syntax errors in words -----------------------------------------------
-_WORDS = {
-    "NAME": "a name", "NUMBER": "a number", "UNIT": "a unit", "STRING": 'a quoted file name',
-    "LBRACE": "`{`", "RBRACE": "`}`", "LPAR": "`(`", "RPAR": "`)`", "COMMA": "`,`",
-    "EQUAL": "`=`", "LEVEL": "a Rydberg level such as 58S1/2", "CHANNEL": "an output such as awg1.2",
-    "KET": "a ket such as |01>", "$END": "the end of the file", "MINUS": "`-`", "PLUS": "`+`",
-    "STAR": "`*`", "SLASH": "`/`", "CIRCUMFLEX": "`^`", "PORT": "`port`",
-}
+# ---- reduce callbacks: positions, child filtering, nesting --------------------
+class _Reduced:
+    """What a reduction leaves on lark's value stack: the value and the first and last
+    token of the text it covers (None for empty rules), and its nesting depth.
+
+    It also serves as the ``meta`` of ``@v_args(meta=True)`` builder methods."""
+
+    __slots__ = ("value", "first", "last", "depth")
+
+    def __init__(self, value, first, last, depth):
+        self.value, self.first, self.last, self.depth = value, first, last, depth
+
+    @property
+    def empty(self) -> bool:
+        return self.first is None
 
 
-def _terminal_word(name: str) -> str:
-    """How to show an expected terminal; lark's anonymous ones (`..`, `->`) by their text."""
-    if name in _WORDS:
-        return _WORDS[name]
-    if name.startswith("__ANON"):
-        pattern = {t.name: t.pattern for t in _lark().terminals}.get(name)
-        if pattern is not None:
-            return "`" + re.sub(r"\\(.)", r"\1", pattern.value) + "`"
-    return f"`{name.lower()}`" if name.isupper() else name
+_DROP, _KEEP, _SPLICE = 0, 1, 2
 
 
-def _describe_expected(expected: set[str]) -> str:
-    # A missing `}` is the commonest slip: name it first so that it is never cut off.
-    words = sorted({_terminal_word(t) for t in expected}, key=lambda w: (w != "`}`", w))
-    if len(words) > 6:
-        words = words[:6] + ["..."]
-    return ", ".join(words)
+def _callbacks(lark: Lark, builder: "_Builder") -> dict:
+    """One callback per grammar rule, as lark's LALR driver expects them."""
+    return {rule: _reducer(plan, builder) for rule, plan in _plans(lark)}
 
 
-def _syntax_error(exc: UnexpectedInput, text: str, path: str):
-    line, column = exc.line if exc.line > 0 else 1, exc.column if exc.column > 0 else 1
-    if isinstance(exc, UnexpectedCharacters):
-        char = text[exc.pos_in_stream] if exc.pos_in_stream < len(text) else "?"
-        span = Span(path, line, column, line, column + 1, exc.pos_in_stream, exc.pos_in_stream + 1)
-        return error(f"unexpected character `{char}`", span, _char_hint(char))
-    if isinstance(exc, UnexpectedEOF) or (isinstance(exc, UnexpectedToken) and exc.token.type == "$END"):
-        last = text.rstrip().splitlines() or [""]
-        # The caret goes just after the last character: that is where something is missing.
-        span = Span(path, len(last), len(last[-1]) + 1, len(last), len(last[-1]) + 2)
-        expected = getattr(exc, "accepts", None) or getattr(exc, "expected", None) or set()
-        hint = "a closing `}` is probably missing" if "RBRACE" in expected else None
-        return error(f"unexpected end of file; expected {_describe_expected(set(expected))}", span, hint)
-    token = exc.token
-    span = _token_span(token, path)
-    expected = set(exc.accepts or exc.expected)
-    return error(f"unexpected {_token_words(token)}; expected {_describe_expected(expected)}",
-                 span, _token_hint(token, expected))
+class _TableRule:
+    """A rule as lark's LALR driver reads it from the table (``origin.name``, ``expansion``),
+    hashed and compared by identity: lark's own Rule and Token objects compare in Python
+    code, which the driver would call at every step."""
+
+    __slots__ = ("origin", "expansion")
+
+    def __init__(self, rule):
+        self.origin = _Name(sys.intern(str(rule.origin.name)))
+        self.expansion = rule.expansion
 
 
-def _token_words(token: Token) -> str:
-    if token.type in ("NAME", "NUMBER", "UNIT", "STRING", "LEVEL", "CHANNEL", "KET"):
-        # "a number `7`" reads wrongly after "unexpected": drop the article.
-        noun = _WORDS[token.type].split(" such")[0].removeprefix("a ").removeprefix("an ")
-        return f"{noun} `{token}`"
-    return f"`{token}`"
+class _Name:
+    __slots__ = ("name",)
+
+    def __init__(self, name: str):
+        self.name = name
 
 
-def _char_hint(char: str) -> str | None:
-    if char == "'":
-        return 'file names are written in double quotes, e.g. "lab.rig"'
-    if char in ";":
-        return "statements need no separator; put the next one after a space or on a new line"
-    return None
+class _Table:
+    """The parts of a parse table the driver reads, with plain-string keys."""
+
+    __slots__ = ("states", "start_states", "end_states")
+
+    def __init__(self, states, start_states, end_states):
+        self.states, self.start_states, self.end_states = states, start_states, end_states
 
 
-def _token_hint(token: Token, expected: set[str]) -> str | None:
-    if token.type == "NUMBER" and "NAME" in expected:
-        return "a name must start with a letter or `_`"
-    if token.type == "UNIT" and "NAME" in expected:
-        return f"`{token}` is a unit and cannot be used as a name here"
-    if "RBRACE" in expected and token.type in ("RIG", "SEQUENCE", "BLOCK", "SITE", "USE"):
-        return "a closing `}` is probably missing before this"
-    return None
+@functools.lru_cache(maxsize=1)
+def _fast_table(lark: Lark) -> tuple[_Table, dict]:
+    """Lark's parse table with plain keys, and the map from lark's rules to its rules."""
+    table = lark.parser.parser._parse_table
+    rules: dict = {}
+    for actions in table.states.values():
+        for action, arg in actions.values():
+            if action is Reduce and arg not in rules:
+                rules[arg] = _TableRule(arg)
+    states = {state: {sys.intern(str(symbol)): (action, rules[arg] if action is Reduce else arg)
+                      for symbol, (action, arg) in actions.items()}
+              for state, actions in table.states.items()}
+    return _Table(states, dict(table.start_states), dict(table.end_states)), rules
 
 
-def _token_span(token: Token, path: str) -> Span:
-    end_line = token.end_line or token.line
-    end_column = token.end_column or token.column + len(token)
-    return Span(path, token.line, token.column, end_line, end_column,
-                token.start_pos or 0, token.end_pos or 0)
+@functools.lru_cache(maxsize=1)
+def _plans(lark: Lark) -> tuple:
+    """Per rule: its name, what to do with each symbol, placeholders, and how to build it."""
+    plans = []
+    table_rules = _fast_table(lark)[1]
+    for rule in lark.rules:
+        if rule not in table_rules:
+            continue  # a rule the parser never reduces
+        name = rule.alias or rule.origin.name
+        modes = [_DROP if sym.is_term and sym.filter_out
+                 else _SPLICE if (not sym.is_term and sym.name.startswith("_")) else _KEEP
+                 for sym in rule.expansion]
+        nones = _placeholders(rule)
+        kind = "splice" if name.startswith("_") else \
+            "expand1" if rule.options.expand1 and not rule.alias else "node"
+        plans.append((table_rules[rule], (name, tuple(modes), nones, kind, name in _NESTING_RULES)))
+    return tuple(plans)
+
+
+def _placeholders(rule) -> tuple[int, ...]:
+    """How many `None`s stand before each kept symbol (and at the end) for missing `[optional]`s."""
+    empty = rule.options.empty_indices
+    if not empty:
+        return ()
+    runs = [len(ones) for ones in "".join(str(int(b)) for b in empty).split("0")]
+    return tuple(runs)
+
+
+def _reducer(plan, builder: "_Builder"):
+    name, modes, nones, kind, deepens = plan
+    method = _builder_method(builder, name) if kind != "splice" else None
+    if kind == "expand1" and modes == (_KEEP,) and not nones:
+        return _pass_through          # `?rule: other`, the commonest reduction: nothing to do
+    steps = tuple(enumerate(modes))
+
+    def reduce(children):
+        first = last = None
+        for child in children:
+            first = child if child.__class__ is Token else child.first
+            if first is not None:
+                break
+        for child in reversed(children):
+            last = child if child.__class__ is Token else child.last
+            if last is not None:
+                break
+        values, depth = [], 0
+        for index, mode in steps:
+            if nones and nones[index]:
+                values.extend([None] * nones[index])
+            if mode is _DROP:
+                continue
+            child = children[index]
+            if child.__class__ is Token:
+                values.append(child)
+                continue
+            if mode is _SPLICE:
+                if values:
+                    values.extend(child.value)
+                else:  # a left-recursive list (`x*`): grow the child's own list, as lark does
+                    values = child.value
+            else:
+                values.append(child.value)
+            if child.depth > depth:
+                depth = child.depth
+        if nones and nones[-1]:
+            values.extend([None] * nones[-1])
+        if kind == "splice":
+            return _Reduced(values, first, last, depth)
+        if kind == "expand1" and len(values) == 1:
+            return _Reduced(values[0], first, last, depth)
+        out = _Reduced(None, first, last, depth + deepens)
+        if deepens and out.depth > MAX_NESTING:
+            raise SeqlangError([error(f"this nests more than {MAX_NESTING} levels deep (blocks and "
+                                      "operators inside each other)", builder._span(out),
+                                      "split it with `let` constants or `block`s")])
+        out.value = method(out, values) if method is not None else Tree(name, values)
+        return out
+
+    return reduce
+
+
+def _pass_through(children):
+    return children[0]
+
+
+def _builder_method(builder: "_Builder", name: str):
+    """The builder's method for a rule, called as ``method(meta, children)``; None if it has none."""
+    raw = getattr(type(builder), name, None)
+    if raw is None:
+        return None
+    if getattr(raw, "visit_wrapper", None) is _vargs_meta:
+        return raw.base_func.__get__(builder)
+    bound = getattr(builder, name)
+    return lambda meta, children: bound(children)
 
 
 # ---- the Transformer: builds nodes, checks nothing --------------------------
 class _Builder(Transformer):
-    """Turns lark's tree into :mod:`syntax` nodes, attaching spans."""
+    """Builds :mod:`syntax` nodes, one method per grammar rule (named after the rule or
+    its ``-> alias``), called with the rule's children: tokens, values of inner rules
+    and ``None`` for a missing ``[optional]``. ``@v_args(meta=True)`` methods also get
+    the extent, which ``self._span(meta)`` turns into a :class:`Span`."""
 
     def __init__(self, path: str):
         super().__init__()
         self.path = path
 
-    def _span(self, meta) -> Span:
-        if getattr(meta, "empty", True):
+    def _span(self, meta: _Reduced) -> Span:
+        first, last = meta.first, meta.last
+        if first is None:
             return Span(self.path, 1, 1, 1, 1)
-        return Span(self.path, meta.line, meta.column, meta.end_line, meta.end_column,
-                    meta.start_pos, meta.end_pos)
+        return Span(self.path, first.line, first.column, last.end_line, last.end_column,
+                    first.start_pos, last.end_pos)
 
     def _ident(self, token: Token) -> ast.Ident:
         return ast.Ident(str(token), _token_span(token, self.path))

@@ -1,7 +1,9 @@
 """Syntax tree: what the user wrote, one frozen dataclass per construct.
 
 Every node carries its :class:`~seqlang.lang.diagnostics.Span`. Nothing here is
-checked yet: names, units and kinds of values are the resolver's job.
+checked yet: names, units and kinds of values are the resolver's job. Nodes have
+``__slots__`` (``@node``): a generated program has millions of them, and a node
+without a ``__dict__`` takes a third of the memory.
 """
 from __future__ import annotations
 
@@ -10,8 +12,10 @@ from typing import Union
 
 from .diagnostics import Span
 
+node = dataclass(frozen=True, slots=True)
 
-@dataclass(frozen=True)
+
+@node
 class Ident:
     """A name as written, with where it was written."""
 
@@ -20,7 +24,7 @@ class Ident:
 
 
 # ---- expressions ----------------------------------------------------------
-@dataclass(frozen=True)
+@node
 class Number:
     """A literal number."""
 
@@ -28,7 +32,7 @@ class Number:
     span: Span
 
 
-@dataclass(frozen=True)
+@node
 class UnitRef:
     """A bare unit used as a value, e.g. ``pi`` in ``pi/2``."""
 
@@ -36,7 +40,7 @@ class UnitRef:
     span: Span
 
 
-@dataclass(frozen=True)
+@node
 class NameRef:
     """A reference to a constant, parameter or keyword value (``all``, ``clock``)."""
 
@@ -44,7 +48,7 @@ class NameRef:
     span: Span
 
 
-@dataclass(frozen=True)
+@node
 class WithUnit:
     """An expression followed by a unit: ``22 kHz``, ``(0, 5) um``."""
 
@@ -54,7 +58,7 @@ class WithUnit:
     unit_span: Span
 
 
-@dataclass(frozen=True)
+@node
 class BinOp:
     """``left op right`` for op in + - * / ^."""
 
@@ -64,7 +68,7 @@ class BinOp:
     span: Span
 
 
-@dataclass(frozen=True)
+@node
 class Neg:
     """Unary minus."""
 
@@ -72,7 +76,7 @@ class Neg:
     span: Span
 
 
-@dataclass(frozen=True)
+@node
 class Arg:
     """A call or ``do`` argument, positional (name None) or by keyword."""
 
@@ -81,7 +85,7 @@ class Arg:
     span: Span
 
 
-@dataclass(frozen=True)
+@node
 class Call:
     """``name(args)``: a function such as ``sqrt`` or an envelope such as ``gaussian``."""
 
@@ -90,7 +94,7 @@ class Call:
     span: Span
 
 
-@dataclass(frozen=True)
+@node
 class TupleExpr:
     """``(a, b, c)``, for coordinates."""
 
@@ -98,7 +102,7 @@ class TupleExpr:
     span: Span
 
 
-@dataclass(frozen=True)
+@node
 class RangeExpr:
     """``lo .. hi``."""
 
@@ -107,7 +111,7 @@ class RangeExpr:
     span: Span
 
 
-@dataclass(frozen=True)
+@node
 class LevelExpr:
     """A Rydberg level written as ``58S1/2``."""
 
@@ -115,7 +119,7 @@ class LevelExpr:
     span: Span
 
 
-@dataclass(frozen=True)
+@node
 class ChannelExpr:
     """A sequencer output written as ``awg1.2`` or ``ttl.4``."""
 
@@ -123,7 +127,7 @@ class ChannelExpr:
     span: Span
 
 
-@dataclass(frozen=True)
+@node
 class StatePair:
     """``(F=1, mF=0) <-> (F=2, mF=0)``: an explicit hyperfine qubit."""
 
@@ -136,7 +140,7 @@ Expr = Union[Number, UnitRef, NameRef, WithUnit, BinOp, Neg, Call, TupleExpr,
              RangeExpr, LevelExpr, ChannelExpr, StatePair]
 
 
-@dataclass(frozen=True)
+@node
 class Prop:
     """``key value`` inside braces or after a statement."""
 
@@ -146,7 +150,7 @@ class Prop:
 
 
 # ---- the rig --------------------------------------------------------------
-@dataclass(frozen=True)
+@node
 class SpeciesDecl:
     """``species na = Na23 { ... }``."""
 
@@ -156,7 +160,7 @@ class SpeciesDecl:
     span: Span
 
 
-@dataclass(frozen=True)
+@node
 class DriveDecl:
     """``drive ryd_na rydberg na { ... }``."""
 
@@ -167,7 +171,7 @@ class DriveDecl:
     span: Span
 
 
-@dataclass(frozen=True)
+@node
 class ImageDecl:
     """``image cs { ... }``: the imaging of one species."""
 
@@ -176,7 +180,7 @@ class ImageDecl:
     span: Span
 
 
-@dataclass(frozen=True)
+@node
 class PortDecl:
     """``port shutter = ttl.7 { ... }``: a plain lab output."""
 
@@ -186,7 +190,7 @@ class PortDecl:
     span: Span
 
 
-@dataclass(frozen=True)
+@node
 class LetStmt:
     """``let name = expr``."""
 
@@ -195,7 +199,7 @@ class LetStmt:
     span: Span
 
 
-@dataclass(frozen=True)
+@node
 class RigDef:
     """``rig name { ... }``; settings are the bare ``key value`` lines."""
 
@@ -210,7 +214,7 @@ class RigDef:
 
 
 # ---- the array and the sequence -------------------------------------------
-@dataclass(frozen=True)
+@node
 class SiteStmt:
     """``site d = na at (0, 0) um``."""
 
@@ -220,7 +224,7 @@ class SiteStmt:
     span: Span
 
 
-@dataclass(frozen=True)
+@node
 class GroupStmt:
     """``group pair = d, h``."""
 
@@ -229,7 +233,7 @@ class GroupStmt:
     span: Span
 
 
-@dataclass(frozen=True)
+@node
 class PulseStmt:
     """``pulse drive [on targets] key value ...``."""
 
@@ -239,7 +243,7 @@ class PulseStmt:
     span: Span
 
 
-@dataclass(frozen=True)
+@node
 class WaitStmt:
     """``wait duration``."""
 
@@ -247,7 +251,7 @@ class WaitStmt:
     span: Span
 
 
-@dataclass(frozen=True)
+@node
 class TogetherStmt:
     """``together [align start|end|center] { ... }``."""
 
@@ -256,7 +260,7 @@ class TogetherStmt:
     span: Span
 
 
-@dataclass(frozen=True)
+@node
 class RepeatStmt:
     """``repeat count { ... }``."""
 
@@ -265,7 +269,7 @@ class RepeatStmt:
     span: Span
 
 
-@dataclass(frozen=True)
+@node
 class DoStmt:
     """``do block(args)``."""
 
@@ -274,7 +278,7 @@ class DoStmt:
     span: Span
 
 
-@dataclass(frozen=True)
+@node
 class ImageStmt:
     """``image species -> record``."""
 
@@ -284,7 +288,7 @@ class ImageStmt:
     span: Span
 
 
-@dataclass(frozen=True)
+@node
 class SwitchStmt:
     """``switch port on|off``."""
 
@@ -293,7 +297,7 @@ class SwitchStmt:
     span: Span
 
 
-@dataclass(frozen=True)
+@node
 class SetStmt:
     """``set port value``."""
 
@@ -302,7 +306,7 @@ class SetStmt:
     span: Span
 
 
-@dataclass(frozen=True)
+@node
 class TriggerStmt:
     """``trigger port [width ...]``: a short digital pulse."""
 
@@ -336,7 +340,7 @@ Stmt = Union[PulseStmt, WaitStmt, TogetherStmt, RepeatStmt, DoStmt, ImageStmt,
              SwitchStmt, SetStmt, TriggerStmt, LetStmt, FieldStmt, MoveStmt]
 
 
-@dataclass(frozen=True)
+@node
 class Param:
     """A block parameter with an optional default."""
 
@@ -345,7 +349,7 @@ class Param:
     span: Span
 
 
-@dataclass(frozen=True)
+@node
 class BlockDef:
     """``block name(params) { ... }``."""
 
@@ -355,7 +359,7 @@ class BlockDef:
     span: Span
 
 
-@dataclass(frozen=True)
+@node
 class SequenceDef:
     """``sequence name { ... }``."""
 
@@ -364,7 +368,7 @@ class SequenceDef:
     span: Span
 
 
-@dataclass(frozen=True)
+@node
 class ExpectStmt:
     """``expect d, h as phi_plus`` or ``expect d, h as |01>``."""
 
@@ -374,7 +378,7 @@ class ExpectStmt:
     span: Span
 
 
-@dataclass(frozen=True)
+@node
 class UseStmt:
     """``use "file.rig"``."""
 
@@ -382,7 +386,7 @@ class UseStmt:
     span: Span
 
 
-@dataclass(frozen=True)
+@node
 class ImportStmt:
     """``import "file.seq"``: blocks and constants of another file."""
 
@@ -394,7 +398,7 @@ Item = Union[UseStmt, ImportStmt, RigDef, LetStmt, SiteStmt, GroupStmt, BlockDef
              SequenceDef, ExpectStmt]
 
 
-@dataclass(frozen=True)
+@node
 class SourceFile:
     """One parsed file: its path, text and top-level items in order."""
 

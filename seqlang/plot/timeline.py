@@ -52,8 +52,7 @@ def _draw_event(ax, checked: Checked, e, row: int, scale: float) -> None:
 
 
 def _save(fig, path: str) -> None:
-    import io
-    buffer = io.BytesIO()
-    fig.savefig(buffer, format="png", dpi=110, metadata={"Software": None})
+    from .formats import figure_bytes
+    data = figure_bytes(fig, path)
     plt.close(fig)
-    write_bytes(path, buffer.getvalue())
+    write_bytes(path, data)

@@ -8,6 +8,7 @@
 from __future__ import annotations
 
 import math
+import sys
 from dataclasses import dataclass, field
 from typing import Callable
 
@@ -56,6 +57,13 @@ class Scope:
         return Scope({}, self)
 
 
+# The largest finite float; results beyond it are refused where they arise.
+FLOAT_MAX = sys.float_info.max
+TOO_LARGE = f"(beyond ±{FLOAT_MAX:.2g}, the largest number a float holds)".replace("e+", "e")
+# Whole powers of a quantity with units stay within this, so dimensions stay readable.
+MAX_UNIT_POWER = 12
+
+
 def _unary(fn: Callable[[float], float], angle_in: bool = False):
     def apply(q: Quantity, span: Span) -> Quantity:
         allowed = (DIMENSIONLESS, units.ANGLE) if angle_in else (DIMENSIONLESS,)
@@ -63,6 +71,25 @@ def _unary(fn: Callable[[float], float], angle_in: bool = False):
             raise EvalError(error(f"expected a plain number, got {q.kind}", span))
         return Quantity(fn(q.value))
     return apply
+
+
+def _exp(q: Quantity, span: Span) -> Quantity:
+    if q.dim != DIMENSIONLESS:
+        raise EvalError(error(f"expected a plain number, got {q.kind}", span))
+    if q.value > math.log(FLOAT_MAX):
+        raise EvalError(error(f"exp({q.value:.6g}) is too large {TOO_LARGE}", span,
+                              f"the argument of `exp` must be below {math.log(FLOAT_MAX):.6g}"))
+    return Quantity(math.exp(q.value))
+
+
+def _log(q: Quantity, span: Span) -> Quantity:
+    if q.dim != DIMENSIONLESS:
+        raise EvalError(error(f"expected a plain number, got {q.kind}", span))
+    if q.value == 0:
+        raise EvalError(error("the logarithm of zero is minus infinity", span))
+    if q.value < 0:
+        raise EvalError(error("the logarithm of a negative value is not a real number", span))
+    return Quantity(math.log(q.value))
 
 
 def _sqrt(q: Quantity, span: Span) -> Quantity:
@@ -76,7 +103,7 @@ def _sqrt(q: Quantity, span: Span) -> Quantity:
 FUNCTIONS = {
     "sqrt": _sqrt,
     "sin": _unary(math.sin, True), "cos": _unary(math.cos, True), "tan": _unary(math.tan, True),
-    "exp": _unary(math.exp), "log": _unary(math.log),
+    "exp": _exp, "log": _log,
     "abs": lambda q, span: Quantity(abs(q.value), q.dim),
 }
 
@@ -94,10 +121,23 @@ def evaluate_any(expr: ast.Expr, scope: Scope) -> object:
     handler = _HANDLERS.get(type(expr))
     if handler is None:
         raise EvalError(error("this is not a value that can be computed", expr.span))
-    return handler(expr, scope)
+    value = handler(expr, scope)
+    if isinstance(value, Quantity):
+        _require_finite(value, expr)
+    return value
+
+
+def _require_finite(q: Quantity, expr: ast.Expr) -> None:
+    """Last check on every sub-expression: a finite real number, or an error at its span."""
+    if isinstance(q.value, complex):
+        raise EvalError(error("this value is not a real number", expr.span))
+    if not math.isfinite(q.value):
+        raise EvalError(error(f"this value is not a finite number {TOO_LARGE}", expr.span))
 
 
 def _number(expr: ast.Number, scope: Scope) -> Quantity:
+    if not math.isfinite(expr.value):
+        raise EvalError(error(f"this number is too large {TOO_LARGE}", expr.span))
     return Quantity(expr.value)
 
 
@@ -118,12 +158,23 @@ def _with_unit(expr: ast.WithUnit, scope: Scope) -> object:
     factor, dim = units.UNITS[expr.unit]
     operand = evaluate_any(expr.operand, scope)
     if isinstance(operand, tuple):
-        return tuple(q * Quantity(factor, dim) for q in operand)
+        return tuple(_in_range(q * Quantity(factor, dim), f"this value in {expr.unit}", expr.span)
+                     for q in operand)
     if not isinstance(operand, Quantity):
         raise EvalError(error(f"a unit cannot follow {_what(operand)}", expr.span))
     if operand.dim != DIMENSIONLESS:
         raise EvalError(error(f"`{expr.unit}` follows a value that already has units", expr.unit_span))
-    return operand * Quantity(factor, dim)
+    return _in_range(operand * Quantity(factor, dim), f"this value in {expr.unit}", expr.span)
+
+
+def _in_range(q: Quantity, what: str, span: Span) -> Quantity:
+    """`q` if finite; else an error naming the operation that overflowed."""
+    if not math.isfinite(q.value):
+        raise EvalError(error(f"{what} is too large {TOO_LARGE}", span))
+    return q
+
+
+_OPERATION = {"+": "sum", "-": "difference", "*": "product", "/": "quotient"}
 
 
 def _binop(expr: ast.BinOp, scope: Scope) -> Quantity:
@@ -132,26 +183,39 @@ def _binop(expr: ast.BinOp, scope: Scope) -> Quantity:
         if left.dim != right.dim:
             raise EvalError(error(f"cannot {'add' if expr.op == '+' else 'subtract'} "
                                   f"{right.kind} and {left.kind}", expr.span))
-        return left + right if expr.op == "+" else left - right
-    if expr.op == "*":
-        return left * right
-    if expr.op == "/":
+        result = left + right if expr.op == "+" else left - right
+    elif expr.op == "*":
+        result = left * right
+    elif expr.op == "/":
         if right.value == 0:
             raise EvalError(error("division by zero", expr.right.span))
-        return left / right
-    return _power(left, right, expr)
+        result = left / right
+    else:
+        return _power(left, right, expr)
+    return _in_range(result, f"this {_OPERATION[expr.op]}", expr.span)
 
 
 def _power(base: Quantity, exponent: Quantity, expr: ast.BinOp) -> Quantity:
     if exponent.dim != DIMENSIONLESS:
         raise EvalError(error(f"an exponent must be a plain number, got {exponent.kind}", expr.right.span))
+    whole = exponent.value == int(exponent.value)
+    if base.dim != DIMENSIONLESS and whole and abs(exponent.value) > MAX_UNIT_POWER:
+        raise EvalError(error(f"a quantity with units can be raised to powers from -{MAX_UNIT_POWER} "
+                              f"to {MAX_UNIT_POWER} only", expr.right.span))
+    if base.value < 0 and not whole:
+        raise EvalError(error("a negative number to a fractional power is not a real number", expr.span))
+    if base.value == 0 and exponent.value < 0:
+        raise EvalError(error("zero to a negative power is infinite (a division by zero)", expr.span))
     try:
-        return base.power(exponent.value)
-    except (ValueError, OverflowError) as exc:
+        result = base.power(exponent.value)
+    except ValueError as exc:
         raise EvalError(error(str(exc), expr.span)) from None
+    except OverflowError:
+        raise EvalError(error(f"this power is too large {TOO_LARGE}", expr.span)) from None
+    return _in_range(result, "this power", expr.span)
 
 
-def _neg(expr: ast.Neg, scope: Scope) -> Quantity:
+def _neg(expr: ast.Neg, scope: Scope) -> Quantity:  # finite in, finite out
     return -evaluate(expr.operand, scope)
 
 

@@ -47,7 +47,8 @@ def read_props(props: tuple[ast.Prop, ...], schema: dict[str, Key], scope: Scope
             values[key] = schema[key].reader(prop.value, scope)
         except EvalError as exc:
             diags.append(_naming_key(exc.diagnostic, key))
-            values[key] = None
+            # The default keeps later checks working on a number, never on None.
+            values[key] = schema[key].default
     for key, spec in schema.items():
         if key not in values:
             if spec.required:

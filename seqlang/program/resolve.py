@@ -13,8 +13,9 @@ from typing import Mapping
 
 from ..lang import syntax as ast
 from ..lang import units
-from ..lang.diagnostics import ERROR, Diagnostic, SeqlangError, Span, did_you_mean, error
+from ..lang.diagnostics import ERROR, SOURCES, Diagnostic, SeqlangError, Span, did_you_mean, error
 from ..lang.parser import parse_text
+from . import includes
 from .evaluate import EvalError, Scope, evaluate, evaluate_any, expect_kind
 from .model import Expectation, Program, Rig, SerialOp, Site
 from .sequence import SequenceResolver
@@ -43,7 +44,9 @@ def resolve(path: str, sources: Mapping[str, str] | None = None) -> tuple[Progra
     """
     diags: list[Diagnostic] = []
     loaded = _load(path, diags, sources or {})
-    program = _resolve_loaded(loaded, diags)
+    failed: set[str] = set()
+    program = _resolve_loaded(loaded, diags, failed)
+    diags = _without_knock_ons(diags, failed)
     errors = [d for d in diags if d.severity == ERROR]
     if errors or program is None:
         raise SeqlangError(diags)
@@ -54,6 +57,13 @@ def _read(path: str, span: Span | None, hashes: dict[str, str], diags: list[Diag
           sources: Mapping[str, str]) -> ast.SourceFile | None:
     try:
         raw = sources[path].encode("utf-8") if path in sources else _read_bytes(path)
+    except includes.FileRefused as exc:
+        diags.append(error(str(exc), span or Span(path, 1, 1, 1, 1)))
+        return None
+    except ValueError:  # a path holding a null byte
+        diags.append(error("this file name holds a character that no file name can hold",
+                           span or Span(path, 1, 1, 1, 1)))
+        return None
     except OSError as exc:
         where = span or Span(path, 1, 1, 1, 1)
         diags.append(error(f"cannot read `{path}`: {exc.strerror or exc}", where))
@@ -69,8 +79,7 @@ def _read(path: str, span: Span | None, hashes: dict[str, str], diags: list[Diag
 
 
 def _read_bytes(path: str) -> bytes:
-    with open(path, "rb") as handle:
-        return handle.read()
+    return includes.read_source(path)
 
 
 def _load(path: str, diags: list[Diagnostic], sources: Mapping[str, str]) -> Loaded | None:
@@ -80,7 +89,7 @@ def _load(path: str, diags: list[Diagnostic], sources: Mapping[str, str]) -> Loa
         raise SeqlangError(diags)
     loaded = Loaded(main, hashes=hashes, sources=sources)
     _load_rig(loaded, diags)
-    _load_imports(main, loaded, set(), 0, diags)
+    _load_imports(main, loaded, set(), (), diags)
     if any(d.severity == ERROR for d in diags):
         raise SeqlangError(diags)
     return loaded
@@ -97,6 +106,10 @@ def _load_rig(loaded: Loaded, diags: list[Diagnostic]) -> None:
         diags.append(error("a sequence uses one rig; this is a second `use`", extra.span))
     if uses:
         rig_path = _relative(loaded.main.path, uses[0].path)
+        refusal = includes.refusal(loaded.main.path, uses[0].path, rig_path, (".rig",))
+        if refusal:
+            diags.append(error(refusal, uses[0].span))
+            return
         rig_file = _read(rig_path, uses[0].span, loaded.hashes, diags, loaded.sources)
         local += [i for i in rig_file.items if isinstance(i, ast.RigDef)] if rig_file else []
         if rig_file is not None and not any(isinstance(i, ast.RigDef) for i in rig_file.items):
@@ -109,23 +122,45 @@ def _load_rig(loaded: Loaded, diags: list[Diagnostic]) -> None:
         loaded.rig_path = loaded.rig_path or loaded.main.path
 
 
-def _load_imports(source: ast.SourceFile, loaded: Loaded, seen: set[str], depth: int,
+def _load_imports(source: ast.SourceFile, loaded: Loaded, seen: set[str], chain: tuple[str, ...],
                   diags: list[Diagnostic]) -> None:
+    """Read what `source` imports, depth first; `chain` is the path of imports to it."""
+    chain = chain or (source.path,)
     for stmt in (i for i in source.items if isinstance(i, ast.ImportStmt)):
         target = _relative(source.path, stmt.path)
+        refusal = includes.refusal(loaded.main.path, stmt.path, target, (".seq",))
+        if refusal:
+            diags.append(error(refusal, stmt.span))
+            continue
+        real_chain = [os.path.realpath(p) for p in chain]
+        if os.path.realpath(target) in real_chain:
+            start = real_chain.index(os.path.realpath(target))
+            loop = " imports ".join(f"`{p}`" for p in chain[start:] + (target,))
+            diags.append(error(f"import cycle: {loop}", stmt.span))
+            continue
         if target in seen or target == loaded.main.path:
             continue
-        if depth > MAX_IMPORT_DEPTH:
-            diags.append(error("imports nest too deeply (a cycle?)", stmt.span))
+        if len(chain) > MAX_IMPORT_DEPTH:
+            diags.append(error(f"imports nest more than {MAX_IMPORT_DEPTH} files deep", stmt.span))
             return
         seen.add(target)
         imported = _read(target, stmt.span, loaded.hashes, diags, loaded.sources)
         if imported is not None:
             loaded.imports.append(imported)
-            _load_imports(imported, loaded, seen, depth + 1, diags)
+            _load_imports(imported, loaded, seen, chain + (target,), diags)
 
 
-def _resolve_loaded(loaded: Loaded, diags: list[Diagnostic]) -> Program | None:
+def _without_knock_ons(diags: list[Diagnostic], failed: set[str]) -> list[Diagnostic]:
+    """Drop "unknown ..." errors about a site or constant whose own declaration already failed."""
+    if not failed:
+        return diags
+    def knock_on(d: Diagnostic) -> bool:
+        text = SOURCES.texts.get(d.span.file, "")
+        return d.message.startswith("unknown ") and text[d.span.start:d.span.end] in failed
+    return [d for d in diags if not knock_on(d)]
+
+
+def _resolve_loaded(loaded: Loaded, diags: list[Diagnostic], failed: set[str]) -> Program | None:
     from .rig import resolve_rig
     scope = Scope()
     if loaded.rig is None:
@@ -134,8 +169,8 @@ def _resolve_loaded(loaded: Loaded, diags: list[Diagnostic]) -> Program | None:
         return None
     rig = resolve_rig(loaded.rig, loaded.rig_path, scope, diags)
     files = loaded.imports + [loaded.main]
-    _bind_lets(files, scope, diags)
-    sites = _sites(loaded.main, rig, scope, diags)
+    _bind_lets(files, scope, diags, failed)
+    sites = _sites(loaded.main, rig, scope, diags, failed)
     groups = _groups(loaded.main, sites, diags)
     blocks = _blocks(files, diags)
     sequences = [i for i in loaded.main.items if isinstance(i, ast.SequenceDef)]
@@ -145,12 +180,12 @@ def _resolve_loaded(loaded: Loaded, diags: list[Diagnostic]) -> Program | None:
     resolver = SequenceResolver(rig, sites, groups, blocks, diags)
     body = resolver.resolve_body(sequences[0].body, scope, sequences[0].span) if sequences \
         else SerialOp((), Span(loaded.main.path, 1, 1, 1, 1))
-    expects = _expects(loaded.main, sites, groups, diags)
+    expects = _expects(loaded.main, sites, groups, diags, failed)
     return Program(name, loaded.main.path, rig, sites, groups, body, expects,
                    dict(sorted(loaded.hashes.items())), dict(scope.values))
 
 
-def _bind_lets(files, scope: Scope, diags: list[Diagnostic]) -> None:
+def _bind_lets(files, scope: Scope, diags: list[Diagnostic], failed: set[str]) -> None:
     for source in files:
         for let in (i for i in source.items if isinstance(i, ast.LetStmt)):
             if let.name.name in units.UNITS:
@@ -160,9 +195,11 @@ def _bind_lets(files, scope: Scope, diags: list[Diagnostic]) -> None:
                 scope.values[let.name.name] = evaluate(let.value, scope)
             except EvalError as exc:
                 diags.append(exc.diagnostic)
+                failed.add(let.name.name)
 
 
-def _sites(source: ast.SourceFile, rig: Rig, scope: Scope, diags: list[Diagnostic]) -> dict[str, Site]:
+def _sites(source: ast.SourceFile, rig: Rig, scope: Scope, diags: list[Diagnostic],
+           failed: set[str]) -> dict[str, Site]:
     sites: dict[str, Site] = {}
     for stmt in (i for i in source.items if isinstance(i, ast.SiteStmt)):
         if stmt.name.name in sites:
@@ -177,6 +214,8 @@ def _sites(source: ast.SourceFile, rig: Rig, scope: Scope, diags: list[Diagnosti
         position = _position(stmt.position, scope, diags)
         if position is not None:
             sites[stmt.name.name] = Site(stmt.name.name, stmt.species.name, position, stmt.span)
+        else:
+            failed.add(stmt.name.name)
     _check_distinct_positions(sites, diags)
     return sites
 
@@ -249,9 +288,12 @@ def _blocks(files, diags: list[Diagnostic]) -> dict[str, ast.BlockDef]:
     return blocks
 
 
-def _expects(source: ast.SourceFile, sites, groups, diags: list[Diagnostic]) -> tuple[Expectation, ...]:
+def _expects(source: ast.SourceFile, sites, groups, diags: list[Diagnostic],
+             failed: set[str]) -> tuple[Expectation, ...]:
     out = []
     for stmt in (i for i in source.items if isinstance(i, ast.ExpectStmt)):
+        if any(ident.name in failed for ident in stmt.sites):
+            continue  # a site whose declaration failed: its own error says enough
         names = []
         for ident in stmt.sites:
             if ident.name in sites:

@@ -268,6 +268,8 @@ def _legs(v: dict, decl: ast.DriveDecl, sp: Species | None, diags: list[Diagnost
                            f"`{decl.species.name}`", decl.species.span, "add `rydberg 58S1/2` to the species"))
     if v["lower_wavelength"] is None or v["upper_wavelength"] is None:
         return None
+    if sp is not None and sp.rydberg is not None:
+        diags += _check_leg_wavelengths(v["lower_wavelength"], v["upper_wavelength"], sp, v["__spans__"])
     return Legs(v["lower_wavelength"], v["upper_wavelength"], v["intermediate"] or math.inf,
                 v["geometry"] == "counter", v["lower_rabi"], v["upper_rabi"])
 
@@ -311,3 +313,52 @@ def _port_extra(decl: ast.PortDecl, v: dict, diags: list[Diagnostic]) -> dict:
     if isinstance(extra.get("steers"), ast.NameRef):
         extra["steers"] = extra["steers"].name
     return extra
+
+
+# ---- leg wavelengths against the species' lines ------------------------------
+LOWER_LEG_RTOL = 0.005  # the lower leg sits within 0.5 % of a first-step line (intermediate detunings are GHz)
+LADDER_SUM_RTOL = 0.01  # the two photons add up to the Rydberg level within 1 %
+SPEED_OF_LIGHT = 299_792_458.0  # m/s, exact (SI)
+
+
+def _check_leg_wavelengths(lower_m: float, upper_m: float, sp: Species, spans: dict) -> list[Diagnostic]:
+    """Legs that cannot belong to this species' ladder to its declared Rydberg level.
+
+    Level energies from the alkali Rydberg calculator (ARC ``getEnergy``, cached on
+    disk by :mod:`seqlang.atoms.rydberg`); a wrong species is tens of THz off.
+    """
+    from ..atoms import rydberg
+    try:
+        steps, rydberg_hz = _ladder_frequencies(sp, rydberg)
+    except (ValueError, ArithmeticError, KeyError):
+        return []  # a level the calculator does not hold: nothing to compare with
+    out = []
+    lower_hz = SPEED_OF_LIGHT / lower_m
+    if not any(abs(lower_hz - f) <= LOWER_LEG_RTOL * f for _, f in steps):
+        lines = ", ".join(f"{name} {_nm(f)}" for name, f in steps)
+        out.append(error(f"lower leg {_nm(lower_hz)} matches no first step of {sp.data.name} "
+                         f"({lines}) within {LOWER_LEG_RTOL:.1%}", spans["lower_wavelength"],
+                         "is this a wavelength of another species?"))
+        return out
+    total = lower_hz + SPEED_OF_LIGHT / upper_m
+    if abs(total - rydberg_hz) > LADDER_SUM_RTOL * rydberg_hz:
+        wanted = SPEED_OF_LIGHT / (rydberg_hz - lower_hz)
+        out.append(error(f"the legs add up to {total / 1e12:.6g} THz, but {sp.rydberg.label} of {sp.data.name} "
+                         f"lies {rydberg_hz / 1e12:.6g} THz above the ground state "
+                         f"(tolerance {LADDER_SUM_RTOL:.0%})", spans["upper_wavelength"],
+                         f"with this lower leg the upper leg is near {wanted * 1e9:.2f} nm"))
+    return out
+
+
+def _ladder_frequencies(sp: Species, rydberg) -> tuple[list[tuple[str, float]], float]:
+    """First-step lines (nP1/2, nP3/2 of the two lowest P shells) and the Rydberg level, Hz above ground."""
+    from ..atoms.species import RydbergLevel
+    n0 = sp.data.ground_state_n
+    ground = rydberg.energy_hz(sp.data, RydbergLevel(n0, 0, 0.5))
+    steps = [(RydbergLevel(n, 1, j).label, rydberg.energy_hz(sp.data, RydbergLevel(n, 1, j)) - ground)
+             for n in (n0, n0 + 1) for j in (0.5, 1.5)]
+    return steps, rydberg.energy_hz(sp.data, sp.rydberg) - ground
+
+
+def _nm(frequency_hz: float) -> str:
+    return f"{SPEED_OF_LIGHT / frequency_hz * 1e9:.2f} nm"

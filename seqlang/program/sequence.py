@@ -10,7 +10,7 @@ import math
 from ..compile import envelopes
 from ..lang import syntax as ast
 from ..lang import units
-from ..lang.diagnostics import Diagnostic, Span, did_you_mean, error
+from ..lang.diagnostics import Diagnostic, Span, did_you_mean, error, warning
 from ..lang.units import format_quantity
 from . import props as p
 from .evaluate import EvalError, Scope, SiteRef, evaluate, evaluate_any, expect_kind
@@ -95,6 +95,11 @@ class SequenceResolver:
         value = expect_kind(evaluate(stmt.duration, scope), units.DURATION, stmt.duration.span)
         if value <= 0:
             raise EvalError(error("a wait must be longer than zero", stmt.duration.span))
+        if value < self.rig.tick_s:
+            self.diags.append(warning(
+                f"this {units.format_quantity(value, units.DURATION)} wait is shorter than one tick "
+                f"({units.format_quantity(self.rig.tick_s, units.DURATION)}): tick rounding removes it or "
+                "stretches it to a whole tick", stmt.duration.span))
         return WaitOp(value, stmt.span)
 
     def _TogetherStmt(self, stmt: ast.TogetherStmt, scope: Scope) -> TogetherOp:
@@ -125,8 +130,12 @@ class SequenceResolver:
         if block is None:
             raise EvalError(error(f"unknown block `{stmt.block.name}`", stmt.block.span,
                                   did_you_mean(stmt.block.name, self.blocks)))
-        if stmt.block.name in self.block_stack or len(self.block_stack) > MAX_BLOCK_DEPTH:
+        if stmt.block.name in self.block_stack:
             raise EvalError(error(f"block `{stmt.block.name}` calls itself", stmt.span))
+        if len(self.block_stack) >= MAX_BLOCK_DEPTH:
+            raise EvalError(error(f"blocks are nested more than {MAX_BLOCK_DEPTH} deep here "
+                                  f"(`{self.block_stack[0]}` → … → `{self.block_stack[-1]}` → "
+                                  f"`{stmt.block.name}`)", stmt.span))
         inner = self._bind_args(block, stmt, scope)
         self.block_stack.append(block.name.name)
         try:
@@ -309,6 +318,19 @@ class SequenceResolver:
         return names
 
     def _timing(self, v: dict, shape: Shape, drive: Drive, stmt: ast.PulseStmt):
+        """Two of area, duration and Rabi frequency give the third; all three finite and positive."""
+        try:
+            duration, rabi, area = self._derive_timing(v, shape, drive, stmt)
+        except (ZeroDivisionError, OverflowError):
+            duration, rabi, area = math.nan, math.nan, math.nan
+        for name, value in (("duration", duration), ("Rabi frequency", rabi), ("area", area)):
+            if not (math.isfinite(value) and value > 0):
+                raise EvalError(error(f"the {name} this pulse would need is not a positive finite number "
+                                      "(the other values given are too far apart)", stmt.span,
+                                      "check the `area`, `duration` and `rabi` given"))
+        return duration, rabi, area
+
+    def _derive_timing(self, v: dict, shape: Shape, drive: Drive, stmt: ast.PulseStmt):
         """Two of area, duration and Rabi frequency give the third."""
         area, duration, rabi = v["area"], v["duration"], v["rabi"]
         spans = v["__spans__"]

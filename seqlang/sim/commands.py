@@ -6,12 +6,14 @@ import math
 import sys
 
 from ..lang.diagnostics import render, sort_diagnostics
-from .model import LEVELS
-from .observables import clean
 
-
-from .api import ENGINES
-from .noise import SOURCES
+# The simulator's engine and noise-source names, written out so that registering the
+# command (every `seqlang` start, `--help` included) does not import numpy and scipy;
+# tests/test_front_end.py checks that they match seqlang.sim.api.ENGINES and
+# seqlang.sim.noise.SOURCES.
+ENGINES = ("auto", "fast", "lindblad", "qutip")
+SOURCES = ("decay", "dephasing", "scattering", "laser_noise", "intensity", "doppler", "motion",
+           "detuning_error", "t2_star", "field_noise", "preparation", "imaging")
 
 
 def register(sub) -> None:
@@ -82,6 +84,8 @@ def _check_counts(args) -> None:
 
 def as_document(result) -> dict:
     """The JSON form: expectations, records, final level populations, interactions."""
+    from .model import LEVELS
+    from .observables import clean
     sites = {}
     for cluster in result.clusters:
         for name, row in zip(cluster.model.sites, cluster.populations()):

@@ -107,6 +107,8 @@ def as_document(result) -> dict:
 
 def pair_entry(shift) -> dict:
     """One pair's model in the JSON: which model, its shift, overlap and nearest channel defect."""
+    from .observables import clean
+
     def num(x):
         return clean(x) if math.isfinite(x) else None
     return {"model": shift.model, "shift_hz": num(shift.shift_hz), "overlap": num(shift.overlap),

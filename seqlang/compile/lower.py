@@ -6,7 +6,8 @@ from __future__ import annotations
 
 from ..lang import units
 from ..lang.diagnostics import SeqlangError, error
-from ..program.model import FieldOp, ImageOp, MoveOp, PortOp, Program, PulseOp, RepeatOp, SerialOp, TogetherOp, WaitOp
+from ..program.model import (BranchOp, Decision, FieldOp, ImageOp, MoveOp, PortOp, Program, PulseOp, RepeatOp,
+                             SerialOp, TogetherOp, WaitOp)
 from .timeline import FIELD, IMAGE, MOVE, PULSE, Event, Timeline
 
 MAX_EVENTS = 5_000_000  # after expanding repeats; waits count too (each is work to place)
@@ -16,13 +17,16 @@ MAX_TICKS = 2 ** 53  # exact integer arithmetic on tick numbers (float mantissa)
 def lower(program: Program) -> Timeline:
     """Place every operation in time; the result is sorted by start."""
     events: list[Event] = []
-    culprit = _too_long(program.body, program.rig.tick_s)
-    if culprit is not None:
-        raise SeqlangError([error(f"this makes the sequence last {units.format_quantity(duration_of(culprit), units.DURATION)}"
-                                  f", beyond 2^53 ticks ({units.format_quantity(MAX_TICKS * program.rig.tick_s, units.DURATION)})"
-                                  ", where tick arithmetic stops being exact", culprit.span)])
-    _Placer(program, events).place(program.body, 0.0)
-    total = duration_of(program.body)
+    placer = _Placer(program, events)
+    tick = program.rig.tick_s
+    if placer.duration(program.body) / tick >= MAX_TICKS:
+        culprit = _too_long(placer, program.body, tick)
+        raise SeqlangError([error(
+            f"this makes the sequence last {units.format_quantity(placer.duration(culprit), units.DURATION)}, "
+            f"beyond 2^53 ticks ({units.format_quantity(MAX_TICKS * tick, units.DURATION)}), "
+            "where tick arithmetic stops being exact", culprit.span)])
+    placer.place(program.body, 0.0)
+    total = placer.duration(program.body)
     events.sort(key=lambda e: (e.start_s, e.index))
     return Timeline(tuple(events), total, program.rig.tick_s)
 
@@ -39,23 +43,54 @@ def duration_of(op) -> float:
         return max((duration_of(o) for o in op.body), default=0.0)
     if isinstance(op, RepeatOp):
         return op.count * duration_of(op.body)
+    if isinstance(op, BranchOp):
+        return max(duration_of(op.then), duration_of(op.otherwise))
     raise TypeError(op)
 
 
 class _Placer:
     def __init__(self, program: Program, events: list[Event]):
         self.program, self.events = program, events
+        self.decision: Decision | None = None  # of the enclosing `when` branch
         self.placed = 0  # events and waits placed so far
+        # Durations and counts by operation identity: nested `together`s inside a `repeat`
+        # would otherwise recompute them at every level of every iteration.
+        self._durations: dict[int, float] = {}
+        self._counts: dict[int, tuple[int, bool]] = {}
+
+    def duration(self, op) -> float:
+        key = id(op)
+        if key not in self._durations:
+            self._durations[key] = self._duration(op)
+        return self._durations[key]
+
+    def _duration(self, op) -> float:
+        if isinstance(op, SerialOp):
+            return sum(self.duration(o) for o in op.body)
+        if isinstance(op, TogetherOp):
+            return max((self.duration(o) for o in op.body), default=0.0)
+        if isinstance(op, RepeatOp):
+            return op.count * self.duration(op.body)
+        return duration_of(op)
+
+    def counts(self, op) -> tuple[int, bool]:
+        """(events and waits after expansion, whether any event is made)."""
+        key = id(op)
+        if key not in self._counts:
+            self._counts[key] = (_count_events(op), _makes_events(op))
+        return self._counts[key]
 
     def place(self, op, start: float) -> None:
         if isinstance(op, SerialOp):
             for child in op.body:
                 self.place(child, start)
-                start += duration_of(child)
+                start += self.duration(child)
         elif isinstance(op, TogetherOp):
             self._together(op, start)
         elif isinstance(op, RepeatOp):
             self._repeat(op, start)
+        elif isinstance(op, BranchOp):
+            self._branch(op, start)
         elif isinstance(op, FieldOp):
             self.placed += 1
             self._field(op, start)
@@ -66,9 +101,9 @@ class _Placer:
             self._emit(op, start)
 
     def _together(self, op: TogetherOp, start: float) -> None:
-        longest = duration_of(op)
+        longest = self.duration(op)
         for child in op.body:
-            slack = longest - duration_of(child)
+            slack = longest - self.duration(child)
             offset = {"start": 0.0, "end": slack, "center": slack / 2}[op.align]
             self.place(child, start + offset)
 
@@ -79,16 +114,26 @@ class _Placer:
         self.place(op.body, start)
 
     def _repeat(self, op: RepeatOp, start: float) -> None:
-        period = duration_of(op.body)
-        work = op.count * _count_events(op.body)
+        period = self.duration(op.body)
+        count, makes_events = self.counts(op.body)
+        work = op.count * count
         if work + self.placed > MAX_EVENTS:
             raise SeqlangError([error(f"this repetition makes more than {MAX_EVENTS:,} events "
                                       "(waits included)", op.span)])
-        if not _makes_events(op.body):
+        if not makes_events:
             self.placed += work  # waits only: nothing to place, however often
             return
         for i in range(op.count):
             self.place(op.body, start + i * period)
+
+    def _branch(self, op: BranchOp, start: float) -> None:
+        """Both branches start together; each event remembers for which keys it plays."""
+        outer = self.decision
+        negated = Decision(op.decision.selection, tuple(not e for e in op.decision.enabled), None, op.decision.span)
+        for body, decision in ((op.then, op.decision), (op.otherwise, negated)):
+            self.decision = _combine(outer, decision)
+            self.place(body, start)
+        self.decision = outer
 
     def _emit(self, op, start: float) -> None:
         index = len(self.events)
@@ -97,7 +142,7 @@ class _Placer:
             drive = rig.drives[op.drive]
             self.events.append(Event(index, PULSE, start, op.duration_s, drive.port, op.span, drive.name,
                                      op.targets, drive.species, op.rabi_hz, op.detuning_hz, op.phase_rad,
-                                     op.area_rad, op.shape))
+                                     op.area_rad, op.shape, decision=_combine(self.decision, op.decision)))
         elif isinstance(op, ImageOp):
             imaging = rig.imaging[op.species]
             targets = self.program.sites_of(op.species)
@@ -109,7 +154,15 @@ class _Placer:
         else:
             port = rig.ports[op.port]
             self.events.append(Event(index, op.action, start, op.duration_s, port.channel, op.span,
-                                     value=op.value))
+                                     value=op.value, decision=self.decision))
+
+
+def _combine(outer: Decision | None, inner: Decision | None) -> Decision | None:
+    """A decision inside another (same selection, checked by the resolver): both must allow a key."""
+    if outer is None or inner is None:
+        return inner or outer
+    enabled = tuple(a and b for a, b in zip(outer.enabled, inner.enabled))
+    return Decision(inner.selection, enabled, inner.variants, inner.span)
 
 
 def _makes_events(op) -> bool:
@@ -122,15 +175,15 @@ def _makes_events(op) -> bool:
     return False
 
 
-def _too_long(op, tick: float):
+def _too_long(placer: _Placer, op, tick: float):
     """The innermost operation that takes the sequence beyond MAX_TICKS, or None."""
-    if duration_of(op) / tick < MAX_TICKS:
+    if placer.duration(op) / tick < MAX_TICKS:
         return None
     children = op.body.body if isinstance(op, RepeatOp) else getattr(op, "body", ())
-    if isinstance(op, RepeatOp) and duration_of(op.body) / tick < MAX_TICKS:
+    if isinstance(op, RepeatOp) and placer.duration(op.body) / tick < MAX_TICKS:
         return op
     for child in children:
-        found = _too_long(child, tick)
+        found = _too_long(placer, child, tick)
         if found is not None:
             return found
     return op
@@ -146,4 +199,6 @@ def _count_events(op) -> int:
         return sum(_count_events(o) for o in op.body)
     if isinstance(op, RepeatOp):
         return op.count * _count_events(op.body)
+    if isinstance(op, BranchOp):
+        return _count_events(op.then) + _count_events(op.otherwise)
     return 0

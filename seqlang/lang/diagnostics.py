@@ -48,6 +48,11 @@ class Diagnostic:
     hint: str | None = None
 
     def __post_init__(self):
+        # A name or path holding control characters is echoed with them escaped, so a
+        # message stays one line and a terminal sees no control sequences.
+        object.__setattr__(self, "message", _escape_controls(self.message))
+        if self.hint is not None:
+            object.__setattr__(self, "hint", _escape_controls(self.hint))
         # A name of a megabyte must not be echoed whole (by the terminal or an editor).
         if len(self.message) > MAX_QUOTED:
             object.__setattr__(self, "message", _shorten_quoted(self.message))
@@ -78,6 +83,13 @@ def shorten(text: str, limit: int = MAX_QUOTED) -> str:
         return text
     keep = limit // 2
     return f"{text[:keep]}…{text[-8:]} ({len(text):,} characters)"
+
+
+_CONTROLS = re.compile("[\x00-\x1f\x7f-\x9f\u2028\u2029]")
+
+
+def _escape_controls(text: str) -> str:
+    return _CONTROLS.sub(lambda m: repr(m.group())[1:-1], text)
 
 
 def _shorten_quoted(message: str) -> str:

@@ -74,6 +74,7 @@ class Imaging:
     latency_s: float
     extra: Mapping[str, float]
     span: Span
+    decision_latency_s: float = 0.0  # image end → first operation that may depend on its record
 
 
 @dataclass(frozen=True)
@@ -111,6 +112,7 @@ class Rig:
     quantization_axis: tuple[float, float, float] | None = None  # None: each pair's own axis (θ = 0)
     min_spacing_m: float = 1e-6
     resonant_pairs: frozenset = frozenset()  # species-name pairs modelled as resonant (C3/R³)
+    field_rms_g: float = 0.0  # quasi-static field offset shared by the array, rms (G)
 
 
 @dataclass(frozen=True)
@@ -134,6 +136,52 @@ class Shape:
         return dict(self.params).get(name, default)
 
 
+# ---- feed-forward ----------------------------------------------------------------
+@dataclass(frozen=True)
+class Selection:
+    """Sites of one image record: the key a conditioned operation is looked up by.
+
+    The key is the number of sites reported bright, 0 .. len(sites) (for one site:
+    the outcome bit).
+    """
+
+    record: str
+    sites: tuple[str, ...]
+    species: str
+    span: Span = field(compare=False, hash=False)
+
+    @property
+    def keys(self) -> range:
+        return range(len(self.sites) + 1)
+
+    def label(self) -> str:
+        return f"{self.record}[{', '.join(self.sites)}]"
+
+
+@dataclass(frozen=True)
+class Variant:
+    """The parameters a conditioned pulse plays for one key."""
+
+    rabi_hz: float
+    detuning_hz: float
+    phase_rad: float
+    area_rad: float
+
+
+@dataclass(frozen=True)
+class Decision:
+    """How an operation depends on a record: played for which keys, and with what.
+
+    `enabled[k]` says whether it plays when the key is k; `variants[k]` (pulses
+    with record-dependent values only) its parameters for key k.
+    """
+
+    selection: Selection
+    enabled: tuple[bool, ...]
+    variants: tuple[Variant, ...] | None
+    span: Span
+
+
 # ---- operations of the sequence ---------------------------------------------
 @dataclass(frozen=True)
 class PulseOp:
@@ -148,6 +196,7 @@ class PulseOp:
     area_rad: float
     shape: Shape
     span: Span
+    decision: Decision | None = None
 
 
 @dataclass(frozen=True)
@@ -221,7 +270,19 @@ class MoveOp:
     span: Span
 
 
-Op = Union[PulseOp, WaitOp, ImageOp, PortOp, SerialOp, TogetherOp, RepeatOp, FieldOp, MoveOp]
+
+@dataclass(frozen=True)
+class BranchOp:
+    """``when``: `then` plays for the keys where `decision.enabled`, `otherwise` for the rest;
+    both start together and last as long as the longer one (the shorter is padded)."""
+
+    decision: Decision
+    then: SerialOp
+    otherwise: SerialOp
+    span: Span
+
+
+Op = Union[PulseOp, WaitOp, ImageOp, PortOp, SerialOp, TogetherOp, RepeatOp, BranchOp, FieldOp, MoveOp]
 
 
 @dataclass(frozen=True)

@@ -30,6 +30,7 @@ energy shift (permanent dipoles), magnetic fields, and hyperfine structure.
 """
 from __future__ import annotations
 
+import bisect
 import math
 from dataclasses import dataclass
 
@@ -290,16 +291,18 @@ def _interpolate(table: dict, distance_m: float) -> tuple[float, float]:
     """V and overlap at R: V·R³ by a cubic through the four nearest grid points in log R.
 
     V·R³ is smooth in both the R⁻³ and the R⁻⁶ regimes; the overlap is interpolated linearly.
-    (numpy only: a warm `check` must not pay for importing scipy.)
+    Plain Python: a warm `check` must not pay for importing numpy.
     """
-    import numpy as np
-    log_r = np.log(table["r_m"])
-    scaled = np.asarray(table["v_hz"]) * np.asarray(table["r_m"]) ** 3
+    log_r = [math.log(r) for r in table["r_m"]]
+    scaled = [v * r**3 for v, r in zip(table["v_hz"], table["r_m"])]
     x = math.log(min(max(distance_m, GRID_MIN_M), GRID_MAX_M))
-    k = int(np.clip(np.searchsorted(log_r, x) - 2, 0, len(log_r) - 4))
+    upper = min(max(bisect.bisect_left(log_r, x), 1), len(log_r) - 1)
+    k = min(max(upper - 2, 0), len(log_r) - 4)
     xs, ys = log_r[k:k + 4], scaled[k:k + 4]
-    value = sum(ys[i] * np.prod([(x - xs[j]) / (xs[i] - xs[j]) for j in range(4) if j != i]) for i in range(4))
-    return float(value) / distance_m**3, float(np.interp(x, log_r, table["overlap"]))
+    value = sum(ys[i] * math.prod((x - xs[j]) / (xs[i] - xs[j]) for j in range(4) if j != i) for i in range(4))
+    share = (x - log_r[upper - 1]) / (log_r[upper] - log_r[upper - 1])
+    overlap = table["overlap"][upper - 1] + share * (table["overlap"][upper] - table["overlap"][upper - 1])
+    return value / distance_m**3, overlap
 
 
 # ---------------------------------------------------------------- the one entry point

@@ -3,10 +3,10 @@ from __future__ import annotations
 
 __version__ = "0.1.0"
 
-from .api import Sequence, load  # noqa: E402
+from .api import Sequence, load, scan  # noqa: E402
 from .lang.diagnostics import SeqlangError  # noqa: E402
 
-__all__ = ["Sequence", "SeqlangError", "load", "__version__"]
+__all__ = ["Sequence", "SeqlangError", "load", "scan", "__version__"]
 
 
 def simulate(source, **options):

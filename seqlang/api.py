@@ -60,6 +60,19 @@ class Sequence:
         return timeline_dataframe(self)
 
 
-def load(path: str) -> Sequence:
-    """Parse, resolve and check `path`; raises SeqlangError listing every problem."""
-    return Sequence(path, check(path))
+def load(path: str, point: int | None = None) -> Sequence:
+    """Parse, resolve and check `path`; raises SeqlangError listing every problem.
+
+    For a file with scans, `point` picks the scan point (default: the first).
+    """
+    return Sequence(path, check(path, point=point))
+
+
+def scan(path: str, output: str, **options):
+    """Compile (and with ``simulate=True`` simulate) every point of a scan; return the xarray Dataset.
+
+    Options are those of ``seqlang scan`` (see docs/scans.md): simulate, noise, shots, seed,
+    engine, truncate, repetitions, workers, scheduler, resume, only, progress.
+    """
+    from .scan.run import run_scan
+    return run_scan(path, output, **options)

@@ -148,6 +148,10 @@ def declared_by(item) -> Iterator[Symbol]:
                 ast.SequenceDef: "sequence"}[type(item)]
         yield Symbol(item.name.name, kind, item.name.span, item)
         yield from _local_lets(getattr(item, "body", ()), item.span)
+    elif isinstance(item, ast.ScanDecl) and "." not in item.target.name:
+        yield Symbol(item.target.name, "constant", item.target.span, item)  # a scanned name
+    elif isinstance(item, ast.FreeDecl):
+        yield Symbol(item.name.name, "constant", item.name.span, item)
     elif isinstance(item, ast.BlockDef):
         yield Symbol(item.name.name, "block", item.name.span, item)
         for param in item.params:

@@ -284,6 +284,27 @@ def _print_let(printer, item: ast.LetStmt, depth):
     _line(printer, item, f"let {item.name.name} = {expression(item.value, printer.text)}", depth)
 
 
+def _print_scan(printer, item: ast.ScanDecl, depth):
+    text, values = printer.text, item.values
+    if isinstance(values, ast.ScanList):
+        shown = "[" + ", ".join(expression(e, text) for e in values.items) + "]"
+    else:
+        shown = f"{expression(values.low, text)} .. {expression(values.high, text)} points " \
+                f"{expression(values.count, text)}" + (f" spacing {values.spacing.name}" if values.spacing else "")
+    _line(printer, item, f"scan {item.target.name} = {shown}", depth)
+
+
+def _print_lockstep(printer, item: ast.LockstepDecl, depth):
+    _line(printer, item, f"scan lockstep {_names(item.names)}", depth)
+
+
+def _print_free(printer, item: ast.FreeDecl, depth):
+    text = printer.text
+    start = f" start {expression(item.start, text)}" if item.start is not None else ""
+    _line(printer, item, f"free {item.name.name} = {expression(item.low, text)} .. "
+                         f"{expression(item.high, text)}{start}", depth)
+
+
 def _print_site(printer, item: ast.SiteStmt, depth):
     words = f"site {item.name.name} = {item.species.name} at {expression(item.position, printer.text)}"
     _line(printer, item, words, depth)
@@ -428,4 +449,5 @@ _ITEM_PRINTERS = {
     ast.UseStmt: _print_use, ast.ImportStmt: _print_use, ast.RigDef: _print_rig, ast.LetStmt: _print_let,
     ast.SiteStmt: _print_site, ast.GroupStmt: _print_group, ast.BlockDef: _print_block,
     ast.SequenceDef: _print_sequence, ast.ExpectStmt: _print_expect,
+    ast.ScanDecl: _print_scan, ast.LockstepDecl: _print_lockstep, ast.FreeDecl: _print_free,
 }

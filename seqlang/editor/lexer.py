@@ -16,7 +16,8 @@ from pygments.token import (Comment, Keyword, Name, Number, Operator, Punctuatio
 # The statement and declaration words of the grammar (grammar/seqlang.lark).
 KEYWORDS = ("use", "import", "rig", "species", "drive", "image", "port", "let", "site", "group",
             "at", "block", "sequence", "pulse", "on", "off", "wait", "together", "align", "repeat",
-            "do", "switch", "set", "trigger", "expect", "as", "when", "otherwise", "is", "field", "move", "to", "by")
+            "do", "switch", "set", "trigger", "expect", "as", "when", "otherwise", "is", "scan", "points",
+            "spacing", "lockstep", "free", "field", "move", "to", "by")
 # Values that are words: drive kinds, reach, alignments, qubit encodings, shapes, states.
 CONSTANTS = ("microwave", "raman", "rydberg", "all", "each", "start", "end", "center", "clock",
              "digital", "analog", "counter", "co", "square", "ramped", "gaussian", "blackman",

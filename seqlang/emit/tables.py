@@ -134,7 +134,18 @@ def provenance(checked: Checked) -> dict:
         "sequence": _relative(checked, checked.program.path),
         "sources": {_relative(checked, p): h for p, h in sorted(checked.program.sources.items())},
         "rig": _relative(checked, checked.program.rig.path), "tick_ns": _num(checked.plan.tick_s * 1e9),
+        **_scan_point(checked.program),
     }
+
+
+def _scan_point(program) -> dict:
+    """For one point of a scan: its index and the scanned values (in the units written)."""
+    space = getattr(program, "scans", None)
+    if space is None:
+        return {}
+    values = {a.name: _num(a.shown(program.point[a.name])) for a in space.axes}
+    return {"scan_point": {"index": program.point_index, "values": values,
+                           "units": {a.name: a.unit for a in space.axes}}}
 
 
 def timing_json(checked: Checked) -> str:

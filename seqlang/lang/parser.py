@@ -518,3 +518,30 @@ class _Builder(Transformer):
     @v_args(meta=True)
     def import_stmt(self, meta, children):
         return ast.ImportStmt(str(children[0])[1:-1], self._span(meta))
+
+    # scans
+    def scan_target(self, children):
+        return self._ident(children[0])
+
+    @v_args(meta=True)
+    def scan_range(self, meta, children):
+        low, high, count, spacing = children
+        return ast.ScanRange(low, high, count, self._ident(spacing) if spacing is not None else None,
+                             self._span(meta))
+
+    @v_args(meta=True)
+    def scan_list(self, meta, children):
+        return ast.ScanList(tuple(children), self._span(meta))
+
+    @v_args(meta=True)
+    def scan_def(self, meta, children):
+        return ast.ScanDecl(children[0], children[1], self._span(meta))
+
+    @v_args(meta=True)
+    def lockstep_def(self, meta, children):
+        return ast.LockstepDecl(tuple(children), self._span(meta))
+
+    @v_args(meta=True)
+    def free_def(self, meta, children):
+        name, low, high, start = children
+        return ast.FreeDecl(self._ident(name), low, high, start, self._span(meta))

@@ -432,8 +432,58 @@ class ImportStmt:
     span: Span
 
 
+@dataclass(frozen=True)
+class ScanRange:
+    """``low .. high points N [spacing log]``: N values, evenly or geometrically spaced."""
+
+    low: "Expr"
+    high: "Expr"
+    count: "Expr"
+    spacing: Ident | None
+    span: Span
+
+
+@dataclass(frozen=True)
+class ScanList:
+    """``[a, b, c]``: the scanned values written out."""
+
+    items: tuple["Expr", ...]
+    span: Span
+
+
+@dataclass(frozen=True)
+class ScanDecl:
+    """``scan NAME = values``: a named value that takes each of `values` in turn.
+
+    The target is a constant's name, or ``drive.key`` / ``species.key`` for a rig value.
+    """
+
+    target: Ident
+    values: Union[ScanRange, ScanList]
+    span: Span
+
+
+@dataclass(frozen=True)
+class LockstepDecl:
+    """``scan lockstep a, b``: these scans advance together (zipped), not as a product."""
+
+    names: tuple[Ident, ...]
+    span: Span
+
+
+@dataclass(frozen=True)
+class FreeDecl:
+    """``free NAME = low .. high [start value]``: a value the optimiser may vary within bounds."""
+
+    name: Ident
+    low: "Expr"
+    high: "Expr"
+    start: "Expr | None"
+    span: Span
+
+
 Item = Union[UseStmt, ImportStmt, RigDef, LetStmt, SiteStmt, GroupStmt, BlockDef,
-             SequenceDef, ExpectStmt]
+             SequenceDef, ExpectStmt, ScanDecl, LockstepDecl, FreeDecl]
 
 
 @node

@@ -41,6 +41,7 @@ class Scope:
 
     values: dict[str, object] = field(default_factory=dict)
     parent: "Scope | None" = None
+    pinned: frozenset = frozenset()  # scanned names: a rig `let` of the same name gives way
 
     def lookup(self, name: str) -> object | None:
         scope: Scope | None = self

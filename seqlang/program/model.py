@@ -308,6 +308,10 @@ class Program:
     expects: tuple[Expectation, ...]
     sources: Mapping[str, str] = field(default_factory=dict)  # path -> sha256
     constants: Mapping[str, object] = field(default_factory=dict)
+    scans: object = None  # a program.scans.ScanSpace when the file declares scans
+    point: Mapping[str, float] = field(default_factory=dict)  # this point's scanned values (SI)
+    point_index: int = 0
+    free: tuple = ()  # program.scans.FreeParam of each `free` declaration
 
     def sites_of(self, species: str) -> tuple[str, ...]:
         return tuple(n for n, s in self.sites.items() if s.species == species)

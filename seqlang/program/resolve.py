@@ -18,6 +18,7 @@ from ..lang.parser import parse_text
 from . import includes
 from .evaluate import EvalError, Scope, evaluate, evaluate_any, expect_kind
 from .model import Expectation, Program, Rig, SerialOp, Site
+from .scans import bind_free, bind_point, override_rig, resolve_free, resolve_scans
 from .sequence import SequenceResolver
 
 BELL_STATES = ("phi_plus", "phi_minus", "psi_plus", "psi_minus")
@@ -36,16 +37,29 @@ class Loaded:
     sources: Mapping[str, str] = field(default_factory=dict)
 
 
-def resolve(path: str, sources: Mapping[str, str] | None = None) -> tuple[Program, list[Diagnostic]]:
+def resolve(path: str, sources: Mapping[str, str] | None = None,
+            point: int | None = None) -> tuple[Program, list[Diagnostic]]:
     """Parse, resolve and check the sequence file at `path` (warnings returned).
 
     `sources` maps paths to texts that replace the files on disk (an editor's
-    unsaved buffers); paths are matched as the resolver forms them.
+    unsaved buffers); paths are matched as the resolver forms them. A file with
+    scans is resolved at scan point `point` (default: the first point).
     """
+    return resolve_point(load_files(path, sources), point)
+
+
+def load_files(path: str, sources: Mapping[str, str] | None = None) -> Loaded:
+    """Read and parse a program's files once, so that scan points re-use them."""
+    return _load(path, [], sources or {})
+
+
+def resolve_point(loaded: Loaded, point: int | None = None,
+                  free: dict[str, float] | None = None) -> tuple[Program, list[Diagnostic]]:
+    """Resolve parsed files at one scan point (an index; None for the first point), with the
+    `free` values given (SI; the others at their start)."""
     diags: list[Diagnostic] = []
-    loaded = _load(path, diags, sources or {})
     failed: set[str] = set()
-    program = _resolve_loaded(loaded, diags, failed)
+    program = _resolve_loaded(loaded, diags, failed, point or 0, free)
     diags = _without_knock_ons(diags, failed)
     errors = [d for d in diags if d.severity == ERROR]
     if errors or program is None:
@@ -160,14 +174,25 @@ def _without_knock_ons(diags: list[Diagnostic], failed: set[str]) -> list[Diagno
     return [d for d in diags if not knock_on(d)]
 
 
-def _resolve_loaded(loaded: Loaded, diags: list[Diagnostic], failed: set[str]) -> Program | None:
+def _resolve_loaded(loaded: Loaded, diags: list[Diagnostic], failed: set[str], point: int = 0,
+                    free_values: dict[str, float] | None = None) -> Program | None:
     from .rig import resolve_rig
     scope = Scope()
     if loaded.rig is None:
         diags.append(error("no rig: add `use \"lab.rig\"` at the top of the file",
                            Span(loaded.main.path, 1, 1, 1, 1)))
         return None
-    rig = resolve_rig(loaded.rig, loaded.rig_path, scope, diags)
+    for imported in loaded.imports:  # a scan or free value belongs to the file that is run
+        for decl in (i for i in imported.items if isinstance(i, (ast.ScanDecl, ast.LockstepDecl, ast.FreeDecl))):
+            diags.append(error("`scan` and `free` are declared in the sequence file that is run, "
+                               "not in an imported one", decl.span))
+    space = resolve_scans(loaded.main, diags)
+    failed.update(_failed_scans(loaded.main, space))
+    values = space.point(point) if space is not None else {}
+    bind_point(space, values, scope)
+    free = resolve_free(loaded.main, set(values), diags)
+    bind_free(free, free_values, scope)
+    rig = resolve_rig(override_rig(loaded.rig, space, diags), loaded.rig_path, scope, diags)
     files = loaded.imports + [loaded.main]
     _bind_lets(files, scope, diags, failed)
     sites = _sites(loaded.main, rig, scope, diags, failed)
@@ -182,12 +207,22 @@ def _resolve_loaded(loaded: Loaded, diags: list[Diagnostic], failed: set[str]) -
         else SerialOp((), Span(loaded.main.path, 1, 1, 1, 1))
     expects = _expects(loaded.main, sites, groups, diags, failed)
     return Program(name, loaded.main.path, rig, sites, groups, body, expects,
-                   dict(sorted(loaded.hashes.items())), dict(scope.values))
+                   dict(sorted(loaded.hashes.items())), dict(scope.values), space, values, point, free)
+
+
+def _failed_scans(source: ast.SourceFile, space) -> set[str]:
+    """Scans whose declaration has an error: their names stay unknown, without knock-on errors."""
+    ok = {a.name for a in space.axes} if space is not None else set()
+    return {d.target.name for d in source.items if isinstance(d, ast.ScanDecl) and d.target.name not in ok}
 
 
 def _bind_lets(files, scope: Scope, diags: list[Diagnostic], failed: set[str]) -> None:
     for source in files:
         for let in (i for i in source.items if isinstance(i, ast.LetStmt)):
+            if let.name.name in scope.pinned:
+                diags.append(error(f"`{let.name.name}` is scanned; a `let` cannot redefine it", let.name.span,
+                                   "remove this `let` or rename the scan"))
+                continue
             if let.name.name in units.UNITS:
                 diags.append(error(f"`{let.name.name}` is a unit and cannot be a constant's name", let.name.span))
                 continue

@@ -182,6 +182,8 @@ def _resonant_pairs(decls: dict, species_map: dict, diags: list[Diagnostic]) -> 
 
 def _bind_lets(lets, scope: Scope, diags: list[Diagnostic]) -> None:
     for let in lets:
+        if let.name.name in scope.pinned:
+            continue  # a scan of the sequence overrides this rig constant
         try:
             scope.values[let.name.name] = evaluate(let.value, scope)
         except EvalError as exc:

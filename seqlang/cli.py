@@ -117,7 +117,7 @@ def cmd_compile(args) -> int:
 
 
 def cmd_show(args) -> int:
-    from .show import compile_summary, pair_table, timeline_table
+    from .show import compile_summary, pair_models_table, pair_table, timeline_table
     sequence = _load(args.file)
     print(timeline_table(sequence.checked))
     print()
@@ -134,6 +134,10 @@ def cmd_show(args) -> int:
         if table:
             print("\nRydberg pairs (van der Waals, C6 from the alkali Rydberg calculator):")
             print(table)
+        models = pair_models_table(sequence.program, sequence.played)
+        if models:
+            print("\nPair models used at the Rydberg pulses (seqlang.atoms.pairs):")
+            print(models)
     return EXIT_OK
 
 

@@ -76,6 +76,37 @@ def _total_parts(checked: Checked) -> str:
     return " (" + " ".join(parts) + ")"
 
 
+def pair_models_table(program: Program, timeline) -> str:
+    """Per Rydberg pair: the model used (perturbative/diagonalised/resonant), V, overlap, channel defect,
+    radii; then each field in use with the Stark shifts and the pair defects at that field."""
+    from .compile.geometry import pair_shifts
+    rows = []
+    for (a, b), m in pair_shifts(program, timeline).items():
+        rows.append(f"{a}-{b}: R = {_f(m.distance_m, units.LENGTH)}, θ = {math.degrees(m.theta_rad):.1f} deg, "
+                    f"E = {m.field_v_m:.4g} V/m: {m.model}, V/h = {_f(m.shift_hz, units.FREQUENCY)}, "
+                    f"overlap {m.overlap:.3f}, dominant channel defect {_f(m.defect_hz, units.FREQUENCY)}, "
+                    f"crossover radius {_f(m.crossover_radius_m, units.LENGTH)}, "
+                    f"Le Roy radius {_f(m.le_roy_radius_m, units.LENGTH)}")
+    return "\n".join(rows + _field_rows(program, timeline))
+
+
+def _field_rows(program: Program, timeline) -> list[str]:
+    from .atoms import pairs
+    from .compile.geometry import stark_shift_hz
+    fields = sorted({e.value for e in timeline.events if e.kind == "field"})
+    species = [s for s in program.rig.species.values() if s.rydberg is not None]
+    rows = []
+    for field in fields:
+        rows.append(f"field {field:.4g} V/m: Stark shifts " + ", ".join(
+            f"{s.name} {s.rydberg.label} {_f(stark_shift_hz(program, s.name, field), units.FREQUENCY)}"
+            for s in species))
+        for sa, sb in itertools.combinations_with_replacement(species, 2):
+            near = pairs.channels_at_field(sa.data, sa.rydberg, sb.data, sb.rydberg, field)[:3]
+            rows.append(f"  {sa.name}-{sb.name} channel defects: " + ", ".join(
+                f"{c.levels[0]}+{c.levels[1]} {_f(c.defect_hz, units.FREQUENCY)}" for c in near))
+    return rows
+
+
 def pair_rows(program: Program) -> list[dict]:
     """Every pair of Rydberg-capable sites: distance, C6, interaction and blockade radius (SI)."""
     from .atoms import rydberg

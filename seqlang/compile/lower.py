@@ -6,9 +6,9 @@ from __future__ import annotations
 
 from ..lang import units
 from ..lang.diagnostics import SeqlangError, error
-from ..program.model import (BranchOp, Decision, ImageOp, PortOp, Program, PulseOp, RepeatOp, SerialOp, TogetherOp,
-                             WaitOp)
-from .timeline import IMAGE, PULSE, Event, Timeline
+from ..program.model import (BranchOp, Decision, FieldOp, ImageOp, MoveOp, PortOp, Program, PulseOp, RepeatOp,
+                             SerialOp, TogetherOp, WaitOp)
+from .timeline import FIELD, IMAGE, MOVE, PULSE, Event, Timeline
 
 MAX_EVENTS = 5_000_000  # after expanding repeats; waits count too (each is work to place)
 MAX_TICKS = 2 ** 53  # exact integer arithmetic on tick numbers (float mantissa)
@@ -33,8 +33,10 @@ def lower(program: Program) -> Timeline:
 
 def duration_of(op) -> float:
     """How long an operation lasts (a together lasts as long as its longest part)."""
-    if isinstance(op, (PulseOp, WaitOp, ImageOp, PortOp)):
+    if isinstance(op, (PulseOp, WaitOp, ImageOp, PortOp, MoveOp)):
         return op.duration_s
+    if isinstance(op, FieldOp):
+        return duration_of(op.body)
     if isinstance(op, SerialOp):
         return sum(duration_of(o) for o in op.body)
     if isinstance(op, TogetherOp):
@@ -89,6 +91,9 @@ class _Placer:
             self._repeat(op, start)
         elif isinstance(op, BranchOp):
             self._branch(op, start)
+        elif isinstance(op, FieldOp):
+            self.placed += 1
+            self._field(op, start)
         elif isinstance(op, WaitOp):
             self.placed += 1
         else:
@@ -101,6 +106,12 @@ class _Placer:
             slack = longest - self.duration(child)
             offset = {"start": 0.0, "end": slack, "center": slack / 2}[op.align]
             self.place(child, start + offset)
+
+    def _field(self, op: FieldOp, start: float) -> None:
+        port = self.program.rig.ports[op.port]
+        self.events.append(Event(len(self.events), FIELD, start, duration_of(op.body), port.channel, op.span,
+                                 value=op.field_v_m))
+        self.place(op.body, start)
 
     def _repeat(self, op: RepeatOp, start: float) -> None:
         period = self.duration(op.body)
@@ -137,6 +148,9 @@ class _Placer:
             targets = self.program.sites_of(op.species)
             self.events.append(Event(index, IMAGE, start, op.duration_s, imaging.port, op.span,
                                      targets=targets, species=op.species, record=op.record))
+        elif isinstance(op, MoveOp):
+            self.events.append(Event(index, MOVE, start, op.duration_s, "move " + ",".join(op.sites), op.span,
+                                     targets=op.sites, displacement_m=op.displacement_m, profile=op.profile))
         else:
             port = rig.ports[op.port]
             self.events.append(Event(index, op.action, start, op.duration_s, port.channel, op.span,
@@ -152,7 +166,7 @@ def _combine(outer: Decision | None, inner: Decision | None) -> Decision | None:
 
 
 def _makes_events(op) -> bool:
-    if isinstance(op, (PulseOp, ImageOp, PortOp)):
+    if isinstance(op, (PulseOp, ImageOp, PortOp, MoveOp, FieldOp)):
         return True
     if isinstance(op, (SerialOp, TogetherOp)):
         return any(_makes_events(o) for o in op.body)
@@ -177,8 +191,10 @@ def _too_long(placer: _Placer, op, tick: float):
 
 def _count_events(op) -> int:
     """Events and waits after expansion (waits cost placing time even though they make no event)."""
-    if isinstance(op, (PulseOp, ImageOp, PortOp, WaitOp)):
+    if isinstance(op, (PulseOp, ImageOp, PortOp, WaitOp, MoveOp)):
         return 1
+    if isinstance(op, FieldOp):
+        return 1 + _count_events(op.body)
     if isinstance(op, (SerialOp, TogetherOp)):
         return sum(_count_events(o) for o in op.body)
     if isinstance(op, RepeatOp):

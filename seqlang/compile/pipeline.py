@@ -13,6 +13,7 @@ from ..program.model import Program
 from ..program.resolve import resolve
 from .checks import check_timeline, check_waveforms
 from .decisions import check_decisions
+from .geometry import check_geometry
 from .hardware import HardwarePlan, plan
 from .lower import lower
 from .quantize import quantize
@@ -45,6 +46,8 @@ def check_program(program: Program, diags: list[Diagnostic]) -> Checked:
     """The passes after resolution (lowering, timing checks, quantization, hardware plan)."""
     timeline = lower(program)
     diags = diags + check_timeline(program, timeline) + check_decisions(program, timeline)
+    if not any(d.severity == ERROR for d in diags):
+        diags += check_geometry(program, timeline)
     quantized, report, quant_diags = quantize(program, timeline)
     diags += quant_diags + [d for d in check_timeline(program, quantized) if d.span not in {x.span for x in diags}]
     if not any(d.severity == ERROR for d in diags):

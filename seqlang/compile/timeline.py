@@ -11,6 +11,7 @@ from ..lang.diagnostics import Span
 from ..program.model import Decision, Shape
 
 PULSE, IMAGE, SWITCH, SET, TRIGGER = "pulse", "image", "switch", "set", "trigger"
+FIELD, MOVE = "field", "move"  # an electric-field stretch (value in V/m); sites moving (displacement_m)
 
 
 @dataclass(frozen=True)
@@ -33,6 +34,8 @@ class Event:
     shape: Shape = Shape("square")
     record: str | None = None
     value: float = 0.0
+    displacement_m: tuple[float, ...] = ()
+    profile: str = ""
     decision: Decision | None = None  # feed-forward: played per key of an image record
 
     @property

@@ -401,6 +401,16 @@ def _print_trigger(printer, stmt: ast.TriggerStmt, depth):
     _line(printer, stmt, f"trigger {stmt.port.name}{_inline_props(stmt.props, printer.text)}", depth)
 
 
+def _print_field(printer, stmt: ast.FieldStmt, depth):
+    _braced(printer, stmt, f"field {stmt.port.name} {expression(stmt.value, printer.text)}",
+            stmt.value.span.end, stmt.body, depth)
+
+
+def _print_move(printer, stmt: ast.MoveStmt, depth):
+    words = f"move {_names(stmt.sites)} {'by' if stmt.relative else 'to'} {expression(stmt.target, printer.text)}"
+    _line(printer, stmt, words + _inline_props(stmt.props, printer.text), depth)
+
+
 def _condition(cond, text: str) -> str:
     if isinstance(cond, ast.OutcomeIs):
         return f"{expression(cond.selection, text)} is {cond.word.name}"
@@ -433,6 +443,7 @@ _STATEMENT_PRINTERS = {
     ast.SwitchStmt: _print_switch, ast.SetStmt: _print_set, ast.TriggerStmt: _print_trigger,
     ast.LetStmt: _print_let, ast.Prop: _print_prop, ast.SpeciesDecl: _print_species,
     ast.DriveDecl: _print_drive, ast.ImageDecl: _print_image_decl, ast.PortDecl: _print_port,
+    ast.FieldStmt: _print_field, ast.MoveStmt: _print_move,
     ast.WhenStmt: _print_when,
 }
 

@@ -108,6 +108,9 @@ def _port_entry(checked: Checked, e) -> dict:
         entry.update(drive=e.drive)
     elif e.kind in ("set", "switch"):
         entry.update(value=_num(e.value))
+    elif e.kind == "ramp":
+        entry.update(start_hz=_num(e.ramp[0]), end_hz=_num(e.ramp[1]), profile=e.ramp[2],
+                     targets=list(e.targets), samples=f"ramp{e.event}_{e.port}")
     return entry
 
 

@@ -451,6 +451,21 @@ class _Builder(Transformer):
         return ast.TriggerStmt(self._ident(children[0]), tuple(children[1:]), self._span(meta))
 
     @v_args(meta=True)
+    def field_stmt(self, meta, children):
+        return ast.FieldStmt(self._ident(children[0]), children[1], children[2], self._span(meta))
+
+    def move_to(self, children):
+        return False
+
+    def move_by(self, children):
+        return True
+
+    @v_args(meta=True)
+    def move_stmt(self, meta, children):
+        sites, relative, target, *props = children
+        return ast.MoveStmt(sites, relative, target, tuple(props), self._span(meta))
+
+    @v_args(meta=True)
     def param(self, meta, children):
         return ast.Param(self._ident(children[0]), children[1], self._span(meta))
 

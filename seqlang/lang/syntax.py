@@ -325,12 +325,33 @@ class TriggerStmt:
 
 
 @dataclass(frozen=True)
+class FieldStmt:
+    """``field port value { ... }``: an electric field for the statements of the body."""
+
+    port: Ident
+    value: "Expr"
+    body: tuple["Stmt", ...]
+    span: Span
+
+
+@dataclass(frozen=True)
 class Compare:
     """``left op right`` with op in == != < <= > >=: a `when` condition."""
 
     op: str
     left: Expr
     right: Expr
+    span: Span
+
+
+@dataclass(frozen=True)
+class MoveStmt:
+    """``move sites to|by (x, y) um duration ... [profile minimum_jerk]``."""
+
+    sites: tuple[Ident, ...]
+    relative: bool
+    target: "Expr"
+    props: tuple[Prop, ...]
     span: Span
 
 
@@ -354,7 +375,7 @@ class WhenStmt:
 
 
 Stmt = Union[PulseStmt, WaitStmt, TogetherStmt, RepeatStmt, DoStmt, ImageStmt,
-             SwitchStmt, SetStmt, TriggerStmt, LetStmt, WhenStmt]
+             SwitchStmt, SetStmt, TriggerStmt, LetStmt, FieldStmt, MoveStmt, WhenStmt]
 
 
 @node

@@ -89,6 +89,10 @@ class Port:
     value_range: tuple[float, float] | None
     unit_dim: tuple[int, ...] | None
     span: Span
+    # Electrodes: `field_per_volt` (V/m per V at the atoms). Deflectors (kind
+    # "deflector"): axis, scale (Hz/m), center (Hz), sample_rate (Hz), steers (species),
+    # max_velocity (m/s), max_acceleration (m/s²).
+    extra: Mapping[str, object] = field(default_factory=dict)
 
 
 @dataclass(frozen=True)
@@ -105,6 +109,9 @@ class Rig:
     ports: Mapping[str, Port]
     span: Span
     environment_k: float = 300.0  # temperature of the surroundings (black-body radiation)
+    quantization_axis: tuple[float, float, float] | None = None  # None: each pair's own axis (θ = 0)
+    min_spacing_m: float = 1e-6
+    resonant_pairs: frozenset = frozenset()  # species-name pairs modelled as resonant (C3/R³)
     field_rms_g: float = 0.0  # quasi-static field offset shared by the array, rms (G)
 
 
@@ -242,6 +249,29 @@ class RepeatOp:
 
 
 @dataclass(frozen=True)
+class FieldOp:
+    """An electric field (V/m, along the quantisation axis) from an electrode port during `body`."""
+
+    port: str
+    field_v_m: float
+    volts: float
+    body: SerialOp
+    span: Span
+
+
+@dataclass(frozen=True)
+class MoveOp:
+    """Sites displaced by (dx, dy, dz) metres over `duration_s` with a smooth `profile`."""
+
+    sites: tuple[str, ...]
+    displacement_m: tuple[float, float, float]
+    duration_s: float
+    profile: str
+    span: Span
+
+
+
+@dataclass(frozen=True)
 class BranchOp:
     """``when``: `then` plays for the keys where `decision.enabled`, `otherwise` for the rest;
     both start together and last as long as the longer one (the shorter is padded)."""
@@ -252,7 +282,7 @@ class BranchOp:
     span: Span
 
 
-Op = Union[PulseOp, WaitOp, ImageOp, PortOp, SerialOp, TogetherOp, RepeatOp, BranchOp]
+Op = Union[PulseOp, WaitOp, ImageOp, PortOp, SerialOp, TogetherOp, RepeatOp, BranchOp, FieldOp, MoveOp]
 
 
 @dataclass(frozen=True)

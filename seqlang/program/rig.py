@@ -11,7 +11,7 @@ from ..lang import syntax as ast
 from ..lang import units
 from ..lang.diagnostics import Diagnostic, did_you_mean, error
 from . import props as p
-from .evaluate import EvalError, Scope, evaluate
+from .evaluate import EvalError, Scope, evaluate, evaluate_any, expect_kind
 from .model import DRIVE_KINDS, Drive, Imaging, Legs, Port, Rig, Species
 
 _PER_FIELD = tuple(f - g for f, g in zip(units.FREQUENCY, units.FIELD))  # Hz/G: qubit shift per field
@@ -28,6 +28,32 @@ RIG_SETTINGS = {
     "field_rms": p.Key(p.non_negative(p.quantity(units.FIELD)), 0.0),
 }
 
+E_FIELD = tuple(v - l for v, l in zip(units.VOLTAGE, units.LENGTH))
+PER_LENGTH = tuple(-x for x in units.LENGTH)
+HZ_PER_M = tuple(f - l for f, l in zip(units.FREQUENCY, units.LENGTH))
+VELOCITY = tuple(l - t for l, t in zip(units.LENGTH, units.DURATION))
+ACCELERATION = tuple(l - 2 * t for l, t in zip(units.LENGTH, units.DURATION))
+DEFAULT_MIN_SPACING_M = 1e-6  # about one diffraction-limited tweezer spot (common practice)
+
+
+def _axis(expr, scope):
+    """``(0, 0, 1)``: a direction; normalised."""
+    value = evaluate_any(expr, scope)
+    if not isinstance(value, tuple) or len(value) != 3:
+        raise EvalError(error("expected a direction such as `(0, 0, 1)`", expr.span))
+    comps = [expect_kind(q, units.DIMENSIONLESS, expr.span) for q in value]
+    norm = math.sqrt(sum(c * c for c in comps))
+    if norm == 0:
+        raise EvalError(error("the quantisation axis cannot be zero", expr.span))
+    return tuple(c / norm for c in comps)
+
+
+RIG_SETTINGS_PAIRS = {
+    "quantization_axis": p.Key(_axis, None, doc="direction of the bias field, e.g. (0, 0, 1)"),
+    "min_spacing": p.Key(p.positive(p.length, "minimum spacing"), DEFAULT_MIN_SPACING_M,
+                         doc="closest two sites may come, e.g. 1.5 um"),
+}
+
 SPECIES_KEYS = {
     "qubit": p.Key(lambda e, s: e, None, doc="`clock` or `(F=1, mF=0) <-> (F=2, mF=0)`"),
     "rydberg": p.Key(lambda e, s: e, None, doc="the Rydberg level, e.g. 58S1/2"),
@@ -40,6 +66,7 @@ SPECIES_KEYS = {
     "t2_star": p.Key(p.non_negative(p.duration), 0.0),
     "field_noise": p.Key(p.non_negative(p.frequency), 0.0),
     "field_noise_freq": p.Key(p.non_negative(p.frequency), 0.0),
+    "resonant_with": p.Key(lambda e, s: e, None, doc="a species whose pair with this one is modelled as C3/R^3"),
     "field_sensitivity": p.Key(p.quantity(_PER_FIELD), 0.0),
 }
 
@@ -94,11 +121,22 @@ IMAGE_KEYS = {
 }
 
 PORT_KEYS = {
-    "kind": p.Key(p.choice("digital", "analog"), "digital"),
+    "kind": p.Key(p.choice("digital", "analog", "deflector"), "digital"),
     "latency": p.Key(p.non_negative(p.duration), 0.0),
     "width": p.Key(p.positive(p.duration, "trigger width"), 1e-6),
     "range": p.Key(p.any_range, None),
+    # electrodes (analog) and deflectors: see PORT_EXTRA_KEYS and docs/language.md
+    "field_per_volt": p.Key(p.positive(p.quantity(PER_LENGTH), "calibration"), None),
+    "axis": p.Key(p.choice("x", "y", "z"), None),
+    "scale": p.Key(p.quantity(HZ_PER_M), None),
+    "center": p.Key(p.positive(p.frequency, "centre frequency"), None),
+    "sample_rate": p.Key(p.positive(p.frequency, "sample rate"), None),
+    "steers": p.Key(lambda e, s: e, None, doc="the species whose tweezers it steers"),
+    "max_velocity": p.Key(p.positive(p.quantity(VELOCITY), "maximum velocity"), None),
+    "max_acceleration": p.Key(p.positive(p.quantity(ACCELERATION), "maximum acceleration"), None),
 }
+PORT_KINDS = ("digital", "analog", "deflector")
+DEFLECTOR_REQUIRED = ("axis", "scale", "center", "sample_rate")
 
 
 def drive_keys(kind: str) -> dict[str, p.Key]:
@@ -109,7 +147,8 @@ def drive_keys(kind: str) -> dict[str, p.Key]:
 def resolve_rig(rig: ast.RigDef, path: str, scope: Scope, diags: list[Diagnostic]) -> Rig:
     """Build the Rig; every problem found is appended to `diags`."""
     _bind_lets(rig.lets, scope, diags)
-    settings = p.read_props(rig.settings, RIG_SETTINGS, scope, f"rig `{rig.name.name}`", rig.name.span, diags)
+    settings = p.read_props(rig.settings, {**RIG_SETTINGS, **RIG_SETTINGS_PAIRS}, scope, f"rig `{rig.name.name}`",
+                            rig.name.span, diags)
     species = _unique(rig.species, lambda d: d.name, "species", diags)
     species_map = {name: _species(decl, scope, diags) for name, decl in species.items()}
     drives = _unique(rig.drives, lambda d: d.name, "drive", diags)
@@ -123,7 +162,22 @@ def resolve_rig(rig: ast.RigDef, path: str, scope: Scope, diags: list[Diagnostic
                {k: v for k, v in drive_map.items() if v is not None},
                {k: v for k, v in image_map.items() if v is not None}, port_map, rig.span,
                settings["environment"] if settings["environment"] is not None else 300.0,
-               settings["field_rms"] or 0.0)
+               settings["quantization_axis"], settings["min_spacing"] or DEFAULT_MIN_SPACING_M,
+               _resonant_pairs(species, species_map, diags), settings["field_rms"] or 0.0)
+
+
+def _resonant_pairs(decls: dict, species_map: dict, diags: list[Diagnostic]) -> frozenset:
+    """Species pairs declared `resonant_with` each other (order-free)."""
+    out = set()
+    for name, decl in decls.items():
+        for prop in (q for q in decl.props if q.key.name == "resonant_with"):
+            other = prop.value.name if isinstance(prop.value, ast.NameRef) else None
+            if other not in species_map:
+                diags.append(error("expected the name of a species of this rig", prop.value.span,
+                                   did_you_mean(other or "", species_map)))
+                continue
+            out.add(frozenset((name, other)))
+    return frozenset(out)
 
 
 def _bind_lets(lets, scope: Scope, diags: list[Diagnostic]) -> None:
@@ -159,7 +213,8 @@ def _species(decl: ast.SpeciesDecl, scope: Scope, diags: list[Diagnostic]) -> Sp
     values = p.read_props(decl.props, SPECIES_KEYS, scope, f"species `{decl.name.name}`", decl.name.span, diags)
     qubit = _qubit(values["qubit"], data, diags)
     level = _level(values["rydberg"], data, diags)
-    extra = {k: v for k, v in values.items() if k not in ("qubit", "rydberg", "temperature", "__spans__")}
+    extra = {k: v for k, v in values.items() if k not in ("qubit", "rydberg", "temperature", "__spans__",
+                                                         "resonant_with")}
     return Species(decl.name.name, data, qubit, level, values["temperature"] or 0.0, extra, decl.span)
 
 
@@ -258,7 +313,25 @@ def _port(decl: ast.PortDecl, scope: Scope, diags: list[Diagnostic]) -> Port:
         diags.append(error("a digital port has no value range", v["__spans__"]["range"], "add `kind analog`"))
     bounds = (value_range[0], value_range[1]) if value_range else None
     return Port(decl.name.name, decl.channel.text, v["kind"], v["latency"], v["width"], bounds,
-                value_range[2] if value_range else None, decl.span)
+                value_range[2] if value_range else None, decl.span, _port_extra(decl, v, diags))
+
+
+def _port_extra(decl: ast.PortDecl, v: dict, diags: list[Diagnostic]) -> dict:
+    """Electrode calibration and deflector settings, each allowed only on its kind."""
+    spans, kind = v["__spans__"], v["kind"]
+    deflector_keys = ("axis", "scale", "center", "sample_rate", "steers", "max_velocity", "max_acceleration")
+    for key in deflector_keys:
+        if key in spans and kind != "deflector":
+            diags.append(error(f"`{key}` belongs to a deflector port", spans[key], "add `kind deflector`"))
+    if "field_per_volt" in spans and kind != "analog":
+        diags.append(error("`field_per_volt` belongs to an analog (electrode) port", spans["field_per_volt"]))
+    if kind == "deflector":
+        for key in (k for k in DEFLECTOR_REQUIRED if v[k] is None):
+            diags.append(error(f"deflector port `{decl.name.name}` needs `{key}`", decl.name.span))
+    extra = {k: v[k] for k in deflector_keys + ("field_per_volt",) if v[k] is not None}
+    if isinstance(extra.get("steers"), ast.NameRef):
+        extra["steers"] = extra["steers"].name
+    return extra
 
 
 # ---- leg wavelengths against the species' lines ------------------------------

@@ -148,6 +148,7 @@ class SimulationResult:
     noise: dict = field(default_factory=dict)
     engine: str = "qutip"
     reduction: dict = field(default_factory=dict)
+    pair_models: dict = field(default_factory=dict)  # (a, b) -> atoms.pairs.PairShift, when computed here
     program: object = field(default=None, repr=False, compare=False)  # for array summaries
 
     def reduced_density(self, sites: tuple[str, ...], condition=None) -> np.ndarray:
@@ -225,10 +226,15 @@ def simulate(source, **options) -> SimulationResult:
     sources = noise.parse_sources(options["noise"]) if isinstance(options["noise"], str) else tuple(options["noise"])
     limits.check_shots(options["shots"])
     interactions = options["interactions_hz"]
-    warnings = []
+    warnings, pair_models = [], {}
     if interactions is None:
+        # Near pairs only (one C6 per species pair), then the pair model of each near
+        # Rydberg pair at its geometry (perturbative or diagonalised; atoms.pairs).
+        from ..compile.geometry import pair_shifts
         cutoff = CLUSTER_THRESHOLD * smallest_rydberg_rabi_hz(program, timeline)
         interactions = pair_interactions_hz(program, tuple(program.sites), cutoff)
+        pair_models = pair_shifts(program, timeline, pairs=set(interactions))
+        interactions.update({pair: model.shift_hz for pair, model in pair_models.items()})
         warnings = _forster_warnings(program)
     if options["ladder"] and not any(leg_rabi(d, 1.0) for d in program.rig.drives.values()):
         warnings.append(warning("ladder mode: no Rydberg drive declares `intermediate`, `lower_rabi` and "
@@ -277,7 +283,7 @@ def simulate(source, **options) -> SimulationResult:
         info["shared_noise"] = bool(options["shared_noise"])
     engines = sorted({r.engine for r in results})
     return SimulationResult(program.name, results, expectations, _records(results), interactions,
-                            tuple(warnings), info, "+".join(engines), runner.reduction, program)
+                            tuple(warnings), info, "+".join(engines), runner.reduction, pair_models, program)
 
 
 def _feed_forward(program, timeline, options, sources, interactions, warnings) -> SimulationResult:
@@ -308,7 +314,7 @@ def _feed_forward(program, timeline, options, sources, interactions, warnings) -
         info["repetitions"] = options["repetitions"]
     engines = sorted({r.engine for r in results})
     return SimulationResult(program.name, results, expectations, _records(results), interactions,
-                            tuple(warnings), info, "+".join(engines), runner.reduction, program)
+                            tuple(warnings), info, "+".join(engines), runner.reduction, program=program)
 
 
 def _choose(requested: str, jumps) -> str:

@@ -2,6 +2,7 @@
 from __future__ import annotations
 
 import json
+import math
 import sys
 
 from ..lang.diagnostics import render, sort_diagnostics
@@ -125,6 +126,7 @@ def as_document(result) -> dict:
         "site_populations": sites,
         **extra,
         "interactions_hz": {f"{a}-{b}": clean(v) for (a, b), v in sorted(result.interactions_hz.items())},
+        "interactions": {f"{a}-{b}": pair_entry(m) for (a, b), m in sorted(result.pair_models.items())},
         "clusters": [list(c.model.sites) for c in result.clusters],
         "noise": result.noise,
         "engine": result.engine,
@@ -132,6 +134,19 @@ def as_document(result) -> dict:
         "note": "model prediction for the played (tick-quantized) timeline; not a guarantee of the apparatus",
         "array_summary": _array_summary(result, sites),
     }
+
+
+def pair_entry(shift) -> dict:
+    """One pair's model in the JSON: which model, its shift, overlap and nearest channel defect."""
+    from .observables import clean
+
+    def num(x):
+        return clean(x) if math.isfinite(x) else None
+    return {"model": shift.model, "shift_hz": num(shift.shift_hz), "overlap": num(shift.overlap),
+            "channel_defect_hz": num(shift.defect_hz), "distance_um": num(shift.distance_m * 1e6),
+            "theta_deg": num(math.degrees(shift.theta_rad)), "field_v_m": num(shift.field_v_m),
+            "crossover_radius_um": num(shift.crossover_radius_m * 1e6),
+            "le_roy_radius_um": num(shift.le_roy_radius_m * 1e6)}
 
 
 def _array_summary(result, sites: dict) -> dict:

@@ -49,6 +49,16 @@ class Sequence:
         from .emit import write_all
         return write_all(self.checked, directory)
 
+    def _repr_html_(self) -> str:
+        """Jupyter: counts, the compile report and the timeline figure."""
+        from .report.notebook import sequence_html
+        return sequence_html(self)
+
+    def to_dataframe(self):
+        """The played timeline as a pandas DataFrame (pandas is optional)."""
+        from .report.notebook import timeline_dataframe
+        return timeline_dataframe(self)
+
 
 def load(path: str) -> Sequence:
     """Parse, resolve and check `path`; raises SeqlangError listing every problem."""

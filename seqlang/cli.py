@@ -80,6 +80,13 @@ def cmd_show(args) -> int:
     print(timeline_table(sequence.checked))
     print()
     print(compile_summary(sequence.checked))
+    from .show import decision_summary
+    if decision_summary(sequence.checked):
+        print("\n" + decision_summary(sequence.checked))
+    from .sim.crosstalk import summary as crosstalk_summary
+    crosstalk = crosstalk_summary(sequence.program, sequence.played)
+    if crosstalk:
+        print("\nimaging crosstalk (far-detuned scattering, Grimm et al. 2000):\n" + "\n".join(crosstalk))
     if not args.no_pairs and len(sequence.program.sites) > 1:
         table = pair_table(sequence.program)
         if table:
@@ -93,12 +100,31 @@ def cmd_plot(args) -> int:
     sequence = _load(args.file)
     if args.what == "timeline":
         from .plot.timeline import plot_timeline
-        plot_timeline(sequence.checked, args.output)
+        plot_timeline(sequence.checked, args.output, piecewise=not args.linear_time)
+    elif args.what == "array":
+        from .plot.array import plot_array
+        try:
+            plot_array(sequence, args.output, args.record)
+        except ValueError as exc:
+            raise UsageError(str(exc)) from None
     else:
         from .plot.results import plot_results
-        plot_results(sequence, args.what, args.output)
+        plot_results(sequence, args.what, args.output, piecewise=not args.linear_time,
+                     **_plot_simulation_options(args))
     print(f"wrote {args.output}")
     return EXIT_OK
+
+
+def _plot_simulation_options(args) -> dict:
+    """simulate() options from `plot`'s flags; error bars stand for --shots repetitions."""
+    from .sim.noise import parse_sources
+    try:
+        sources = parse_sources(args.noise)
+    except ValueError as exc:
+        raise UsageError(str(exc)) from None
+    if args.shots < 1:
+        raise UsageError("--shots must be at least 1")
+    return {"noise": sources, "shots": args.shots, "seed": args.seed, "repetitions": args.shots}
 
 
 def _check_figure_name(path: str) -> None:
@@ -145,8 +171,16 @@ def build_parser() -> argparse.ArgumentParser:
     _add_file(p)
     p.add_argument("-o", "--output", required=True, metavar="FILE",
                    help="image file to write; its extension names the format (.png, .svg or .pdf)")
-    p.add_argument("--what", choices=("timeline", "populations", "correlators"), default="timeline",
-                   help="what to draw (default: timeline)")
+    p.add_argument("--what", choices=("timeline", "populations", "correlators", "array"), default="timeline",
+                   help="what to draw (default: timeline); `array`: the site map shaded by P(bright)")
+    p.add_argument("--record", metavar="NAME", help="with --what array: the record whose P(bright) shades the map")
+    p.add_argument("--linear-time", action="store_true",
+                   help="a plain linear time axis (default: long stretches compressed so short pulses show)")
+    p.add_argument("--noise", default="off", metavar="off|all|SOURCE,...",
+                   help="noise sources for populations/correlators (default off; see `simulate --help`)")
+    p.add_argument("--shots", type=int, default=200,
+                   help="Monte Carlo shots, and the repetitions N behind the error bars (default 200)")
+    p.add_argument("--seed", type=int, default=1, help="random seed (default 1); shown on the figure")
     p.set_defaults(run=cmd_plot)
 
     _add_optional_commands(sub)
@@ -156,7 +190,7 @@ def build_parser() -> argparse.ArgumentParser:
 def _add_optional_commands(sub) -> None:
     """Commands whose modules register themselves (simulation, editor support)."""
     import importlib
-    for module in ("seqlang.sim.commands", "seqlang.editor.commands"):
+    for module in ("seqlang.sim.commands", "seqlang.editor.commands", "seqlang.report.commands"):
         try:
             importlib.import_module(module).register(sub)
         except ModuleNotFoundError as exc:

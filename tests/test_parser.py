@@ -180,3 +180,46 @@ def test_a_new_rule_needs_only_a_builder_method(monkeypatch):
     with pytest.raises(SeqlangError) as info:
         parse_text("sequence s {\n  = 1\n}\n", "h.seq")
     assert "a statement (hold, pulse, wait" in info.value.diagnostics[0].message
+
+
+def _our_spans(node, out, skip=()):
+    """Spans of every node built from a rule's extent (names and units carry token spans)."""
+    from dataclasses import fields, is_dataclass
+    if isinstance(node, (tuple, list)):
+        for item in node:
+            _our_spans(item, out, skip)
+    elif is_dataclass(node):
+        if not isinstance(node, ast.Ident) and id(node) not in skip:
+            s = node.span
+            out.append((s.line, s.column, s.end_line, s.end_column, s.start, s.end))
+        inner = (id(node.channel),) if isinstance(node, ast.PortDecl) else ()
+        for f in fields(node):
+            if f.name not in ("span", "unit_span"):
+                _our_spans(getattr(node, f.name), out, skip + inner)
+
+
+PROGRAMS = __import__("pathlib").Path(__file__).parent.parent / "programs"
+
+
+@pytest.mark.parametrize("name", sorted(p.name for p in PROGRAMS.glob("*.*") if p.suffix in (".seq", ".rig")))
+def test_spans_match_lark_position_propagation(name):
+    """Independent reference: lark's own tree with propagate_positions gives the same extents."""
+    from collections import Counter
+    from importlib import resources
+
+    from lark import Lark, Tree
+    from lark.visitors import _vargs_meta
+
+    from seqlang.lang import parser
+
+    text = (PROGRAMS / name).read_text(encoding="utf-8")
+    grammar = resources.files("seqlang").joinpath("grammar/seqlang.lark").read_text("utf-8")
+    reference = Lark(grammar, parser="lalr", propagate_positions=True, maybe_placeholders=True).parse(text)
+    with_extent = {n for n in dir(parser._Builder)
+                   if getattr(getattr(parser._Builder, n), "visit_wrapper", None) is _vargs_meta}
+    with_extent |= {"setting"}
+    expected = [(t.meta.line, t.meta.column, t.meta.end_line, t.meta.end_column, t.meta.start_pos, t.meta.end_pos)
+                for t in reference.iter_subtrees() if isinstance(t, Tree) and t.data in with_extent]
+    ours: list = []
+    _our_spans(parse_text(text, name).items, ours)
+    assert len(expected) > 10 and Counter(ours) == Counter(expected)

@@ -12,6 +12,7 @@ from ..lang.parser import cyclic_gc_paused
 from ..program.model import Program
 from ..program.resolve import resolve
 from .checks import check_timeline, check_waveforms
+from .decisions import check_decisions
 from .hardware import HardwarePlan, plan
 from .lower import lower
 from .quantize import quantize
@@ -41,7 +42,7 @@ def check(path: str, sources: Mapping[str, str] | None = None) -> Checked:
 def _check(path: str, sources: Mapping[str, str] | None) -> Checked:
     program, diags = resolve(path, sources)
     timeline = lower(program)
-    diags = diags + check_timeline(program, timeline)
+    diags = diags + check_timeline(program, timeline) + check_decisions(program, timeline)
     quantized, report, quant_diags = quantize(program, timeline)
     diags += quant_diags + [d for d in check_timeline(program, quantized) if d.span not in {x.span for x in diags}]
     if not any(d.severity == ERROR for d in diags):

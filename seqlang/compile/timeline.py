@@ -8,7 +8,7 @@ from __future__ import annotations
 from dataclasses import dataclass
 
 from ..lang.diagnostics import Span
-from ..program.model import Shape
+from ..program.model import Decision, Shape
 
 PULSE, IMAGE, SWITCH, SET, TRIGGER = "pulse", "image", "switch", "set", "trigger"
 
@@ -33,6 +33,7 @@ class Event:
     shape: Shape = Shape("square")
     record: str | None = None
     value: float = 0.0
+    decision: Decision | None = None  # feed-forward: played per key of an image record
 
     @property
     def end_s(self) -> float:
@@ -51,6 +52,10 @@ class Timeline:
 
     def pulses(self) -> tuple[Event, ...]:
         return tuple(e for e in self.events if e.kind == PULSE)
+
+    def conditioned(self) -> tuple[Event, ...]:
+        """The events that depend on an image record."""
+        return tuple(e for e in self.events if e.decision is not None)
 
 
 def evolve(obj, **changes):

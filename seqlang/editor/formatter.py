@@ -197,6 +197,8 @@ def _compound(expr, text: str) -> str:
         return f"{expression(expr.low, text)} .. {expression(expr.high, text)}"
     if isinstance(expr, ast.StatePair):
         return f"{_kwtuple(expr.lower, text)} <-> {_kwtuple(expr.upper, text)}"
+    if isinstance(expr, ast.RecordSel):
+        return f"{expr.record.name}[{_names(expr.sites)}]"
     raise TypeError(f"cannot format {type(expr).__name__}")
 
 
@@ -376,12 +378,39 @@ def _print_trigger(printer, stmt: ast.TriggerStmt, depth):
     _line(printer, stmt, f"trigger {stmt.port.name}{_inline_props(stmt.props, printer.text)}", depth)
 
 
+def _condition(cond, text: str) -> str:
+    if isinstance(cond, ast.OutcomeIs):
+        return f"{expression(cond.selection, text)} is {cond.word.name}"
+    return f"{expression(cond.left, text)} {cond.op} {expression(cond.right, text)}"
+
+
+def _print_when(printer, stmt: ast.WhenStmt, depth):
+    """`when … {`, the branch, and `} otherwise {` with the other branch when there is one."""
+    brace = printer.brace_line(stmt.condition.span.end)
+    printer.unit(f"when {_condition(stmt.condition, printer.text)} {{", stmt.span.line, brace, depth)
+    printer.open_block()
+    for child in stmt.then:
+        _STATEMENT_PRINTERS[type(child)](printer, child, depth + 1)
+    if stmt.otherwise is not None:
+        after = stmt.then[-1].span.end if stmt.then else stmt.condition.span.end
+        position = printer.text.find("otherwise", after)
+        line = printer.text.count("\n", 0, position) + 1
+        printer.flush_before(line, depth + 1)
+        printer.at_block_start = True
+        printer.unit("} otherwise {", line, printer.brace_line(position), depth)
+        printer.open_block()
+        for child in stmt.otherwise:
+            _STATEMENT_PRINTERS[type(child)](printer, child, depth + 1)
+    printer.close(stmt.span.end_line, depth)
+
+
 _STATEMENT_PRINTERS = {
     ast.PulseStmt: _print_pulse, ast.WaitStmt: _print_wait, ast.TogetherStmt: _print_together,
     ast.RepeatStmt: _print_repeat, ast.DoStmt: _print_do, ast.ImageStmt: _print_image,
     ast.SwitchStmt: _print_switch, ast.SetStmt: _print_set, ast.TriggerStmt: _print_trigger,
     ast.LetStmt: _print_let, ast.Prop: _print_prop, ast.SpeciesDecl: _print_species,
     ast.DriveDecl: _print_drive, ast.ImageDecl: _print_image_decl, ast.PortDecl: _print_port,
+    ast.WhenStmt: _print_when,
 }
 
 _ITEM_PRINTERS = {

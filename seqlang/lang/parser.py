@@ -475,6 +475,27 @@ class _Builder(Transformer):
         (state, is_ket) = children[1]
         return ast.ExpectStmt(children[0], state, is_ket, self._span(meta))
 
+    # feed-forward
+    @v_args(meta=True)
+    def record_sel(self, meta, children):
+        return ast.RecordSel(self._ident(children[0]), children[1], self._span(meta))
+
+    @v_args(meta=True)
+    def compare_cond(self, meta, children):
+        left, op, right = children
+        return ast.Compare(str(op), left, right, self._span(meta))
+
+    @v_args(meta=True)
+    def outcome_cond(self, meta, children):
+        return ast.OutcomeIs(children[0], self._ident(children[1]), self._span(meta))
+
+    def otherwise(self, children):
+        return children[0]
+
+    @v_args(meta=True)
+    def when_stmt(self, meta, children):
+        return ast.WhenStmt(children[0], children[1], children[2], self._span(meta))
+
     @v_args(meta=True)
     def use_stmt(self, meta, children):
         return ast.UseStmt(str(children[0])[1:-1], self._span(meta))

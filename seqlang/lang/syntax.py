@@ -136,8 +136,17 @@ class StatePair:
     span: Span
 
 
+@dataclass(frozen=True)
+class RecordSel:
+    """``mid[h1, h2]``: some sites of an image record (sites may name groups)."""
+
+    record: Ident
+    sites: tuple[Ident, ...]
+    span: Span
+
+
 Expr = Union[Number, UnitRef, NameRef, WithUnit, BinOp, Neg, Call, TupleExpr,
-             RangeExpr, LevelExpr, ChannelExpr, StatePair]
+             RangeExpr, LevelExpr, ChannelExpr, StatePair, RecordSel]
 
 
 @node
@@ -315,8 +324,37 @@ class TriggerStmt:
     span: Span
 
 
+@dataclass(frozen=True)
+class Compare:
+    """``left op right`` with op in == != < <= > >=: a `when` condition."""
+
+    op: str
+    left: Expr
+    right: Expr
+    span: Span
+
+
+@dataclass(frozen=True)
+class OutcomeIs:
+    """``mid[h] is bright`` (or ``dark``): a `when` condition on one site."""
+
+    selection: Expr
+    word: Ident
+    span: Span
+
+
+@dataclass(frozen=True)
+class WhenStmt:
+    """``when condition { ... } [otherwise { ... }]``: played per record outcome."""
+
+    condition: Union[Compare, OutcomeIs]
+    then: tuple["Stmt", ...]
+    otherwise: tuple["Stmt", ...] | None
+    span: Span
+
+
 Stmt = Union[PulseStmt, WaitStmt, TogetherStmt, RepeatStmt, DoStmt, ImageStmt,
-             SwitchStmt, SetStmt, TriggerStmt, LetStmt]
+             SwitchStmt, SetStmt, TriggerStmt, LetStmt, WhenStmt]
 
 
 @node

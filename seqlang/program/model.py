@@ -74,6 +74,7 @@ class Imaging:
     latency_s: float
     extra: Mapping[str, float]
     span: Span
+    decision_latency_s: float = 0.0  # image end → first operation that may depend on its record
 
 
 @dataclass(frozen=True)
@@ -104,6 +105,7 @@ class Rig:
     ports: Mapping[str, Port]
     span: Span
     environment_k: float = 300.0  # temperature of the surroundings (black-body radiation)
+    field_rms_g: float = 0.0  # quasi-static field offset shared by the array, rms (G)
 
 
 @dataclass(frozen=True)
@@ -127,6 +129,52 @@ class Shape:
         return dict(self.params).get(name, default)
 
 
+# ---- feed-forward ----------------------------------------------------------------
+@dataclass(frozen=True)
+class Selection:
+    """Sites of one image record: the key a conditioned operation is looked up by.
+
+    The key is the number of sites reported bright, 0 .. len(sites) (for one site:
+    the outcome bit).
+    """
+
+    record: str
+    sites: tuple[str, ...]
+    species: str
+    span: Span = field(compare=False, hash=False)
+
+    @property
+    def keys(self) -> range:
+        return range(len(self.sites) + 1)
+
+    def label(self) -> str:
+        return f"{self.record}[{', '.join(self.sites)}]"
+
+
+@dataclass(frozen=True)
+class Variant:
+    """The parameters a conditioned pulse plays for one key."""
+
+    rabi_hz: float
+    detuning_hz: float
+    phase_rad: float
+    area_rad: float
+
+
+@dataclass(frozen=True)
+class Decision:
+    """How an operation depends on a record: played for which keys, and with what.
+
+    `enabled[k]` says whether it plays when the key is k; `variants[k]` (pulses
+    with record-dependent values only) its parameters for key k.
+    """
+
+    selection: Selection
+    enabled: tuple[bool, ...]
+    variants: tuple[Variant, ...] | None
+    span: Span
+
+
 # ---- operations of the sequence ---------------------------------------------
 @dataclass(frozen=True)
 class PulseOp:
@@ -141,6 +189,7 @@ class PulseOp:
     area_rad: float
     shape: Shape
     span: Span
+    decision: Decision | None = None
 
 
 @dataclass(frozen=True)
@@ -192,7 +241,18 @@ class RepeatOp:
     span: Span
 
 
-Op = Union[PulseOp, WaitOp, ImageOp, PortOp, SerialOp, TogetherOp, RepeatOp]
+@dataclass(frozen=True)
+class BranchOp:
+    """``when``: `then` plays for the keys where `decision.enabled`, `otherwise` for the rest;
+    both start together and last as long as the longer one (the shorter is padded)."""
+
+    decision: Decision
+    then: SerialOp
+    otherwise: SerialOp
+    span: Span
+
+
+Op = Union[PulseOp, WaitOp, ImageOp, PortOp, SerialOp, TogetherOp, RepeatOp, BranchOp]
 
 
 @dataclass(frozen=True)

@@ -14,11 +14,18 @@ from . import props as p
 from .evaluate import EvalError, Scope, evaluate
 from .model import DRIVE_KINDS, Drive, Imaging, Legs, Port, Rig, Species
 
+_PER_FIELD = tuple(f - g for f, g in zip(units.FREQUENCY, units.FIELD))  # Hz/G: qubit shift per field
+
+_INTENSITY = tuple(w - 2 * m for w, m in zip(units.POWER, units.LENGTH))  # W/m²
+
 RIG_SETTINGS = {
     "tick": p.Key(p.positive(p.duration, "tick"), required=True, doc="the sequencer clock period, e.g. 2 ns"),
     "counter_bits": p.Key(p.integer(8, 64), 32, doc="width of the sequencer's duration counter"),
     "environment": p.Key(p.non_negative(p.temperature, "environment temperature"), 300.0,
                          doc="temperature of the surroundings, for black-body decay"),
+    # rms of the quasi-static magnetic field offset shared by the whole array (one value per shot);
+    # each species feels it through its `field_sensitivity`.
+    "field_rms": p.Key(p.non_negative(p.quantity(units.FIELD)), 0.0),
 }
 
 SPECIES_KEYS = {
@@ -33,6 +40,7 @@ SPECIES_KEYS = {
     "t2_star": p.Key(p.non_negative(p.duration), 0.0),
     "field_noise": p.Key(p.non_negative(p.frequency), 0.0),
     "field_noise_freq": p.Key(p.non_negative(p.frequency), 0.0),
+    "field_sensitivity": p.Key(p.quantity(_PER_FIELD), 0.0),
 }
 
 _COMMON_DRIVE_KEYS = {
@@ -75,6 +83,14 @@ IMAGE_KEYS = {
     "latency": p.Key(p.non_negative(p.duration), 0.0),
     "false_positive": p.Key(p.fraction, 0.0),
     "false_negative": p.Key(p.fraction, 0.0),
+    # Feed-forward: camera read-out plus processing, from the end of the imaging to
+    # the first operation that may depend on its record.
+    "decision_latency": p.Key(p.non_negative(p.duration), 0.0),
+    # Imaging crosstalk: the imaging light's wavelength (default: the species' D2 line) and its
+    # intensity, or its saturation parameter on the imaged species' D2 line.
+    "light_wavelength": p.Key(p.positive(p.length, "wavelength"), None),
+    "light_intensity": p.Key(p.non_negative(p.quantity(_INTENSITY)), None),
+    "saturation": p.Key(p.non_negative(p.quantity(units.DIMENSIONLESS)), None),
 }
 
 PORT_KEYS = {
@@ -106,7 +122,8 @@ def resolve_rig(rig: ast.RigDef, path: str, scope: Scope, diags: list[Diagnostic
                {k: v for k, v in species_map.items() if v is not None},
                {k: v for k, v in drive_map.items() if v is not None},
                {k: v for k, v in image_map.items() if v is not None}, port_map, rig.span,
-               settings["environment"] if settings["environment"] is not None else 300.0)
+               settings["environment"] if settings["environment"] is not None else 300.0,
+               settings["field_rms"] or 0.0)
 
 
 def _bind_lets(lets, scope: Scope, diags: list[Diagnostic]) -> None:
@@ -227,8 +244,9 @@ def _imaging(decl: ast.ImageDecl, species: dict, scope: Scope, diags: list[Diagn
     if v["port"] is None or v["duration"] is None:
         return None
     extra = {"false_positive": v["false_positive"], "false_negative": v["false_negative"]}
+    extra.update({k: v[k] for k in ("light_wavelength", "light_intensity", "saturation") if v[k] is not None})
     return Imaging(decl.species.name, v["port"], v["duration"], v["fidelity"], v["loss"], v["latency"],
-                   extra, decl.span)
+                   extra, decl.span, v["decision_latency"] or 0.0)
 
 
 def _port(decl: ast.PortDecl, scope: Scope, diags: list[Diagnostic]) -> Port:

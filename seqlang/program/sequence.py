@@ -13,6 +13,7 @@ from ..lang import units
 from ..lang.diagnostics import Diagnostic, Span, did_you_mean, error, warning
 from ..lang.units import format_quantity
 from . import props as p
+from .decisions import FeedForwardMixin
 from .evaluate import EvalError, Scope, SiteRef, evaluate, evaluate_any, expect_kind
 from .model import Drive, ImageOp, PortOp, PulseOp, RepeatOp, Rig, SerialOp, Shape, Site, TogetherOp, WaitOp
 
@@ -49,7 +50,7 @@ PULSE_KEYS = {
 TRIGGER_KEYS = {"width": p.Key(p.positive(p.duration, "width"), None)}
 
 
-class SequenceResolver:
+class SequenceResolver(FeedForwardMixin):
     """Turns statements into operations, collecting diagnostics."""
 
     def __init__(self, rig: Rig, sites: dict[str, Site], groups: dict[str, tuple[str, ...]],
@@ -63,7 +64,7 @@ class SequenceResolver:
     def resolve_body(self, stmts, scope: Scope, span: Span) -> SerialOp:
         """All statements of a body, one after another."""
         if self.root is None:
-            self.root = scope
+            self.root, self.top_stmts = scope, stmts
         scope = scope.child()
         ops = [op for op in (self._stmt(s, scope) for s in stmts) if op is not None]
         return SerialOp(tuple(ops), span)
@@ -80,6 +81,8 @@ class SequenceResolver:
     def _LetStmt(self, stmt: ast.LetStmt, scope: Scope):
         if stmt.name.name in units.UNITS:
             raise EvalError(error(f"`{stmt.name.name}` is a unit and cannot be a constant's name", stmt.name.span))
+        if self._deferred_let(stmt, scope):
+            return None
         scope.values[stmt.name.name] = evaluate(stmt.value, scope)
         return None
 
@@ -154,7 +157,7 @@ class SequenceResolver:
                 if prm.default is None:
                     raise EvalError(error(f"block `{block.name.name}` needs a value for `{prm.name.name}`",
                                           stmt.span))
-                inner.values[prm.name.name] = evaluate(prm.default, inner)
+                inner.values[prm.name.name] = self._arg_value(prm.default, inner)
         return inner
 
     def _arg_value(self, expr: ast.Expr, scope: Scope):
@@ -162,6 +165,9 @@ class SequenceResolver:
             names = self._site_names(expr.name)
             if names is not None:
                 return SiteRef(names, expr.span)
+            if self._named_ref(expr) is not None:
+                return self._named_ref(expr)
+            raise self._unknown_argument(expr, scope)
         return evaluate_any(expr, scope)
 
     def _site_names(self, name: str):
@@ -183,7 +189,11 @@ class SequenceResolver:
         record = stmt.record.name
         if record in self.records and not self.block_stack:
             raise EvalError(error(f"record `{record}` is written twice", stmt.record.span))
+        if getattr(self, "when_stack", None):
+            raise EvalError(error("imaging cannot depend on a record: it is part of the fixed timeline",
+                                  stmt.span, "image before or after the `when`"))
         self.records[record] = stmt.record.span
+        self._note_record(record, species)
         return ImageOp(species, record, imaging.duration_s, stmt.span)
 
     def _port(self, ident: ast.Ident, kind: str):
@@ -216,11 +226,11 @@ class SequenceResolver:
 
     # ---- pulses ------------------------------------------------------------
     def _PulseStmt(self, stmt: ast.PulseStmt, scope: Scope) -> PulseOp | None:
-        drive = self.rig.drives.get(stmt.drive.name)
-        if drive is None:
-            raise EvalError(error(f"unknown drive `{stmt.drive.name}`", stmt.drive.span,
-                                  did_you_mean(stmt.drive.name, self.rig.drives)))
+        drive = self._drive_of(stmt.drive, scope)
         targets = self._targets(stmt, drive, scope)
+        selection = self._statement_selection([prop.value for prop in stmt.props], scope, stmt.span)
+        if selection is not None:
+            return self._keyed_pulse(stmt, drive, targets, scope, selection) if targets is not None else None
         before = len(self.diags)
         v = p.read_props(stmt.props, PULSE_KEYS, scope, "a pulse", stmt.span, self.diags)
         if len(self.diags) > before or targets is None:

@@ -14,6 +14,7 @@ import numpy as np
 from ..lang.diagnostics import Diagnostic, warning
 from . import engine as fast
 from . import noise, observables
+from . import shared as shared_noise
 from .basis import (Basis, full_basis, norms, partial_trace_density, partial_trace_kets, probabilities, reduced_basis,
                     site_populations)
 from .clusters import clusters as find_clusters
@@ -22,7 +23,8 @@ from .solve import propagate
 
 ENGINES = ("auto", "fast", "lindblad", "qutip")
 OPTIONS = {"interactions_hz": None, "history": False, "ladder": False, "noise": "off", "shots": 200, "seed": 1,
-           "engine": "auto", "truncate": True, "repetitions": None, "progress": False}
+           "engine": "auto", "truncate": True, "repetitions": None, "progress": False,
+           "shared_noise": True, "feed_forward": True}
 # Outcomes rarer than this are not worth a conditioned report.
 MIN_CONDITION_PROBABILITY = 1e-9
 # Drop |rr⟩ of strongly blockaded pairs while the estimated error stays below this
@@ -132,6 +134,7 @@ class SimulationResult:
     noise: dict = field(default_factory=dict)
     engine: str = "qutip"
     reduction: dict = field(default_factory=dict)
+    program: object = field(default=None, repr=False, compare=False)  # for array summaries
 
     def reduced_density(self, sites: tuple[str, ...], condition=None) -> np.ndarray:
         """Density matrix (4 levels per atom) of `sites`, optionally given one imaging outcome."""
@@ -140,6 +143,21 @@ class SimulationResult:
     def final_state(self) -> dict[tuple[str, ...], np.ndarray]:
         """Density matrix of each cluster, averaged over imaging outcomes and shots."""
         return {c.model.sites: c.density() for c in self.clusters}
+
+    def _repr_html_(self) -> str:
+        """Jupyter: a compact table of the expectations, and the correlator figure."""
+        from ..report.notebook import result_html
+        return result_html(self)
+
+    def to_xarray(self):
+        """Expectations, final populations and any population history as an xarray.Dataset."""
+        from ..report.notebook import result_dataset
+        return result_dataset(self)
+
+    def to_dataframe(self):
+        """One row per expectation as a pandas DataFrame (pandas is optional)."""
+        from ..report.notebook import result_dataframe
+        return result_dataframe(self)
 
 
 def reduced_density(clusters, sites, condition=None, shot: int | None = None, dim: int = DIM) -> np.ndarray:
@@ -184,25 +202,42 @@ def simulate(source, **options) -> SimulationResult:
         warnings.append(warning("ladder mode: no Rydberg drive declares `intermediate`, `lower_rabi` and "
                                 "`upper_rabi`, so the explicit ladder is the effective model", program.rig.span))
     sources = noise.parse_sources(options["noise"]) if isinstance(options["noise"], str) else tuple(options["noise"])
-    shots = options["shots"] if noise.is_sampled(sources) else 1
+    conditioned = bool(timeline.conditioned())
+    shots = options["shots"] if noise.is_sampled(sources) or conditioned else 1
     rng = np.random.default_rng(options["seed"])
     runner = _ClusterRunner(program, options, sources, shots, rng)
-    results = [runner.run(build_model(program, timeline, group, interactions, ladder=options["ladder"]))
-               for group in find_clusters(program, timeline, interactions)]
+    if options["shared_noise"]:
+        runner.shared = shared_noise.draw_shared(list(program.rig.drives), shots, options["seed"])
+    groups = find_clusters(program, timeline, interactions)
+    if conditioned:  # imaging outcomes sampled per shot, conditioned operations use them
+        from . import feedforward
+        ff = feedforward.run(runner, timeline, groups, interactions)
+        results = ff.with_ff if options["feed_forward"] else ff.without
+    else:
+        ff = None
+        results = [runner.run(build_model(program, timeline, group, interactions, ladder=options["ladder"]))
+                   for group in groups]
     done = min(r.shots for r in results) if shots > 1 else 1
     repetitions = options["repetitions"] or done
     expectations = tuple(_with_errors(_expectation(program, results, e), results, repetitions, done)
                          for e in program.expects)
+    if ff is not None:
+        expectations = tuple({**e, "conditioned": ff.conditioned(program, x) if options["feed_forward"]
+                              else e["conditioned"],
+                              "feed_forward": ff.summary(program, x, _expectation,
+                                                         e if options["feed_forward"] else None)}
+                             for e, x in zip(expectations, program.expects))
     if options["repetitions"]:
         expectations = tuple({**e, "sampled_counts": sample_counts(e["populations"], repetitions,
                                                                    (options["seed"], k))}
                              for k, e in enumerate(expectations))
-    info = {"sources": list(sources), "shots": done, "seed": options["seed"], "repetitions": repetitions}
+    info = {"sources": list(sources), "shots": done, "seed": options["seed"], "repetitions": repetitions,
+            "shared_noise": bool(options["shared_noise"])}
     if runner.interrupted:
         info["interrupted"] = f"stopped after {done} of {shots} shots"
     engines = sorted({r.engine for r in results})
     return SimulationResult(program.name, tuple(results), expectations, _records(results), interactions,
-                            tuple(warnings), info, "+".join(engines), runner.reduction)
+                            tuple(warnings), info, "+".join(engines), runner.reduction, program)
 
 
 class _ClusterRunner:
@@ -211,6 +246,7 @@ class _ClusterRunner:
     def __init__(self, program, options, sources, shots, rng):
         self.program, self.options, self.sources, self.shots, self.rng = program, options, sources, shots, rng
         self.interrupted = False
+        self.shared = None  # classical noise shared by the array (sim/shared.py)
         self.reduction: dict = {"truncated_pairs": [], "neglected_bound": 0.0, "states": 0, "full_states": 0}
 
     def run(self, nominal: Model) -> ClusterResult:
@@ -229,7 +265,8 @@ class _ClusterRunner:
     def _draw(self, model: Model) -> noise.Shots:
         if not noise.is_sampled(self.sources):
             return noise.nominal_shots(model)
-        return noise.sample(self.program, model, self.sources, noise.draw(model, self.shots, self.rng))
+        draws = shared_noise.apply(self.shared, model, noise.draw(model, self.shots, self.rng), self.rng)
+        return noise.sample(self.program, model, self.sources, draws)
 
     def _basis(self, model: Model, jumps, density: bool) -> Basis:
         rydberg = {c.site for seg in model.segments for c in seg.couplings if RYD in (c.lower, c.upper)}
@@ -347,9 +384,20 @@ def _with_errors(expectation: dict, clusters, repetitions: int, shots: int) -> d
                                 for k, v in expectation["populations"].items()}
     inside = [c for c in clusters if set(expectation["sites"]) <= set(c.model.sites)]
     if inside and shots > 1:
-        values = [_shot_fidelity(inside[0], k, expectation) for k in range(inside[0].shots)]
+        from .feedforward import shot_fidelities
+        state = expectation["state"]
+        fast_values = shot_fidelities(inside[:1], _Expect(tuple(expectation["sites"]), state, state.startswith("|")))
+        values = fast_values if fast_values is not None else \
+            [_shot_fidelity(inside[0], k, expectation) for k in range(inside[0].shots)]
         out["fidelity_error"] = observables.clean(np.std(values, ddof=1) / math.sqrt(len(values)))
     return out
+
+
+@dataclass(frozen=True)
+class _Expect:
+    sites: tuple[str, ...]
+    state: str
+    is_ket: bool
 
 
 def _shot_fidelity(cluster: ClusterResult, shot: int, expectation) -> float:

@@ -133,11 +133,12 @@ def partial_trace_kets(basis: Basis, kets: np.ndarray, keep: list[int], dim: int
     """Σ over kets of Tr_rest |ψ⟩⟨ψ| on the `keep` sites (levels ≥ dim must be empty)."""
     inner, outer, count = _split(basis, keep, dim)
     inside = _inside(basis, keep, dim)
+    flat = kets.reshape(-1, basis.size)
     rho = np.zeros((dim ** len(keep),) * 2, dtype=complex)
-    for psi in kets.reshape(-1, basis.size):
-        block = np.zeros((dim ** len(keep), count), dtype=complex)
-        block[inner[inside], outer[inside]] = psi[inside]
-        rho += block @ block.conj().T
+    for lo in range(0, flat.shape[0], 256):  # all kets of a chunk at once: many shots, small blocks
+        block = np.zeros((min(256, flat.shape[0] - lo), dim ** len(keep), count), dtype=complex)
+        block[:, inner[inside], outer[inside]] = flat[lo:lo + 256][:, inside]
+        rho += np.einsum("kio,kjo->ij", block, block.conj())
     return rho
 
 

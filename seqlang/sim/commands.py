@@ -12,7 +12,7 @@ from ..lang.diagnostics import render, sort_diagnostics
 # seqlang.sim.noise.SOURCES.
 ENGINES = ("auto", "fast", "lindblad", "qutip")
 SOURCES = ("decay", "dephasing", "scattering", "laser_noise", "intensity", "doppler", "motion",
-           "detuning_error", "t2_star", "field_noise", "preparation", "imaging")
+           "detuning_error", "t2_star", "field_noise", "preparation", "imaging", "crosstalk")
 
 
 def register(sub) -> None:
@@ -22,6 +22,8 @@ def register(sub) -> None:
     p.add_argument("--ladder", action="store_true",
                    help="keep the intermediate state of Rydberg drives explicit (needs the legs' Rabi frequencies)")
     _noise_options(p)
+    p.add_argument("--unshared-noise", dest="shared_noise", action="store_false",
+                   help="draw the field and beam noise per cluster instead of once per shot for the array")
     p.add_argument("--sample", type=int, metavar="N",
                    help="error bars for N repetitions of the experiment, and a sampled histogram of N outcomes")
     p.set_defaults(run=cmd_simulate)
@@ -30,6 +32,8 @@ def register(sub) -> None:
     b.add_argument("file", help="a sequence file (*.seq)")
     b.add_argument("--json", action="store_true", help="print one JSON object instead of the table")
     b.add_argument("-o", "--output", metavar="PNG", help="also draw the budget as a bar chart")
+    b.add_argument("--what-if", action="store_true",
+                   help="add a panel: the all-sources infidelity with each source halved (first-order estimate)")
     _run_options(b)
     b.set_defaults(run=cmd_budget)
 
@@ -63,7 +67,8 @@ def cmd_simulate(args) -> int:
     sequence = _load(args.file)
     try:
         result = simulate(sequence, ladder=args.ladder, noise=sources, shots=args.shots, seed=args.seed,
-                          engine=args.engine, truncate=args.truncate, repetitions=args.sample, progress=True)
+                          engine=args.engine, truncate=args.truncate, repetitions=args.sample, progress=True,
+                          shared_noise=args.shared_noise)
     except ValueError as exc:
         raise UsageError(str(exc)) from None
     for diagnostic in sort_diagnostics(result.warnings):
@@ -100,13 +105,22 @@ def as_document(result) -> dict:
         "engine": result.engine,
         "reduction": result.reduction,
         "note": "model prediction for the played (tick-quantized) timeline; not a guarantee of the apparatus",
+        "array_summary": _array_summary(result, sites),
     }
 
 
+def _array_summary(result, sites: dict) -> dict:
+    from .array import summarize
+    return summarize(result.program, sites, result.records) if getattr(result, "program", None) else {}
+
+
 def summary(document: dict) -> str:
+    from .array import MANY_SITES, cluster_line, lines as array_lines
     noise = document.get("noise", {})
-    lines = [f"simulated {document['program']} (clusters: "
-             + ", ".join("{" + ",".join(c) + "}" for c in document["clusters"]) + "); noise: "
+    many = len(document["site_populations"]) > MANY_SITES
+    clusters = cluster_line(document["clusters"]) if many else \
+        "clusters: " + ", ".join("{" + ",".join(c) + "}" for c in document["clusters"])
+    lines = [f"simulated {document['program']} (" + clusters + "); noise: "
              + (", ".join(noise.get("sources", [])) or "off")
              + (f"; {noise['shots']} shots, seed {noise['seed']}" if noise.get("shots", 1) > 1 else "")
              + f"; engine {document.get('engine', 'qutip')}"]
@@ -129,9 +143,16 @@ def summary(document: dict) -> str:
             c = e["correlators"]
             for a in "XYZ":
                 lines.append("  " + "  ".join(f"<{a}{b}> {c[a + b]:+.4f}" for b in "XYZ"))
+        if "feed_forward" in e:
+            lines += feed_forward_lines(e["feed_forward"])
         for cond in e["conditioned"]:
             lines.append(f"  given {cond['record']}[{cond['site']}] = {cond['outcome']} "
                          f"(p = {cond['probability']:.4f}): fidelity {cond['fidelity']:.6f}")
+    if many and document.get("array_summary"):
+        lines.append(f"\narray of {len(document['site_populations'])} sites, final level populations "
+                     "(mean ± spread over sites; per site in --json):")
+        lines += array_lines(document["array_summary"])
+        return "\n".join(lines)
     lines.append("\nfinal level populations per site:")
     for site, pops in document["site_populations"].items():
         lines.append(f"  {site}: " + "  ".join(f"|{k}> {v:.5f}" for k, v in pops.items()))
@@ -140,13 +161,29 @@ def summary(document: dict) -> str:
     return "\n".join(lines)
 
 
-__all__ = ["register", "as_document", "summary"]
+def feed_forward_lines(ff: dict) -> list[str]:
+    """The fidelity with and without feed-forward, and how often each key occurred."""
+    lines = [f"  feed-forward: fidelity {ff['with']['fidelity']:.6f} with, {ff['without']['fidelity']:.6f} without"]
+    for table in ff["keys"]:
+        label = f"{table['record']}[{', '.join(table['sites'])}]"
+        lines.append(f"    keys of {label} ({table['key_kind'].replace('_', ' ')}; without feed-forward key "
+                     f"{table['fixed_key_without']} is played): "
+                     + "  ".join(f"{row['key']}: p {row['probability']:.3f}"
+                                 + (f" F {row['fidelity']:.4f}" if "fidelity" in row else "")
+                                 for row in table["keys"]))
+    return lines
+
+
+__all__ = ["register", "as_document", "summary", "feed_forward_lines"]
 
 
 def cmd_budget(args) -> int:
     from ..cli import UsageError, _load
     from .budget import budget, budget_table, plot_budget
     _check_counts(args)
+    if args.output:
+        from ..cli import _check_figure_name
+        _check_figure_name(args.output)
     sequence = _load(args.file)
     try:
         numbers = budget(sequence, shots=args.shots, seed=args.seed, engine=args.engine, truncate=args.truncate)
@@ -154,7 +191,7 @@ def cmd_budget(args) -> int:
         raise UsageError(str(exc)) from None
     print(json.dumps(numbers, indent=1) if args.json else budget_table(numbers))
     if args.output:
-        plot_budget(numbers, args.output)
+        plot_budget(numbers, args.output, what_if=args.what_if)
         if not args.json:
             print(f"wrote {args.output}")
     return 0

@@ -13,7 +13,7 @@ from __future__ import annotations
 
 import itertools
 import math
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 
 import numpy as np
 
@@ -43,6 +43,7 @@ class Drive1:
     delta: float
     phase: float
     drive: str = ""
+    event: int = -1  # timeline event that plays it (feed-forward looks conditioned ones up by it)
 
 
 @dataclass(frozen=True)
@@ -59,6 +60,7 @@ class LevelShift:
     shift: float
     loss_rate: float = 0.0
     scatter: float = 0.0
+    event: int = -1
 
 
 @dataclass(frozen=True)
@@ -81,6 +83,7 @@ class Model:
     interactions: dict[tuple[int, int], float]
     segments: tuple[Segment, ...]
     dim: int = DIM
+    images: tuple[Event, ...] = ()  # every imaging of the timeline, of either species (for crosstalk)
 
     @property
     def size(self) -> int:
@@ -114,7 +117,8 @@ def build_model(program: Program, timeline: Timeline, sites: tuple[str, ...],
     relevant = [e for e in timeline.events if e.kind in (PULSE, IMAGE) and set(e.targets) & set(sites)]
     segments = _segments(program, relevant, index, timeline.duration_s, ladder)
     species = tuple(program.sites[s].species for s in sites)
-    return Model(tuple(sites), species, pairs, tuple(segments), LADDER_DIM if ladder else DIM)
+    images = tuple(e for e in timeline.events if e.kind == IMAGE)
+    return Model(tuple(sites), species, pairs, tuple(segments), LADDER_DIM if ladder else DIM, images)
 
 
 def _tick(t: float, tick: float) -> int:
@@ -176,13 +180,13 @@ def _couplings(program: Program, active: list[Event], index: dict[str, int], t_m
         legs = leg_rabi(drive, omega)
         for site in (index[s] for s in pulse.targets if s in index):
             if legs is None:
-                couplings.append(Drive1(site, lower, upper, omega, delta, pulse.phase_rad, drive.name))
+                couplings.append(Drive1(site, lower, upper, omega, delta, pulse.phase_rad, drive.name, pulse.index))
             elif ladder:
-                couplings += [Drive1(site, G1, INTERMEDIATE, legs[0], legs[2], 0.0, drive.name),
-                              Drive1(site, INTERMEDIATE, RYD, legs[1], delta, pulse.phase_rad, drive.name)]
+                couplings += [Drive1(site, G1, INTERMEDIATE, legs[0], legs[2], 0.0, drive.name, pulse.index),
+                              Drive1(site, INTERMEDIATE, RYD, legs[1], delta, pulse.phase_rad, drive.name, pulse.index)]
             else:
-                couplings.append(Drive1(site, lower, upper, omega, delta, pulse.phase_rad, drive.name))
-                shifts += light_shifts(site, *legs)
+                couplings.append(Drive1(site, lower, upper, omega, delta, pulse.phase_rad, drive.name, pulse.index))
+                shifts += [replace(x, event=pulse.index) for x in light_shifts(site, *legs)]
     return tuple(couplings), tuple(shifts)
 
 

@@ -55,7 +55,7 @@ def cmd_fit(args) -> int:
     output = args.output or os.path.join(args.directory, "fit")
     os.makedirs(output, exist_ok=True)
     from ..emit.atomic import write_text
-    write_text(os.path.join(output, "fit.json"), json.dumps(report["document"], indent=1, sort_keys=True) + "\n")
+    write_text(os.path.join(output, "fit.json"), json.dumps(report["document"], indent=1, sort_keys=True, allow_nan=False) + "\n")
     from ..plot.fits import plot_overlay
     for record in report["document"]["records"]:
         written = os.path.join(output, f"{record}.png")

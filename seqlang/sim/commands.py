@@ -93,7 +93,7 @@ def cmd_simulate(args) -> int:
     for diagnostic in sort_diagnostics(result.warnings):
         print(render(diagnostic), file=sys.stderr)
     document = as_document(result)
-    print(json.dumps(document, indent=1) if args.json else summary(document))
+    print(json.dumps(document, indent=1, allow_nan=False) if args.json else summary(document))
     return 0
 
 
@@ -270,7 +270,7 @@ def cmd_budget(args) -> int:
         return 1
     except ValueError as exc:
         raise UsageError(str(exc)) from None
-    print(json.dumps(numbers, indent=1) if args.json else budget_table(numbers))
+    print(json.dumps(numbers, indent=1, allow_nan=False) if args.json else budget_table(numbers))
     if args.output:
         plot_budget(numbers, args.output, what_if=args.what_if)
         if not args.json:

@@ -81,7 +81,7 @@ def test_every_schema_key_gets_a_detail():
     keys = [key for schema in schemas for key in schema.values()]
     assert len(keys) > 40
     assert all(isinstance(key_detail(key), str) and key_detail(key) for key in keys)
-    assert key_detail(rig_module.PORT_KEYS["kind"]) == "one of: digital, analog"
+    assert key_detail(rig_module.PORT_KEYS["kind"]) == "one of: digital, analog, deflector"
     assert key_detail(rig_module.RIG_SETTINGS["counter_bits"]).startswith("whole number")
 
 

@@ -54,7 +54,9 @@ def test_noiseless_ghz_demo_makes_the_state_it_names():
     (|00000⟩ − |11111⟩)/√2 up to the blockade leakage ~(Ω/V)²."""
     e = seqlang.simulate(GHZ5).expectations[0]
     assert e["phase_rad"] == pytest.approx(math.pi)
-    assert e["fidelity"] > 0.9999 and e["ghz"]["coherence"] > 0.9999
+    # V from the diagonalised pair potentials (weaker than C6/R⁶ at these distances) leaves
+    # a leakage ~(Ω/V)² of about 1e-4
+    assert e["fidelity"] > 0.9998 and e["ghz"]["coherence"] > 0.9998
     assert e["correlators"]["XXXXX"] == pytest.approx(-1.0, abs=1e-3)  # cos(phase)
     assert e["correlators"]["ZZIII"] == pytest.approx(1.0, abs=1e-3)
     assert not [k for k in e if k.endswith("_error")]

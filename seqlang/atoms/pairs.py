@@ -325,8 +325,8 @@ def pair_shift(species_a, level_a, species_b, level_b, distance_m: float, theta_
     if resonant:
         return PairShift(math.copysign(c3, c6) / distance_m**3, "resonant", 0.5, **common)
     if distance_m >= VALIDITY_FACTOR * crossover or distance_m > GRID_MAX_M:
-        overlap = 1 - min(1.0, (crossover / distance_m) ** 6)
-        return PairShift(c6 / distance_m**6, "perturbative", overlap, **common)
+        overlap = 1 - min(1.0, crossover / distance_m) ** 6
+        return PairShift(c6 / max(distance_m, 1e-12) ** 6, "perturbative", overlap, **common)
     table = diagonalised_table(p.a, p.la, p.b, p.lb, theta_rad, field_v_m)
     value, overlap = _interpolate(table, distance_m)
     return PairShift(value, "diagonalised", overlap, **common)

@@ -107,15 +107,15 @@ def _draw_row(ax, i: int, row: BudgetRow, low: float) -> None:
                 style="italic")
         return
     if row.value <= 0:
-        ax.text(low * 1.15, i, f"no effect resolved (≤ {max(row.error, 0):.1g})", va="center", fontsize=7.5,
+        ax.text(low * 1.15, i, f"no effect resolved (≤ {max(row.error or 0.0, 0):.1g})", va="center", fontsize=7.5,
                 color="#666666")
         return
-    lower = min(row.error, row.value * 0.999)  # a log axis cannot go below zero
+    lower = min(row.error or 0.0, row.value * 0.999)  # a log axis cannot go below zero
     ax.barh(i, row.value, left=low, height=0.62, color=colours[row.kind],
             edgecolor="#777777" if row.kind == "baseline" else "none",
             xerr=[[lower], [row.error]] if row.error else None,
             error_kw={"elinewidth": 1.0, "capsize": 2.5, "ecolor": "#333333"})
-    ax.text((row.value + row.error) * 1.12, i, f"{row.value:.2e}", va="center", fontsize=7, color="#333333")
+    ax.text((row.value + (row.error or 0.0)) * 1.12, i, f"{row.value:.2e}", va="center", fontsize=7, color="#333333")
 
 
 def _handles(rows: list[BudgetRow]) -> list:

@@ -243,7 +243,10 @@ def simulate(source, **options) -> SimulationResult:
         return _feed_forward(program, timeline, options, sources, interactions, warnings)
     models = [build_model(program, timeline, group, interactions, ladder=options["ladder"])
               for group in find_clusters(program, timeline, interactions)]
-    reps = representatives(program, models)
+    # Identical clusters share one run; not yet when the sequence images (records are
+    # read per cluster from its own outcomes).
+    images = any(e.kind == "image" for e in timeline.events)
+    reps = list(range(len(models))) if images else representatives(program, models)
     runner = Runner(program, options, sources, np.random.default_rng(options["seed"]))
     if options["shared_noise"] and noise.is_sampled(sources):
         runner.shared = shared_noise.draw_shared(list(program.rig.drives), options["shots"], options["seed"])

@@ -30,6 +30,7 @@ TRANSITION = {"microwave": (G0, G1), "raman": (G0, G1), "rydberg": (G1, RYD)}
 # Shaped pulses are played as this many piecewise-constant steps (midpoint samples)
 # unless the drive's sample rate asks for fewer.
 SHAPE_STEPS = 64
+FEATURE_STEPS = 64  # extra steps across a narrow feature of a shaped pulse
 
 
 @dataclass(frozen=True)
@@ -146,10 +147,26 @@ def build_model(program: Program, timeline: Timeline, sites: tuple[str, ...],
     pairs = {(index[a], index[b]): 2 * math.pi * v for (a, b), v in interactions_hz.items()
              if a in index and b in index}
     relevant = [e for e in timeline.events if e.kind in (PULSE, IMAGE) and set(e.targets) & set(sites)]
-    segments = _segments(program, relevant, index, timeline.duration_s, ladder)
+    segments = _stark_shifted(program, timeline, sites,
+                              _segments(program, relevant, index, timeline.duration_s, ladder))
     species = tuple(program.sites[s].species for s in sites)
     images = tuple(e for e in timeline.events if e.kind == IMAGE)
     return Model(tuple(sites), species, pairs, tuple(segments), LADDER_DIM if ladder else DIM, images)
+
+
+def _stark_shifted(program: Program, timeline: Timeline, sites, segments: list[Segment]) -> list[Segment]:
+    """Each site's Rydberg level moved by its DC Stark shift where a `field` stretch runs (at segment midpoints)."""
+    from ..compile.geometry import field_at, stark_shift_hz
+    if not any(e.kind == "field" for e in timeline.events):
+        return segments
+    out = []
+    for seg in segments:
+        field = field_at(timeline, seg.start_s + seg.duration_s / 2)
+        extra = tuple(LevelShift(i, RYD, 2 * math.pi * stark_shift_hz(program, program.sites[s].species, field))
+                      for i, s in enumerate(sites) if field)
+        out.append(Segment(seg.start_s, seg.duration_s, seg.couplings, seg.image, seg.shifts + extra)
+                   if extra and seg.image is None else seg)
+    return out
 
 
 def _tick(t: float, tick: float) -> int:
@@ -184,29 +201,76 @@ def _segments(program: Program, events: list[Event], index: dict[str, int], tota
 
 def _pulse_steps(program: Program, active: list[Event], index: dict[str, int], t0: float, t1: float,
                  ladder: bool):
-    """One segment for square pulses; piecewise-constant steps where a shaped pulse plays."""
+    """One segment for square pulses; piecewise-constant steps where a shaped pulse plays.
+
+    Steps are uniform (at most SHAPE_STEPS, never finer than the drive's samples), plus
+    FEATURE_STEPS more across a feature much narrower than the pulse (a Gaussian's ±6σ,
+    a short ramp), so that a narrow peak in a long window is not stepped over; each
+    step plays the envelope's average over the step (4-point Gauss–Legendre), which
+    keeps the pulse area to the quadrature's accuracy.
+    """
     if t1 <= t0:
         return []
-    shaped = [p for p in active if p.shape.kind != "square"]
-    steps = 1
-    for p in shaped:
+    edges = [t0, t1]
+    for p in (p for p in active if p.shape.kind != "square"):
         rate = program.rig.drives[p.drive].sample_rate_hz
-        steps = max(steps, min(SHAPE_STEPS, max(1, round((t1 - t0) * rate))))
-    edges = np.linspace(t0, t1, steps + 1)
+        edges += list(np.linspace(t0, t1, min(SHAPE_STEPS, max(1, round((t1 - t0) * rate))) + 1))
+        for lo, hi in _narrow_features(p):
+            lo, hi = max(lo, t0), min(hi, t1)
+            if hi > lo:
+                edges += list(np.linspace(lo, hi, min(FEATURE_STEPS, max(1, round((hi - lo) * rate))) + 1))
     out = []
-    for a, b in zip(edges, edges[1:]):
-        couplings, shifts = _couplings(program, active, index, (a + b) / 2, ladder)
+    for a, b in _distinct_steps(edges, t1 - t0):
+        couplings, shifts = _couplings(program, active, index, a, b, ladder)
         out.append(Segment(a, b - a, couplings, shifts=shifts))
     return out
 
 
-def _couplings(program: Program, active: list[Event], index: dict[str, int], t_mid: float, ladder: bool):
-    """(couplings, light shifts) of the pulses playing at `t_mid`."""
+def _narrow_features(pulse: Event) -> list[tuple[float, float]]:
+    """Absolute time windows where the envelope changes on a scale much shorter than the pulse."""
+    shape, start, length = pulse.shape, pulse.start_s, pulse.duration_s
+    if shape.kind == "gaussian":
+        sigma = envelopes._sigma(shape, length)
+        if 12 * sigma < length / 4:
+            centre = start + length / 2
+            return [(centre - 6 * sigma, centre + 6 * sigma)]
+    if shape.kind == "ramped":
+        ramp = shape.param("ramp", 0.0)
+        if 0 < ramp < length / 8:
+            return [(start, start + ramp), (start + length - ramp, start + length)]
+    return []
+
+
+def _distinct_steps(edges: list[float], span: float) -> list[tuple[float, float]]:
+    """Consecutive pairs of the sorted edges, merging edges closer than 1e-9 of the segment."""
+    ordered = sorted(edges)
+    kept = [ordered[0]]
+    for t in ordered[1:]:
+        if t - kept[-1] > 1e-9 * span:
+            kept.append(t)
+    kept[-1] = ordered[-1]
+    return list(zip(kept, kept[1:]))
+
+
+_NODES, _WEIGHTS = np.polynomial.legendre.leggauss(4)
+
+
+def _step_average(pulse: Event, a: float, b: float) -> float:
+    """The envelope's mean over [a, b] (4-point Gauss–Legendre)."""
+    if pulse.shape.kind == "square":
+        return 1.0
+    times = (a + b) / 2 + (b - a) / 2 * _NODES - pulse.start_s
+    values = envelopes.envelope(pulse.shape, pulse.duration_s, np.clip(times, 0.0, pulse.duration_s))
+    return float(np.dot(_WEIGHTS, values) / 2)
+
+
+def _couplings(program: Program, active: list[Event], index: dict[str, int], a: float, b: float, ladder: bool):
+    """(couplings, light shifts) of the pulses playing over the step [a, b]."""
     couplings, shifts = [], []
     for pulse in active:
         drive = program.rig.drives[pulse.drive]
         lower, upper = TRANSITION[drive.kind]
-        scale = float(envelopes.envelope(pulse.shape, pulse.duration_s, t_mid - pulse.start_s))
+        scale = _step_average(pulse, a, b)
         omega, delta = 2 * math.pi * pulse.rabi_hz * scale, 2 * math.pi * pulse.detuning_hz
         legs = leg_rabi(drive, omega)
         for site in (index[s] for s in pulse.targets if s in index):

@@ -12,7 +12,7 @@ from ..lang.parser import cyclic_gc_paused
 from ..program.model import Program
 from ..program.resolve import resolve
 from .checks import check_timeline, check_waveforms
-from .hardware import HardwarePlan, plan
+from .hardware import HardwarePlan, latency_warnings, plan
 from .lower import lower
 from .quantize import quantize
 from .timeline import Timeline
@@ -49,4 +49,4 @@ def _check(path: str, sources: Mapping[str, str] | None) -> Checked:
     if any(d.severity == ERROR for d in diags):
         raise SeqlangError(diags)
     hardware = plan(program, quantized, report)
-    return Checked(program, timeline, hardware.timeline, hardware, tuple(diags))
+    return Checked(program, timeline, hardware.timeline, hardware, tuple(diags + latency_warnings(program)))

@@ -88,6 +88,7 @@ class Port:
     value_range: tuple[float, float] | None
     unit_dim: tuple[int, ...] | None
     span: Span
+    role: str = "plain"  # "traps": switches the tweezer light
 
 
 @dataclass(frozen=True)

@@ -33,6 +33,8 @@ SPECIES_KEYS = {
     "t2_star": p.Key(p.non_negative(p.duration), 0.0),
     "field_noise": p.Key(p.non_negative(p.frequency), 0.0),
     "field_noise_freq": p.Key(p.non_negative(p.frequency), 0.0),
+    # Light shift of the Rydberg level by the trap light while the traps are on.
+    "trap_rydberg_shift": p.Key(p.frequency, 0.0),
 }
 
 _COMMON_DRIVE_KEYS = {
@@ -82,6 +84,8 @@ PORT_KEYS = {
     "latency": p.Key(p.non_negative(p.duration), 0.0),
     "width": p.Key(p.positive(p.duration, "trigger width"), 1e-6),
     "range": p.Key(p.any_range, None),
+    # `role traps`: this digital line switches the tweezer light (on = traps on).
+    "role": p.Key(p.choice("plain", "traps"), "plain"),
 }
 
 
@@ -236,9 +240,11 @@ def _port(decl: ast.PortDecl, scope: Scope, diags: list[Diagnostic]) -> Port:
     value_range = v["range"]
     if value_range is not None and v["kind"] == "digital":
         diags.append(error("a digital port has no value range", v["__spans__"]["range"], "add `kind analog`"))
+    if v["role"] == "traps" and v["kind"] != "digital":
+        diags.append(error("the trap switch must be a digital port", v["__spans__"]["role"], "add `kind digital`"))
     bounds = (value_range[0], value_range[1]) if value_range else None
     return Port(decl.name.name, decl.channel.text, v["kind"], v["latency"], v["width"], bounds,
-                value_range[2] if value_range else None, decl.span)
+                value_range[2] if value_range else None, decl.span, v["role"])
 
 
 # ---- leg wavelengths against the species' lines ------------------------------

@@ -369,3 +369,23 @@ def test_free_doppler_coherence_is_gaussian_in_time(wait_us):
     period = 2 * math.pi / TRAP_OMEGA
     later, _ = doppler_track.track(x0, v0, TRAP_OMEGA, [(t, False), (period, True)])
     assert np.allclose(later[-1], later[1], rtol=0, atol=1e-12 * np.abs(later[1]).max())
+
+
+def test_segment_offsets_reduce_to_free_flight_and_follow_the_trapped_track():
+    """Traps off all along: Doppler detuning k·v₀ and no extra phase (the free-flight model, de Léséleuc
+    et al. 2018). Traps on: the laser phase at each segment's midpoint is k·(x(t_m) − x₀) of the
+    harmonic track (derived)."""
+    from seqlang.sim import doppler_track
+    k = abs(2 * math.pi / 780e-9 - 2 * math.pi / 480e-9)
+    x0, v0, _ = _thermal(np.random.default_rng(13), 1000)
+    segments = [(0.0, 1e-6), (1e-6, 3e-6), (4e-6, 0.5e-6)]
+    detuning, phase = doppler_track.segment_offsets(k, x0, v0, TRAP_OMEGA, [(0.0, False)], segments)
+    assert np.allclose(detuning, k * v0, rtol=1e-12, atol=0)
+    assert np.allclose(phase, 0, atol=1e-9)
+    detuning, phase = doppler_track.segment_offsets(k, x0, v0, TRAP_OMEGA, [], segments)
+    for (start, duration), d, p in zip(segments, detuning, phase):
+        t = start + duration / 2
+        x = x0 * math.cos(TRAP_OMEGA * t) + v0 / TRAP_OMEGA * math.sin(TRAP_OMEGA * t)
+        assert np.allclose(d * t + p, k * (x - x0), rtol=1e-9, atol=1e-12)
+    assert np.max(np.abs(phase + detuning * np.array([[0.5e-6], [2.5e-6], [4.25e-6]]))) < 4 * k * np.abs(x0).max() + \
+        4 * k * np.abs(v0).max() / TRAP_OMEGA  # bounded by k·(amplitude), however long the sequence

@@ -54,3 +54,36 @@ def segment_detunings(k_eff: float, positions: np.ndarray, durations: list[float
     steps = np.diff(positions, axis=0)
     times = np.asarray(durations, float).reshape((-1,) + (1,) * (positions.ndim - 1))
     return np.divide(k_eff * steps, times, out=np.zeros_like(steps), where=times > 0)
+
+
+def at_times(x0: np.ndarray, v0: np.ndarray, omega_rad_s: float, switches: list[tuple[float, bool]],
+             times: list[float]) -> tuple[np.ndarray, np.ndarray]:
+    """Position and velocity at each of `times` (sorted, s), shape (len(times), *x0.shape).
+
+    `switches` are (time_s, traps_on) in time order; the traps are on from t = 0 until the first.
+    """
+    events = sorted([(t, 0, on) for t, on in switches] + [(t, 1, k) for k, t in enumerate(times)])
+    x, v, now, on = np.asarray(x0, float), np.asarray(v0, float), 0.0, True
+    xs, vs = [None] * len(times), [None] * len(times)
+    for t, is_time, what in events:
+        (x,), (v,) = (a[1:] for a in track(x, v, omega_rad_s, [(t - now, on)]))
+        now = t
+        if is_time:
+            xs[what], vs[what] = x, v
+        else:
+            on = what
+    return np.array(xs), np.array(vs)
+
+
+def segment_offsets(k_eff: float, x0, v0, omega_rad_s: float, switches, segments: list[tuple[float, float]]):
+    """Per segment (start_s, duration_s): the Doppler detuning k·v(t_m) and the extra coupling phase
+    k·(x(t_m) − x₀) − k·v(t_m)·t_m at its midpoint t_m, shapes (segments, *x0.shape).
+
+    In the drive frame referenced to t = 0 (docs/simulation.md), a coupling with these offsets sees
+    the laser phase k·(x(t) − x₀) to first order about t_m. With the traps off all along this is the
+    free-flight model: detuning k·v₀, extra phase 0.
+    """
+    mids = [start + duration / 2 for start, duration in segments]
+    x, v = at_times(x0, v0, omega_rad_s, switches, mids)
+    t = np.asarray(mids, float).reshape((-1,) + (1,) * (x.ndim - 1))
+    return k_eff * v, k_eff * (x - np.asarray(x0, float)) - k_eff * v * t

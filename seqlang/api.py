@@ -49,7 +49,30 @@ class Sequence:
         from .emit import write_all
         return write_all(self.checked, directory)
 
+    def _repr_html_(self) -> str:
+        """Jupyter: counts, the compile report and the timeline figure."""
+        from .report.notebook import sequence_html
+        return sequence_html(self)
 
-def load(path: str) -> Sequence:
-    """Parse, resolve and check `path`; raises SeqlangError listing every problem."""
-    return Sequence(path, check(path))
+    def to_dataframe(self):
+        """The played timeline as a pandas DataFrame (pandas is optional)."""
+        from .report.notebook import timeline_dataframe
+        return timeline_dataframe(self)
+
+
+def load(path: str, point: int | None = None) -> Sequence:
+    """Parse, resolve and check `path`; raises SeqlangError listing every problem.
+
+    For a file with scans, `point` picks the scan point (default: the first).
+    """
+    return Sequence(path, check(path, point=point))
+
+
+def scan(path: str, output: str, **options):
+    """Compile (and with ``simulate=True`` simulate) every point of a scan; return the xarray Dataset.
+
+    Options are those of ``seqlang scan`` (see docs/scans.md): simulate, noise, shots, seed,
+    engine, truncate, repetitions, workers, scheduler, resume, only, progress.
+    """
+    from .scan.run import run_scan
+    return run_scan(path, output, **options)

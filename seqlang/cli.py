@@ -56,15 +56,57 @@ def cmd_check(args) -> int:
 
 
 def _check_one(path: str) -> None:
-    sequence = _load(path)
-    counts = (len(sequence.timeline.events), len(sequence.program.sites), len(sequence.warnings))
+    try:
+        sequence = _load(path)
+    except SeqlangError:
+        if not _declares_scans(path):
+            raise
+        sequence = None  # some point fails: check_points names it
+    if sequence is not None and sequence.program.scans is None:
+        counts = (len(sequence.timeline.events), len(sequence.program.sites), len(sequence.warnings))
+        words = ", ".join(f"{n} {w}{'' if n == 1 else 's'}" for n, w in zip(counts, ("event", "site", "warning")))
+        print(f"{path}: ok ({words})")
+        return
+    from .scan.check import check_points
+    scan = check_points(path)  # every point of the scan
+    _print_warnings(scan.warnings)
+    first = scan.first
+    counts = (len(first.timeline.events), len(first.program.sites), len(scan.warnings))
     words = ", ".join(f"{n} {w}{'' if n == 1 else 's'}" for n, w in zip(counts, ("event", "site", "warning")))
-    print(f"{path}: ok ({words})")
+    points = f"; {scan.count} scan point{'s' if scan.count != 1 else ''} checked" if scan.space else ""
+    print(f"{path}: ok ({words}{points})")
+
+
+def _declares_scans(path: str) -> bool:
+    from .lang import syntax as ast
+    from .program.resolve import load_files
+    try:
+        return any(isinstance(i, ast.ScanDecl) for i in load_files(path).main.items)
+    except SeqlangError:
+        return False
+
+
+def _load_point(path: str, point: int | None):
+    """A file with scans is compiled one point at a time (`seqlang scan` compiles them all)."""
+    from .api import load
+    from .program.resolve import load_files
+    from .program.scans import resolve_scans
+    space = resolve_scans(load_files(_existing(path)).main, [])
+    if space is None and point is not None:
+        raise UsageError(f"{path} declares no scan, so it has no --point")
+    if space is not None and point is None:
+        raise UsageError(f"{path} scans {', '.join(a.name for a in space.axes)}: compile one point with "
+                         f"--point K (0..{space.count - 1}), or all of them with `seqlang scan`")
+    if space is not None and not 0 <= point < space.count:
+        raise UsageError(f"--point {point} is outside the scan's points 0..{space.count - 1}")
+    sequence = load(path, point=point)
+    _print_warnings(sequence.warnings)
+    return sequence
 
 
 def cmd_compile(args) -> int:
     from .show import compile_summary
-    sequence = _load(args.file)
+    sequence = _load_point(args.file, args.point)
     paths = sequence.write_tables(args.output)
     print(compile_summary(sequence.checked))
     for path in paths:
@@ -75,30 +117,65 @@ def cmd_compile(args) -> int:
 
 
 def cmd_show(args) -> int:
-    from .show import compile_summary, pair_table, timeline_table
+    from .show import compile_summary, pair_models_table, pair_table, timeline_table
     sequence = _load(args.file)
     print(timeline_table(sequence.checked))
     print()
     print(compile_summary(sequence.checked))
+    from .show import decision_summary
+    if decision_summary(sequence.checked):
+        print("\n" + decision_summary(sequence.checked))
+    from .sim.crosstalk import summary as crosstalk_summary
+    crosstalk = crosstalk_summary(sequence.program, sequence.played)
+    if crosstalk:
+        print("\nimaging crosstalk (far-detuned scattering, Grimm et al. 2000):\n" + "\n".join(crosstalk))
     if not args.no_pairs and len(sequence.program.sites) > 1:
         table = pair_table(sequence.program)
         if table:
             print("\nRydberg pairs (van der Waals, C6 from the alkali Rydberg calculator):")
             print(table)
+        models = pair_models_table(sequence.program, sequence.played)
+        if models:
+            print("\nPair models used at the Rydberg pulses (seqlang.atoms.pairs):")
+            print(models)
     return EXIT_OK
 
 
 def cmd_plot(args) -> int:
+    if os.path.isdir(args.file):
+        from .scan.commands import cmd_plot_scan
+        return cmd_plot_scan(args)
+    if not args.output:
+        raise UsageError("plot needs -o FILE for a sequence file")
     _check_figure_name(args.output)
     sequence = _load(args.file)
     if args.what == "timeline":
         from .plot.timeline import plot_timeline
-        plot_timeline(sequence.checked, args.output)
+        plot_timeline(sequence.checked, args.output, piecewise=not args.linear_time)
+    elif args.what == "array":
+        from .plot.array import plot_array
+        try:
+            plot_array(sequence, args.output, args.record)
+        except ValueError as exc:
+            raise UsageError(str(exc)) from None
     else:
         from .plot.results import plot_results
-        plot_results(sequence, args.what, args.output)
+        plot_results(sequence, args.what, args.output, piecewise=not args.linear_time,
+                     **_plot_simulation_options(args))
     print(f"wrote {args.output}")
     return EXIT_OK
+
+
+def _plot_simulation_options(args) -> dict:
+    """simulate() options from `plot`'s flags; error bars stand for --shots repetitions."""
+    from .sim.noise import parse_sources
+    try:
+        sources = parse_sources(args.noise)
+    except ValueError as exc:
+        raise UsageError(str(exc)) from None
+    if args.shots < 1:
+        raise UsageError("--shots must be at least 1")
+    return {"noise": sources, "shots": args.shots, "seed": args.seed, "repetitions": args.shots}
 
 
 def _check_figure_name(path: str) -> None:
@@ -134,6 +211,7 @@ def build_parser() -> argparse.ArgumentParser:
     p = sub.add_parser("compile", help="write timing.csv, timing.json and waveforms.npz")
     _add_file(p)
     p.add_argument("-o", "--output", required=True, metavar="DIR", help="directory for the tables")
+    p.add_argument("--point", type=int, metavar="K", help="for a file with scans: compile scan point K")
     p.set_defaults(run=cmd_compile)
 
     p = sub.add_parser("show", help="print the played timeline, the compile report and the Rydberg pairs")
@@ -141,12 +219,22 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("--no-pairs", action="store_true", help="skip the pair interactions (no atomic data needed)")
     p.set_defaults(run=cmd_show)
 
-    p = sub.add_parser("plot", help="draw the timeline, or simulated populations or correlators")
-    _add_file(p)
-    p.add_argument("-o", "--output", required=True, metavar="FILE",
-                   help="image file to write; its extension names the format (.png, .svg or .pdf)")
-    p.add_argument("--what", choices=("timeline", "populations", "correlators"), default="timeline",
-                   help="what to draw (default: timeline)")
+    p = sub.add_parser("plot", help="draw the timeline, or simulated populations or correlators; "
+                                    "or, given a scan's DIR, its results")
+    p.add_argument("file", help="a sequence file (*.seq), or a directory written by `seqlang scan`")
+    p.add_argument("-o", "--output", metavar="FILE",
+                   help="image file to write; its extension names the format (.png, .svg or .pdf); "
+                        "for a scan's DIR: a directory (default DIR/plots)")
+    p.add_argument("--what", choices=("timeline", "populations", "correlators", "array"), default="timeline",
+                   help="what to draw (default: timeline); `array`: the site map shaded by P(bright)")
+    p.add_argument("--record", metavar="NAME", help="with --what array: the record whose P(bright) shades the map")
+    p.add_argument("--linear-time", action="store_true",
+                   help="a plain linear time axis (default: long stretches compressed so short pulses show)")
+    p.add_argument("--noise", default="off", metavar="off|all|SOURCE,...",
+                   help="noise sources for populations/correlators (default off; see `simulate --help`)")
+    p.add_argument("--shots", type=int, default=200,
+                   help="Monte Carlo shots, and the repetitions N behind the error bars (default 200)")
+    p.add_argument("--seed", type=int, default=1, help="random seed (default 1); shown on the figure")
     p.set_defaults(run=cmd_plot)
 
     _add_optional_commands(sub)
@@ -156,7 +244,8 @@ def build_parser() -> argparse.ArgumentParser:
 def _add_optional_commands(sub) -> None:
     """Commands whose modules register themselves (simulation, editor support)."""
     import importlib
-    for module in ("seqlang.sim.commands", "seqlang.editor.commands"):
+    for module in ("seqlang.sim.commands", "seqlang.editor.commands", "seqlang.report.commands",
+                   "seqlang.scan.commands", "seqlang.fit.commands"):
         try:
             importlib.import_module(module).register(sub)
         except ModuleNotFoundError as exc:

@@ -31,7 +31,12 @@ from seqlang.sim.commands import as_document
 ROOT = os.path.dirname(os.path.dirname(os.path.abspath(__file__)))
 PROGRAMS = os.path.join(ROOT, "programs")
 DEMO_RIG = os.path.join(PROGRAMS, "millpond.rig")
-DEMOS = sorted(f for f in os.listdir(PROGRAMS) if f.endswith(".seq"))
+# Feed-forward demos are simulated shot by shot with sampled outcomes on the fast and Lindblad
+# engines only (no QuTiP reference path); their own checks are in tests/test_feedforward_sim.py.
+# ghz5.seq (five atoms) is beyond the dense QuTiP reference (4^5 levels); it is checked against
+# the Lindblad engine and closed forms in test_sim_trajectories.py and test_sim_targets.py instead.
+FEED_FORWARD_DEMOS = ("ancilla_flip.seq", "phase_correction.seq")
+DEMOS = sorted(f for f in os.listdir(PROGRAMS) if f.endswith(".seq") and f not in FEED_FORWARD_DEMOS + ("ghz5.seq",))
 
 FAST_TOLERANCE = 1e-6
 LINDBLAD_TOLERANCE = 1e-5

@@ -62,7 +62,7 @@ def test_seed_makes_noisy_runs_reproducible(tmp_path):
     c = _run(tmp_path, "pulse mw_a area pi", ("intensity",), shots=50, sigma="5 %", seed=12)
     assert a.expectations == b.expectations
     assert a.expectations[0]["fidelity"] != c.expectations[0]["fidelity"]
-    assert a.noise == {"sources": ["intensity"], "shots": 50, "seed": 11, "repetitions": 50}
+    assert a.noise == {"sources": ["intensity"], "shots": 50, "seed": 11, "shared_noise": True}
 
 
 def test_binomial_error_bar_matches_sampled_spread():

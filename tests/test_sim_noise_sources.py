@@ -299,7 +299,7 @@ def test_sampled_counts_are_reproducible_and_binomial(tmp_path):
     assert sum(a["sampled_counts"].values()) == n
     assert a["sampled_counts"] == b["sampled_counts"]
     for label, p in a["populations"].items():
-        assert a["populations_error"][label] == pytest.approx(math.sqrt(p * (1 - p) / n), rel=1e-6)
+        assert a["sampled_error"][label] == pytest.approx(math.sqrt(p * (1 - p) / n), rel=1e-6)
         assert a["sampled_counts"][label] == pytest.approx(n * p, abs=5 * math.sqrt(n * p * (1 - p)) + 1)
 
 
@@ -339,3 +339,5 @@ def test_budget_lists_every_source_and_all_costs_at_least_none():
     assert set(entry["infidelity"]) == set(noise.SOURCES) | {"none", "all"}
     assert entry["infidelity"]["all"] >= entry["infidelity"]["none"]
     assert entry["infidelity"]["decay"] > entry["infidelity"]["none"]  # Rydberg decay costs fidelity
+    assert entry["error"]["none"] is None and entry["error"]["decay"] is None  # exact numbers: no error bar
+    assert entry["error"]["intensity"] > 0 and entry["error"]["all"] > 0  # sampled: a real Monte Carlo error

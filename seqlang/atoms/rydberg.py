@@ -35,7 +35,8 @@ C6_ENERGY_WINDOW_HZ = 25e9  # channels with |defect| below 25 GHz
 FORSTER_THRESHOLD_HZ = 100e6
 SIGNIFICANT_CHANNEL_SHARE = 0.1
 _MAX_CHANNEL_GROUPS = 12
-BBR_LEVEL_MARGIN = 20  # black-body sum includes levels up to n + 20
+BBR_LEVEL_MARGIN = 20
+ARC_ATTEMPTS = 8  # retries of ARC's shared sqlite memo, about 50 s in all  # black-body sum includes levels up to n + 20
 
 LADDERS = {"d2": 0, "blue": 1}  # intermediate nP3/2: n = ground n + offset
 
@@ -89,6 +90,7 @@ def _level(level: str | RydbergLevel, data: SpeciesData) -> RydbergLevel:
     return level
 
 
+@lru_cache(maxsize=1)
 def _arc_version() -> str:
     from importlib import metadata  # slow to import; needed only with atomic data
     return metadata.version("arc-alkali-rydberg-calculator")
@@ -165,10 +167,36 @@ def _window_above(groups: list[float], k: int) -> float:
     return C6_ENERGY_WINDOW_HZ
 
 
+def arc_retry(call):
+    """Run an ARC pair-state call, retried: ARC memoises angular factors in one sqlite file
+    shared by all of the user's processes, and two processes filling it at once can collide."""
+    import sqlite3
+    import time
+    for attempt in range(ARC_ATTEMPTS):
+        try:
+            return call()
+        except sqlite3.Error:
+            if attempt == ARC_ATTEMPTS - 1:
+                raise
+            time.sleep(0.2 * 2**attempt)  # another process holds the file: wait for it
+
+
 def _arc_c6(pair, window_hz: float) -> float:
     """ARC's perturbative C6 (GHz um^6, ARC sign) with channels below ``window_hz``."""
     try:
-        return float(pair.getC6perturbatively(0.0, 0.0, C6_N_RANGE, window_hz))
+        return float(arc_retry(lambda: pair.getC6perturbatively(0.0, 0.0, C6_N_RANGE, window_hz)))
+    except ValueError as error:
+        raise ValueError(f"exact Förster resonance, perturbative C6 undefined: {error}") from None
+
+
+def _arc_c6_at(pair, theta: float) -> float:
+    """ARC's perturbative C6 (GHz um^6, ARC sign) at angle theta to the quantisation axis."""
+    return _arc_c6_theta(pair, theta, C6_ENERGY_WINDOW_HZ)
+
+
+def _arc_c6_theta(pair, theta: float, window_hz: float) -> float:
+    try:
+        return float(arc_retry(lambda: pair.getC6perturbatively(theta, 0.0, C6_N_RANGE, window_hz)))
     except ValueError as error:
         raise ValueError(f"exact Förster resonance, perturbative C6 undefined: {error}") from None
 

@@ -11,6 +11,7 @@ import math
 from ..lang import units
 from ..lang.diagnostics import Diagnostic, error, warning
 from ..program.model import Program
+from .decisions import exclusive
 from . import envelopes
 from .timeline import IMAGE, PULSE, SWITCH, Event, Timeline
 
@@ -65,7 +66,8 @@ def _overlaps_in_lane(what: str, name: str, events: list[Event]) -> list[Diagnos
     events = sorted(events, key=lambda e: (e.start_s, e.index))
     out, last = [], None
     for event in events:
-        if last is not None and event.start_s < last.end_s - TOUCH_S and event.index != last.index:
+        if last is not None and event.start_s < last.end_s - TOUCH_S and event.index != last.index \
+                and not exclusive(event, last):
             out.append(error(
                 f"this overlaps the {last.kind} from line {last.span.line} on {what} `{name}` "
                 f"(by {units.format_quantity(last.end_s - event.start_s, units.DURATION)})", event.span,

@@ -24,7 +24,8 @@ from dataclasses import dataclass, field
 from ..lang.diagnostics import Diagnostic, Span, warning
 from ..program.model import Program
 from .quantize import QuantizeReport
-from .timeline import IMAGE, PULSE, Event, Timeline, evolve
+from . import motion
+from .timeline import FIELD, IMAGE, MOVE, PULSE, SET, Event, Timeline, evolve
 
 GATE = "gate"
 HOLD, SEQUENCER = "hold", "sequencer"
@@ -52,6 +53,7 @@ class PortEvent:
     shape: str = ""
     targets: tuple[str, ...] = ()
     value: float = 0.0
+    ramp: tuple = ()  # deflector ramps: (start Hz, end Hz, profile)
 
 
 @dataclass(frozen=True)
@@ -86,7 +88,12 @@ def plan(program: Program, timeline: Timeline, report: QuantizeReport) -> Hardwa
     shift = _shift_needed(program, timeline, tick, latencies)
     raw: list[PortEvent] = []
     for event in timeline.events:
-        raw += _port_events(program, event, tick, latencies, shift)
+        if event.kind == MOVE:
+            raw += _ramps(program, timeline, event, tick, latencies, shift)
+        elif event.kind == FIELD:
+            raw += _field_sets(program, event, tick, latencies, shift)
+        else:
+            raw += _port_events(program, event, tick, latencies, shift)
     ports: dict[str, list[PortEvent]] = defaultdict(list)
     merged = _merge_gates(raw)
     holds = _holds(merged, 2 ** program.rig.counter_bits - 1)
@@ -94,7 +101,8 @@ def plan(program: Program, timeline: Timeline, report: QuantizeReport) -> Hardwa
         ports[entry.port].append(entry)
     ordered = {p: tuple(sorted(es, key=lambda e: (e.tick, e.kind, e.event))) for p, es in sorted(ports.items())}
     shifted = _shift_timeline(timeline, shift * tick)
-    return HardwarePlan(tick, shift, ordered, shifted, report, latencies, len(holds), latency_remainders(program))
+    return HardwarePlan(tick, shift, ordered, shifted, report, latencies, len(holds),
+                        latency_remainder_s=latency_remainders(program))
 
 
 def _ticks(seconds: float, tick: float) -> int:
@@ -164,6 +172,9 @@ def _earliest_issue(program: Program, event: Event, tick: float, latency: dict[s
         drive = program.rig.drives[event.drive]
         gate = _ticks(drive.gate_lead_s, tick) + latency[drive.gate] if drive.gate else 0
         return start - max(latency[drive.port], gate)
+    if event.kind == MOVE:  # issued on the deflectors, each early by its own latency
+        deflectors = [p.channel for p in program.rig.ports.values() if p.kind == "deflector"]
+        return start - max((latency.get(c, 0) for c in deflectors), default=0)
     return start - latency.get(event.port, 0)
 
 
@@ -192,6 +203,35 @@ def _port_events(program: Program, event: Event, tick: float, latency: dict[str,
                           targets=event.targets)]
     return [PortEvent(event.port, start - latency.get(event.port, 0), length, event.kind, event.index,
                       _source(event), value=event.value)]
+
+
+def _ramps(program: Program, timeline: Timeline, event: Event, tick: float, latency: dict[str, int],
+           shift: int) -> list[PortEvent]:
+    """One frequency ramp per moved site and axis, on the deflector of that axis."""
+    start, length = _ticks(event.start_s, tick) + shift, _ticks(event.duration_s, tick)
+    before = motion.positions_at(program, timeline, event.start_s)
+    out = []
+    for site in event.targets:
+        for k, axis in enumerate(motion.AXES):
+            port = motion.deflector(program, program.sites[site].species, axis)
+            if port is None or event.displacement_m[k] == 0:
+                continue
+            x0 = before[site][k]
+            f0 = port.extra["center"] + port.extra["scale"] * x0
+            f1 = port.extra["center"] + port.extra["scale"] * (x0 + event.displacement_m[k])
+            out.append(PortEvent(port.channel, start - latency.get(port.channel, 0), length, "ramp", event.index,
+                                 _source(event), targets=(site,), value=f1, ramp=(f0, f1, event.profile)))
+    return out
+
+
+def _field_sets(program: Program, event: Event, tick: float, latency: dict[str, int], shift: int) -> list[PortEvent]:
+    """The electrode set to the field's voltage at the start and back to 0 V at the end."""
+    port = next(p for p in program.rig.ports.values() if p.channel == event.port)
+    volts = event.value / port.extra["field_per_volt"]
+    start, end = _ticks(event.start_s, tick) + shift, _ticks(event.end_s, tick) + shift
+    lag = latency.get(event.port, 0)
+    return [PortEvent(event.port, start - lag, 0, SET, event.index, _source(event), value=volts),
+            PortEvent(event.port, end - lag, 0, SET, event.index, _source(event), value=0.0)]
 
 
 def _merge_gates(entries: list[PortEvent]) -> list[PortEvent]:

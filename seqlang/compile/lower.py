@@ -6,8 +6,9 @@ from __future__ import annotations
 
 from ..lang import units
 from ..lang.diagnostics import SeqlangError, error
-from ..program.model import ImageOp, PortOp, Program, PulseOp, RepeatOp, SerialOp, TogetherOp, WaitOp
-from .timeline import IMAGE, PULSE, Event, Timeline
+from ..program.model import (BranchOp, Decision, FieldOp, ImageOp, MoveOp, PortOp, Program, PulseOp, RepeatOp,
+                             SerialOp, TogetherOp, WaitOp)
+from .timeline import FIELD, IMAGE, MOVE, PULSE, Event, Timeline
 
 MAX_EVENTS = 5_000_000  # after expanding repeats; waits count too (each is work to place)
 MAX_TICKS = 2 ** 53  # exact integer arithmetic on tick numbers (float mantissa)
@@ -32,20 +33,25 @@ def lower(program: Program) -> Timeline:
 
 def duration_of(op) -> float:
     """How long an operation lasts (a together lasts as long as its longest part)."""
-    if isinstance(op, (PulseOp, WaitOp, ImageOp, PortOp)):
+    if isinstance(op, (PulseOp, WaitOp, ImageOp, PortOp, MoveOp)):
         return op.duration_s
+    if isinstance(op, FieldOp):
+        return duration_of(op.body)
     if isinstance(op, SerialOp):
         return sum(duration_of(o) for o in op.body)
     if isinstance(op, TogetherOp):
         return max((duration_of(o) for o in op.body), default=0.0)
     if isinstance(op, RepeatOp):
         return op.count * duration_of(op.body)
+    if isinstance(op, BranchOp):
+        return max(duration_of(op.then), duration_of(op.otherwise))
     raise TypeError(op)
 
 
 class _Placer:
     def __init__(self, program: Program, events: list[Event]):
         self.program, self.events = program, events
+        self.decision: Decision | None = None  # of the enclosing `when` branch
         self.placed = 0  # events and waits placed so far
         # Durations and counts by operation identity: nested `together`s inside a `repeat`
         # would otherwise recompute them at every level of every iteration.
@@ -83,6 +89,11 @@ class _Placer:
             self._together(op, start)
         elif isinstance(op, RepeatOp):
             self._repeat(op, start)
+        elif isinstance(op, BranchOp):
+            self._branch(op, start)
+        elif isinstance(op, FieldOp):
+            self.placed += 1
+            self._field(op, start)
         elif isinstance(op, WaitOp):
             self.placed += 1
         else:
@@ -95,6 +106,12 @@ class _Placer:
             slack = longest - self.duration(child)
             offset = {"start": 0.0, "end": slack, "center": slack / 2}[op.align]
             self.place(child, start + offset)
+
+    def _field(self, op: FieldOp, start: float) -> None:
+        port = self.program.rig.ports[op.port]
+        self.events.append(Event(len(self.events), FIELD, start, duration_of(op.body), port.channel, op.span,
+                                 value=op.field_v_m))
+        self.place(op.body, start)
 
     def _repeat(self, op: RepeatOp, start: float) -> None:
         period = self.duration(op.body)
@@ -109,6 +126,15 @@ class _Placer:
         for i in range(op.count):
             self.place(op.body, start + i * period)
 
+    def _branch(self, op: BranchOp, start: float) -> None:
+        """Both branches start together; each event remembers for which keys it plays."""
+        outer = self.decision
+        negated = Decision(op.decision.selection, tuple(not e for e in op.decision.enabled), None, op.decision.span)
+        for body, decision in ((op.then, op.decision), (op.otherwise, negated)):
+            self.decision = _combine(outer, decision)
+            self.place(body, start)
+        self.decision = outer
+
     def _emit(self, op, start: float) -> None:
         index = len(self.events)
         rig = self.program.rig
@@ -116,20 +142,31 @@ class _Placer:
             drive = rig.drives[op.drive]
             self.events.append(Event(index, PULSE, start, op.duration_s, drive.port, op.span, drive.name,
                                      op.targets, drive.species, op.rabi_hz, op.detuning_hz, op.phase_rad,
-                                     op.area_rad, op.shape))
+                                     op.area_rad, op.shape, decision=_combine(self.decision, op.decision)))
         elif isinstance(op, ImageOp):
             imaging = rig.imaging[op.species]
             targets = self.program.sites_of(op.species)
             self.events.append(Event(index, IMAGE, start, op.duration_s, imaging.port, op.span,
                                      targets=targets, species=op.species, record=op.record))
+        elif isinstance(op, MoveOp):
+            self.events.append(Event(index, MOVE, start, op.duration_s, "move " + ",".join(op.sites), op.span,
+                                     targets=op.sites, displacement_m=op.displacement_m, profile=op.profile))
         else:
             port = rig.ports[op.port]
             self.events.append(Event(index, op.action, start, op.duration_s, port.channel, op.span,
-                                     value=op.value))
+                                     value=op.value, decision=self.decision))
+
+
+def _combine(outer: Decision | None, inner: Decision | None) -> Decision | None:
+    """A decision inside another (same selection, checked by the resolver): both must allow a key."""
+    if outer is None or inner is None:
+        return inner or outer
+    enabled = tuple(a and b for a, b in zip(outer.enabled, inner.enabled))
+    return Decision(inner.selection, enabled, inner.variants, inner.span)
 
 
 def _makes_events(op) -> bool:
-    if isinstance(op, (PulseOp, ImageOp, PortOp)):
+    if isinstance(op, (PulseOp, ImageOp, PortOp, MoveOp, FieldOp)):
         return True
     if isinstance(op, (SerialOp, TogetherOp)):
         return any(_makes_events(o) for o in op.body)
@@ -154,10 +191,14 @@ def _too_long(placer: _Placer, op, tick: float):
 
 def _count_events(op) -> int:
     """Events and waits after expansion (waits cost placing time even though they make no event)."""
-    if isinstance(op, (PulseOp, ImageOp, PortOp, WaitOp)):
+    if isinstance(op, (PulseOp, ImageOp, PortOp, WaitOp, MoveOp)):
         return 1
+    if isinstance(op, FieldOp):
+        return 1 + _count_events(op.body)
     if isinstance(op, (SerialOp, TogetherOp)):
         return sum(_count_events(o) for o in op.body)
     if isinstance(op, RepeatOp):
         return op.count * _count_events(op.body)
+    if isinstance(op, BranchOp):
+        return _count_events(op.then) + _count_events(op.otherwise)
     return 0

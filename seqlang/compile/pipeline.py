@@ -12,6 +12,8 @@ from ..lang.parser import cyclic_gc_paused
 from ..program.model import Program
 from ..program.resolve import resolve
 from .checks import check_timeline, check_waveforms
+from .decisions import check_decisions
+from .geometry import check_geometry
 from .hardware import HardwarePlan, latency_warnings, plan
 from .lower import lower
 from .quantize import quantize
@@ -29,19 +31,23 @@ class Checked:
     warnings: tuple[Diagnostic, ...]
 
 
-def check(path: str, sources: Mapping[str, str] | None = None) -> Checked:
+def check(path: str, sources: Mapping[str, str] | None = None, point: int | None = None) -> Checked:
     """Run every pass; raise :class:`SeqlangError` with all errors found.
 
-    `sources` optionally maps paths to unsaved texts (see :func:`resolve`).
+    `sources` optionally maps paths to unsaved texts (see :func:`resolve`);
+    `point` picks a scan point of a file with scans (default: the first).
     """
     with cyclic_gc_paused():
-        return _check(path, sources)
+        program, diags = resolve(path, sources, point)
+        return check_program(program, diags)
 
 
-def _check(path: str, sources: Mapping[str, str] | None) -> Checked:
-    program, diags = resolve(path, sources)
+def check_program(program: Program, diags: list[Diagnostic]) -> Checked:
+    """The passes after resolution (lowering, timing checks, quantization, hardware plan)."""
     timeline = lower(program)
-    diags = diags + check_timeline(program, timeline)
+    diags = diags + check_timeline(program, timeline) + check_decisions(program, timeline)
+    if not any(d.severity == ERROR for d in diags):
+        diags += check_geometry(program, timeline)
     quantized, report, quant_diags = quantize(program, timeline)
     diags += quant_diags + [d for d in check_timeline(program, quantized) if d.span not in {x.span for x in diags}]
     if not any(d.severity == ERROR for d in diags):

@@ -18,6 +18,7 @@ from ..lang import units
 from ..lang.diagnostics import Diagnostic, error
 from ..program.model import Drive, Program
 from . import envelopes
+from .decisions import largest_area, quantize_variants
 from .lower import MAX_TICKS  # exact integer tick arithmetic up to 2**53
 from .timeline import PULSE, Event, Timeline, evolve
 
@@ -103,7 +104,8 @@ def _needs_stretch(program: Program, event: Event, start: int, end: int, tick: f
     if event.kind != PULSE or end <= start:
         return False
     drive = program.rig.drives[event.drive]
-    return _rabi_for_area(event, (end - start) * tick) > drive.max_rabi_hz * (1 + 1e-12)
+    return _rabi_for_area(evolve(event, area_rad=largest_area(event)), (end - start) * tick) \
+        > drive.max_rabi_hz * (1 + 1e-12)
 
 
 def _pulse(drive: Drive, event: Event, start: int, end: int, tick: float) -> tuple[Event, float]:
@@ -116,7 +118,7 @@ def _pulse(drive: Drive, event: Event, start: int, end: int, tick: float) -> tup
     detuning = event.detuning_hz * (wanted / event.rabi_hz) if event.rabi_hz > 0 else event.detuning_hz
     quantized = evolve(event, start_s=start * tick, duration_s=duration, rabi_hz=played, area_rad=area,
                        detuning_hz=detuning)
-    return quantized, area - event.area_rad
+    return quantize_variants(drive, quantized, _amplitude_rounded), area - event.area_rad
 
 
 def _detuning_in_range(drive: Drive, written: Event, played: Event) -> list[Diagnostic]:

@@ -8,9 +8,10 @@ from __future__ import annotations
 from dataclasses import dataclass
 
 from ..lang.diagnostics import Span
-from ..program.model import Shape
+from ..program.model import Decision, Shape
 
 PULSE, IMAGE, SWITCH, SET, TRIGGER = "pulse", "image", "switch", "set", "trigger"
+FIELD, MOVE = "field", "move"  # an electric-field stretch (value in V/m); sites moving (displacement_m)
 
 
 @dataclass(frozen=True)
@@ -33,6 +34,9 @@ class Event:
     shape: Shape = Shape("square")
     record: str | None = None
     value: float = 0.0
+    displacement_m: tuple[float, ...] = ()
+    profile: str = ""
+    decision: Decision | None = None  # feed-forward: played per key of an image record
 
     @property
     def end_s(self) -> float:
@@ -51,6 +55,10 @@ class Timeline:
 
     def pulses(self) -> tuple[Event, ...]:
         return tuple(e for e in self.events if e.kind == PULSE)
+
+    def conditioned(self) -> tuple[Event, ...]:
+        """The events that depend on an image record."""
+        return tuple(e for e in self.events if e.decision is not None)
 
 
 def evolve(obj, **changes):

@@ -17,6 +17,10 @@ def register(sub) -> None:
                    help="change nothing; exit 1 if a file is not in the canonical layout")
     p.set_defaults(run=cmd_fmt)
     p = sub.add_parser("lsp", help="run the language server on stdin/stdout (for editors)")
+    p.add_argument("--check-seconds", type=float, metavar="S",
+                   help="time budget of one check or formatting (default 10; env SEQLANG_LSP_CHECK_SECONDS)")
+    p.add_argument("--memory-mb", type=int, metavar="MB",
+                   help="memory budget of the checking worker (default 2048; env SEQLANG_LSP_MEMORY_MB)")
     p.set_defaults(run=cmd_lsp)
 
 
@@ -59,6 +63,14 @@ def _write_atomically(path: str, text: str) -> None:
 
 def cmd_lsp(args) -> int:
     """Serve the Language Server Protocol over stdio until the client says exit."""
+    budgets = (("--check-seconds", args.check_seconds, "SEQLANG_LSP_CHECK_SECONDS"),
+               ("--memory-mb", args.memory_mb, "SEQLANG_LSP_MEMORY_MB"))
+    for option, value, name in budgets:
+        if value is not None:
+            if value <= 0:
+                print(f"seqlang: {option} must be positive", file=sys.stderr)
+                return EXIT_USAGE
+            os.environ[name] = str(value)  # read by the server when it starts
     from .server import serve
     serve()
     return EXIT_OK

@@ -197,6 +197,8 @@ def _compound(expr, text: str) -> str:
         return f"{expression(expr.low, text)} .. {expression(expr.high, text)}"
     if isinstance(expr, ast.StatePair):
         return f"{_kwtuple(expr.lower, text)} <-> {_kwtuple(expr.upper, text)}"
+    if isinstance(expr, ast.RecordSel):
+        return f"{expr.record.name}[{_names(expr.sites)}]"
     raise TypeError(f"cannot format {type(expr).__name__}")
 
 
@@ -282,6 +284,27 @@ def _print_let(printer, item: ast.LetStmt, depth):
     _line(printer, item, f"let {item.name.name} = {expression(item.value, printer.text)}", depth)
 
 
+def _print_scan(printer, item: ast.ScanDecl, depth):
+    text, values = printer.text, item.values
+    if isinstance(values, ast.ScanList):
+        shown = "[" + ", ".join(expression(e, text) for e in values.items) + "]"
+    else:
+        shown = f"{expression(values.low, text)} .. {expression(values.high, text)} points " \
+                f"{expression(values.count, text)}" + (f" spacing {values.spacing.name}" if values.spacing else "")
+    _line(printer, item, f"scan {item.target.name} = {shown}", depth)
+
+
+def _print_lockstep(printer, item: ast.LockstepDecl, depth):
+    _line(printer, item, f"scan lockstep {_names(item.names)}", depth)
+
+
+def _print_free(printer, item: ast.FreeDecl, depth):
+    text = printer.text
+    start = f" start {expression(item.start, text)}" if item.start is not None else ""
+    _line(printer, item, f"free {item.name.name} = {expression(item.low, text)} .. "
+                         f"{expression(item.high, text)}{start}", depth)
+
+
 def _print_site(printer, item: ast.SiteStmt, depth):
     words = f"site {item.name.name} = {item.species.name} at {expression(item.position, printer.text)}"
     _line(printer, item, words, depth)
@@ -292,7 +315,9 @@ def _print_group(printer, item: ast.GroupStmt, depth):
 
 
 def _print_expect(printer, item: ast.ExpectStmt, depth):
-    _line(printer, item, f"expect {_names(item.sites)} as {item.state.name}", depth)
+    state = " * ".join(f.name for f in item.factors) if item.factors else item.state.name
+    words = f"expect {_names(item.sites)} as {state}{_inline_props(item.props, printer.text)}"
+    _line(printer, item, words, depth)
 
 
 def _print_rig(printer, item: ast.RigDef, depth):
@@ -376,16 +401,55 @@ def _print_trigger(printer, stmt: ast.TriggerStmt, depth):
     _line(printer, stmt, f"trigger {stmt.port.name}{_inline_props(stmt.props, printer.text)}", depth)
 
 
+def _print_field(printer, stmt: ast.FieldStmt, depth):
+    _braced(printer, stmt, f"field {stmt.port.name} {expression(stmt.value, printer.text)}",
+            stmt.value.span.end, stmt.body, depth)
+
+
+def _print_move(printer, stmt: ast.MoveStmt, depth):
+    words = f"move {_names(stmt.sites)} {'by' if stmt.relative else 'to'} {expression(stmt.target, printer.text)}"
+    _line(printer, stmt, words + _inline_props(stmt.props, printer.text), depth)
+
+
+def _condition(cond, text: str) -> str:
+    if isinstance(cond, ast.OutcomeIs):
+        return f"{expression(cond.selection, text)} is {cond.word.name}"
+    return f"{expression(cond.left, text)} {cond.op} {expression(cond.right, text)}"
+
+
+def _print_when(printer, stmt: ast.WhenStmt, depth):
+    """`when … {`, the branch, and `} otherwise {` with the other branch when there is one."""
+    brace = printer.brace_line(stmt.condition.span.end)
+    printer.unit(f"when {_condition(stmt.condition, printer.text)} {{", stmt.span.line, brace, depth)
+    printer.open_block()
+    for child in stmt.then:
+        _STATEMENT_PRINTERS[type(child)](printer, child, depth + 1)
+    if stmt.otherwise is not None:
+        after = stmt.then[-1].span.end if stmt.then else stmt.condition.span.end
+        position = printer.text.find("otherwise", after)
+        line = printer.text.count("\n", 0, position) + 1
+        printer.flush_before(line, depth + 1)
+        printer.at_block_start = True
+        printer.unit("} otherwise {", line, printer.brace_line(position), depth)
+        printer.open_block()
+        for child in stmt.otherwise:
+            _STATEMENT_PRINTERS[type(child)](printer, child, depth + 1)
+    printer.close(stmt.span.end_line, depth)
+
+
 _STATEMENT_PRINTERS = {
     ast.PulseStmt: _print_pulse, ast.WaitStmt: _print_wait, ast.TogetherStmt: _print_together,
     ast.RepeatStmt: _print_repeat, ast.DoStmt: _print_do, ast.ImageStmt: _print_image,
     ast.SwitchStmt: _print_switch, ast.SetStmt: _print_set, ast.TriggerStmt: _print_trigger,
     ast.LetStmt: _print_let, ast.Prop: _print_prop, ast.SpeciesDecl: _print_species,
     ast.DriveDecl: _print_drive, ast.ImageDecl: _print_image_decl, ast.PortDecl: _print_port,
+    ast.FieldStmt: _print_field, ast.MoveStmt: _print_move,
+    ast.WhenStmt: _print_when,
 }
 
 _ITEM_PRINTERS = {
     ast.UseStmt: _print_use, ast.ImportStmt: _print_use, ast.RigDef: _print_rig, ast.LetStmt: _print_let,
     ast.SiteStmt: _print_site, ast.GroupStmt: _print_group, ast.BlockDef: _print_block,
     ast.SequenceDef: _print_sequence, ast.ExpectStmt: _print_expect,
+    ast.ScanDecl: _print_scan, ast.LockstepDecl: _print_lockstep, ast.FreeDecl: _print_free,
 }

@@ -16,12 +16,14 @@ from pygments.token import (Comment, Keyword, Name, Number, Operator, Punctuatio
 # The statement and declaration words of the grammar (grammar/seqlang.lark).
 KEYWORDS = ("use", "import", "rig", "species", "drive", "image", "port", "let", "site", "group",
             "at", "block", "sequence", "pulse", "on", "off", "wait", "together", "align", "repeat",
-            "do", "switch", "set", "trigger", "expect", "as")
+            "do", "switch", "set", "trigger", "expect", "as", "when", "otherwise", "is", "scan", "points",
+            "spacing", "lockstep", "free", "field", "move", "to", "by")
 # Values that are words: drive kinds, reach, alignments, qubit encodings, shapes, states.
 CONSTANTS = ("microwave", "raman", "rydberg", "all", "each", "start", "end", "center", "clock",
              "digital", "analog", "counter", "co", "square", "ramped", "gaussian", "blackman",
-             "phi_plus", "phi_minus", "psi_plus", "psi_minus")
-FUNCTIONS = ("sqrt", "sin", "cos", "tan", "exp", "log", "abs")
+             "phi_plus", "phi_minus", "psi_plus", "psi_minus", "electrode", "deflector", "minimum_jerk")
+FUNCTIONS = ("sqrt", "sin", "cos", "tan", "exp", "log", "abs", "asin", "acos", "atan", "atan2", "clip", "round",
+             "floor", "ceil", "min", "max", "bright", "fraction", "outcome")
 UNIT_PATTERN = (r"(THz|GHz|MHz|kHz|Hz|ps|ns|us|µs|ms|s|cm|mm|um|µm|nm|m|nK|uK|µK|mK|K|mrad|rad|deg|"
                 r"pi|mV|V|mA|A|mG|G|uW|µW|mW|W)(?![A-Za-z0-9_])")
 
@@ -52,7 +54,8 @@ class SeqlangLexer(RegexLexer):
             (words(FUNCTIONS, suffix=r"\b"), Name.Builtin),
             (r"[A-Za-z_][A-Za-z0-9_]*", Name),
             (r"<->|->|\.\.", Operator),
+            (r"==|!=|<=|>=|<|>", Operator),
             (r"[-+*/^=]", Operator),
-            (r"[{}(),]", Punctuation),
+            (r"[{}(),\[\]]", Punctuation),
         ],
     }

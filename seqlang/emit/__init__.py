@@ -3,6 +3,7 @@ from __future__ import annotations
 
 from ..compile.pipeline import Checked
 from .atomic import write_set
+from .branches import branches_csv, has_branches
 from .tables import timing_csv, timing_json
 from .waveforms import waveforms_npz
 
@@ -18,4 +19,6 @@ def write_all(checked: Checked, directory: str) -> list[str]:
         "timing.json": timing_json(checked).encode("utf-8"),
         "waveforms.npz": waveforms_npz(checked),
     }
+    if has_branches(checked):  # feed-forward: the branch table belongs to the same set
+        outputs["branches.csv"] = branches_csv(checked).encode("utf-8")
     return write_set(directory, outputs)

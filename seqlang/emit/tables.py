@@ -20,8 +20,11 @@ FORMAT = "seqlang-timing/1"
 CAUTION = ("These tables drive lasers, RF amplifiers and electrodes. Review them before they drive "
            "hardware; seqlang's limits are no substitute for hardware interlocks; laser, RF and "
            "high-voltage safety follow local rules and the lab's licensed safety officer.")
-CSV_COLUMNS = ("port", "tick", "ticks", "kind", "drive", "rabi_hz", "amplitude", "detuning_hz",
-               "phase_rad", "shape", "targets", "value", "event", "source")
+CSV_COLUMNS = ("port", "tick", "time_ns", "ticks", "duration_ns", "kind", "drive", "rabi_hz", "amplitude",
+               "detuning_hz", "phase_rad", "shape", "targets", "value", "event", "source")
+# Which optional columns a row kind fills; the others stay empty (a gate has no Rabi frequency).
+_FILLED = {"pulse": {"drive", "rabi_hz", "amplitude", "detuning_hz", "phase_rad", "shape", "targets"},
+           "gate": {"drive"}, "image": {"targets"}, "set": {"value"}, "switch": {"value"}}
 
 
 def _num(x: float) -> float | int:
@@ -75,11 +78,23 @@ def timing_csv(checked: Checked) -> str:
     out.write(f"# CAUTION: {CAUTION}\n")
     writer = csv.writer(out, lineterminator="\n")
     writer.writerow(CSV_COLUMNS)
+    tick_ns = checked.plan.tick_s * 1e9
     for e in checked.plan.rows():
-        writer.writerow([e.port, e.tick, e.ticks, e.kind, e.drive, _num(e.rabi_hz), _num(e.amplitude),
-                         _num(e.detuning_hz), _num(e.phase_rad), e.shape, " ".join(e.targets), _num(e.value),
-                         e.event, _source(checked, e.source)])
+        writer.writerow(_csv_row(checked, e, tick_ns))
     return out.getvalue()
+
+
+def _csv_row(checked: Checked, e, tick_ns: float) -> list:
+    """One CSV row; columns that do not apply to the row's kind are left empty."""
+    filled = _FILLED.get(e.kind, set())
+    optional = {"drive": e.drive, "rabi_hz": _num(e.rabi_hz), "amplitude": _num(e.amplitude),
+                "detuning_hz": _num(e.detuning_hz), "phase_rad": _num(e.phase_rad), "shape": e.shape,
+                "targets": " ".join(e.targets), "value": _num(e.value)}
+    row = {"port": e.port, "tick": e.tick, "time_ns": _num(e.tick * tick_ns), "ticks": e.ticks,
+           "duration_ns": _num(e.ticks * tick_ns), "kind": e.kind, "event": e.event,
+           "source": _source(checked, e.source)}
+    row.update({k: (v if k in filled else "") for k, v in optional.items()})
+    return [row[c] for c in CSV_COLUMNS]
 
 
 def _port_entry(checked: Checked, e) -> dict:
@@ -93,6 +108,9 @@ def _port_entry(checked: Checked, e) -> dict:
         entry.update(drive=e.drive)
     elif e.kind in ("set", "switch"):
         entry.update(value=_num(e.value))
+    elif e.kind == "ramp":
+        entry.update(start_hz=_num(e.ramp[0]), end_hz=_num(e.ramp[1]), profile=e.ramp[2],
+                     targets=list(e.targets), samples=f"ramp{e.event}_{e.port}")
     return entry
 
 
@@ -116,7 +134,18 @@ def provenance(checked: Checked) -> dict:
         "sequence": _relative(checked, checked.program.path),
         "sources": {_relative(checked, p): h for p, h in sorted(checked.program.sources.items())},
         "rig": _relative(checked, checked.program.rig.path), "tick_ns": _num(checked.plan.tick_s * 1e9),
+        **_scan_point(checked.program),
     }
+
+
+def _scan_point(program) -> dict:
+    """For one point of a scan: its index and the scanned values (in the units written)."""
+    space = getattr(program, "scans", None)
+    if space is None:
+        return {}
+    values = {a.name: _num(a.shown(program.point[a.name])) for a in space.axes}
+    return {"scan_point": {"index": program.point_index, "values": values,
+                           "units": {a.name: a.unit for a in space.axes}}}
 
 
 def timing_json(checked: Checked) -> str:
@@ -146,4 +175,7 @@ def timing_json(checked: Checked) -> str:
         "ports": {port: [_port_entry(checked, e) for e in events] for port, events in plan.ports.items()},
         "timeline": [timeline_entry(checked, e) for e in checked.quantized.events],
     }
+    if checked.quantized.conditioned():  # feed-forward: the branch table (emit/branches.py)
+        from .branches import branch_rows
+        document["branches"] = branch_rows(checked)
     return json.dumps(document, indent=1, sort_keys=False, ensure_ascii=False, allow_nan=False) + "\n"

@@ -2,7 +2,10 @@
 
 Each shaped (non-square) pulse is sampled at its drive's sample rate over its
 played (tick-quantized) duration. Arrays are named ``event<index>_t_ns``,
-``event<index>_rabi_hz`` and ``event<index>_phase_rad``. The zip is written
+``event<index>_rabi_hz`` and ``event<index>_phase_rad``. Each deflector ramp of
+a move is sampled at its port's sample rate on the tick grid
+(``compile.motion.ramp_samples``): ``ramp<index>_<port>_t_ns`` from the ramp's
+issue tick and ``ramp<index>_<port>_hz``. The zip is written
 with fixed timestamps so identical inputs give identical bytes.
 """
 from __future__ import annotations
@@ -42,6 +45,20 @@ def waveform_arrays(checked: Checked) -> dict[str, np.ndarray]:
         arrays[f"event{event.index}_t_ns"] = t * 1e9
         arrays[f"event{event.index}_rabi_hz"] = rabi
         arrays[f"event{event.index}_phase_rad"] = phase
+    arrays.update(_ramp_arrays(checked))
+    return arrays
+
+
+def _ramp_arrays(checked: Checked) -> dict[str, np.ndarray]:
+    from ..compile.motion import ramp_samples
+    ports = {p.channel: p for p in checked.program.rig.ports.values()}
+    arrays = {}
+    for entry in (e for e in checked.plan.rows() if e.kind == "ramp"):
+        port = ports[entry.port]
+        t, f = ramp_samples(entry.ramp[0], entry.ramp[1], entry.ticks * checked.plan.tick_s,
+                            port.extra["sample_rate"], checked.plan.tick_s)
+        arrays[f"ramp{entry.event}_{entry.port}_t_ns"] = np.array(t) * 1e9
+        arrays[f"ramp{entry.event}_{entry.port}_hz"] = np.array(f)
     return arrays
 
 

@@ -451,6 +451,21 @@ class _Builder(Transformer):
         return ast.TriggerStmt(self._ident(children[0]), tuple(children[1:]), self._span(meta))
 
     @v_args(meta=True)
+    def field_stmt(self, meta, children):
+        return ast.FieldStmt(self._ident(children[0]), children[1], children[2], self._span(meta))
+
+    def move_to(self, children):
+        return False
+
+    def move_by(self, children):
+        return True
+
+    @v_args(meta=True)
+    def move_stmt(self, meta, children):
+        sites, relative, target, *props = children
+        return ast.MoveStmt(sites, relative, target, tuple(props), self._span(meta))
+
+    @v_args(meta=True)
     def param(self, meta, children):
         return ast.Param(self._ident(children[0]), children[1], self._span(meta))
 
@@ -470,10 +485,38 @@ class _Builder(Transformer):
     def ket_state(self, children):
         return (self._ident(children[0]), True)
 
+    def product_state(self, children):
+        factors = tuple(self._ident(c) for c in children)
+        first, last = factors[0].span, factors[-1].span
+        span = first._replace(end_line=last.end_line, end_column=last.end_column, end=last.end)
+        return (ast.Ident("*".join(f.name for f in factors), span), False, factors)
+
     @v_args(meta=True)
     def expect_stmt(self, meta, children):
-        (state, is_ket) = children[1]
-        return ast.ExpectStmt(children[0], state, is_ket, self._span(meta))
+        state, is_ket, *factors = children[1]
+        return ast.ExpectStmt(children[0], state, is_ket, self._span(meta), tuple(children[2:]),
+                              factors[0] if factors else ())
+
+    # feed-forward
+    @v_args(meta=True)
+    def record_sel(self, meta, children):
+        return ast.RecordSel(self._ident(children[0]), children[1], self._span(meta))
+
+    @v_args(meta=True)
+    def compare_cond(self, meta, children):
+        left, op, right = children
+        return ast.Compare(str(op), left, right, self._span(meta))
+
+    @v_args(meta=True)
+    def outcome_cond(self, meta, children):
+        return ast.OutcomeIs(children[0], self._ident(children[1]), self._span(meta))
+
+    def otherwise(self, children):
+        return children[0]
+
+    @v_args(meta=True)
+    def when_stmt(self, meta, children):
+        return ast.WhenStmt(children[0], children[1], children[2], self._span(meta))
 
     @v_args(meta=True)
     def use_stmt(self, meta, children):
@@ -482,3 +525,30 @@ class _Builder(Transformer):
     @v_args(meta=True)
     def import_stmt(self, meta, children):
         return ast.ImportStmt(str(children[0])[1:-1], self._span(meta))
+
+    # scans
+    def scan_target(self, children):
+        return self._ident(children[0])
+
+    @v_args(meta=True)
+    def scan_range(self, meta, children):
+        low, high, count, spacing = children
+        return ast.ScanRange(low, high, count, self._ident(spacing) if spacing is not None else None,
+                             self._span(meta))
+
+    @v_args(meta=True)
+    def scan_list(self, meta, children):
+        return ast.ScanList(tuple(children), self._span(meta))
+
+    @v_args(meta=True)
+    def scan_def(self, meta, children):
+        return ast.ScanDecl(children[0], children[1], self._span(meta))
+
+    @v_args(meta=True)
+    def lockstep_def(self, meta, children):
+        return ast.LockstepDecl(tuple(children), self._span(meta))
+
+    @v_args(meta=True)
+    def free_def(self, meta, children):
+        name, low, high, start = children
+        return ast.FreeDecl(self._ident(name), low, high, start, self._span(meta))

@@ -136,8 +136,17 @@ class StatePair:
     span: Span
 
 
+@dataclass(frozen=True)
+class RecordSel:
+    """``mid[h1, h2]``: some sites of an image record (sites may name groups)."""
+
+    record: Ident
+    sites: tuple[Ident, ...]
+    span: Span
+
+
 Expr = Union[Number, UnitRef, NameRef, WithUnit, BinOp, Neg, Call, TupleExpr,
-             RangeExpr, LevelExpr, ChannelExpr, StatePair]
+             RangeExpr, LevelExpr, ChannelExpr, StatePair, RecordSel]
 
 
 @node
@@ -315,8 +324,58 @@ class TriggerStmt:
     span: Span
 
 
+@dataclass(frozen=True)
+class FieldStmt:
+    """``field port value { ... }``: an electric field for the statements of the body."""
+
+    port: Ident
+    value: "Expr"
+    body: tuple["Stmt", ...]
+    span: Span
+
+
+@dataclass(frozen=True)
+class Compare:
+    """``left op right`` with op in == != < <= > >=: a `when` condition."""
+
+    op: str
+    left: Expr
+    right: Expr
+    span: Span
+
+
+@dataclass(frozen=True)
+class MoveStmt:
+    """``move sites to|by (x, y) um duration ... [profile minimum_jerk]``."""
+
+    sites: tuple[Ident, ...]
+    relative: bool
+    target: "Expr"
+    props: tuple[Prop, ...]
+    span: Span
+
+
+@dataclass(frozen=True)
+class OutcomeIs:
+    """``mid[h] is bright`` (or ``dark``): a `when` condition on one site."""
+
+    selection: Expr
+    word: Ident
+    span: Span
+
+
+@dataclass(frozen=True)
+class WhenStmt:
+    """``when condition { ... } [otherwise { ... }]``: played per record outcome."""
+
+    condition: Union[Compare, OutcomeIs]
+    then: tuple["Stmt", ...]
+    otherwise: tuple["Stmt", ...] | None
+    span: Span
+
+
 Stmt = Union[PulseStmt, WaitStmt, TogetherStmt, RepeatStmt, DoStmt, ImageStmt,
-             SwitchStmt, SetStmt, TriggerStmt, LetStmt]
+             SwitchStmt, SetStmt, TriggerStmt, LetStmt, FieldStmt, MoveStmt, WhenStmt]
 
 
 @node
@@ -355,6 +414,8 @@ class ExpectStmt:
     state: Ident
     is_ket: bool
     span: Span
+    props: tuple["Prop", ...] = ()  # ``phase 90 deg``, ``correlate (XXX, ZZZ)``
+    factors: tuple[Ident, ...] = ()  # a product of single-site states: ``plus * zero``
 
 
 @node
@@ -373,8 +434,58 @@ class ImportStmt:
     span: Span
 
 
+@dataclass(frozen=True)
+class ScanRange:
+    """``low .. high points N [spacing log]``: N values, evenly or geometrically spaced."""
+
+    low: "Expr"
+    high: "Expr"
+    count: "Expr"
+    spacing: Ident | None
+    span: Span
+
+
+@dataclass(frozen=True)
+class ScanList:
+    """``[a, b, c]``: the scanned values written out."""
+
+    items: tuple["Expr", ...]
+    span: Span
+
+
+@dataclass(frozen=True)
+class ScanDecl:
+    """``scan NAME = values``: a named value that takes each of `values` in turn.
+
+    The target is a constant's name, or ``drive.key`` / ``species.key`` for a rig value.
+    """
+
+    target: Ident
+    values: Union[ScanRange, ScanList]
+    span: Span
+
+
+@dataclass(frozen=True)
+class LockstepDecl:
+    """``scan lockstep a, b``: these scans advance together (zipped), not as a product."""
+
+    names: tuple[Ident, ...]
+    span: Span
+
+
+@dataclass(frozen=True)
+class FreeDecl:
+    """``free NAME = low .. high [start value]``: a value the optimiser may vary within bounds."""
+
+    name: Ident
+    low: "Expr"
+    high: "Expr"
+    start: "Expr | None"
+    span: Span
+
+
 Item = Union[UseStmt, ImportStmt, RigDef, LetStmt, SiteStmt, GroupStmt, BlockDef,
-             SequenceDef, ExpectStmt]
+             SequenceDef, ExpectStmt, ScanDecl, LockstepDecl, FreeDecl]
 
 
 @node

@@ -22,6 +22,7 @@ _WORDS = {
     "NAME": "a name", "NUMBER": "a number", "UNIT": "a unit", "STRING": "a quoted file name",
     "LEVEL": "a Rydberg level such as 58S1/2", "CHANNEL": "an output such as awg1.2",
     "KET": "a ket such as |01>", "$END": "the end of the file",
+    "COMPARE": "a comparison such as `>=`",
 }
 # Grammar rules whose leading keywords are named as one group, in this order.
 _GROUPS = (("_stmt", "a statement"), ("_rig_item", "a rig entry"), ("_item", "a declaration"))

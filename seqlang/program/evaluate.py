@@ -8,6 +8,7 @@
 from __future__ import annotations
 
 import math
+from contextvars import ContextVar
 import sys
 from dataclasses import dataclass, field
 from typing import Callable
@@ -40,6 +41,7 @@ class Scope:
 
     values: dict[str, object] = field(default_factory=dict)
     parent: "Scope | None" = None
+    pinned: frozenset = frozenset()  # scanned names: a rig `let` of the same name gives way
 
     def lookup(self, name: str) -> object | None:
         scope: Scope | None = self
@@ -108,6 +110,90 @@ FUNCTIONS = {
 }
 
 
+# ---- estimator functions and record values (feed-forward) ---------------------
+def _inverse(fn: Callable[[float], float], name: str, low: float = -1.0, high: float = 1.0):
+    """asin/acos: a plain number in [low, high] → an angle."""
+    def apply(q: Quantity, span: Span) -> Quantity:
+        if q.dim != DIMENSIONLESS:
+            raise EvalError(error(f"expected a plain number, got {q.kind}", span))
+        if not low <= q.value <= high:
+            raise EvalError(error(f"`{name}` needs a value from {low:g} to {high:g}, got {q.value:.6g}", span,
+                                  "clip the estimate first, e.g. `clip(x, -1, 1)`"))
+        return Quantity(fn(q.value))
+    return apply
+
+
+def _plain(fn: Callable[[float], float]):
+    def apply(q: Quantity, span: Span) -> Quantity:
+        if q.dim != DIMENSIONLESS:
+            raise EvalError(error(f"expected a plain number, got {q.kind}", span))
+        return Quantity(float(fn(q.value)))
+    return apply
+
+
+FUNCTIONS.update({
+    "asin": _inverse(math.asin, "asin"), "acos": _inverse(math.acos, "acos"), "atan": _plain(math.atan),
+    "round": _plain(round), "floor": _plain(math.floor), "ceil": _plain(math.ceil),
+})
+
+
+def _same_dims(values: list[Quantity], name: str, span: Span) -> None:
+    if len({q.dim for q in values}) > 1:
+        raise EvalError(error(f"`{name}` needs values of one kind, got "
+                              + " and ".join(sorted({q.kind for q in values})), span))
+
+
+def _atan2(values: list[Quantity], span: Span) -> Quantity:
+    _same_dims(values, "atan2", span)
+    return Quantity(math.atan2(values[0].value, values[1].value))
+
+
+def _clip(values: list[Quantity], span: Span) -> Quantity:
+    _same_dims(values, "clip", span)
+    x, low, high = values
+    if low.value > high.value:
+        raise EvalError(error("`clip(x, low, high)` needs low <= high", span))
+    return Quantity(min(max(x.value, low.value), high.value), x.dim)
+
+
+def _extreme(pick):
+    def apply(values: list[Quantity], span: Span) -> Quantity:
+        _same_dims(values, "min/max", span)
+        return Quantity(pick(q.value for q in values), values[0].dim)
+    return apply
+
+
+# name → (number of values, or None for two or more; function of the list of values)
+MULTI_FUNCTIONS = {"atan2": (2, _atan2), "clip": (3, _clip), "min": (None, _extreme(min)),
+                   "max": (None, _extreme(max))}
+RECORD_FUNCTIONS = ("bright", "fraction", "outcome")
+# Set by the resolver while it evaluates a statement once per key of an image record:
+# a function (call expression, scope) → Quantity. None everywhere else.
+RECORD_VALUES: ContextVar = ContextVar("record_values", default=None)
+
+
+@dataclass(frozen=True)
+class Deferred:
+    """A `let` whose value depends on an image record: evaluated where it is used, per key."""
+
+    expr: ast.Expr
+    scope: "Scope"
+
+
+def _record_call(expr: ast.Call, scope: Scope) -> Quantity:
+    reader = RECORD_VALUES.get()
+    if reader is None:
+        raise EvalError(error(f"`{expr.func.name}(…)` reads an image record; only pulse parameters and `when` "
+                              "conditions can use one", expr.span,
+                              "a record can set a pulse's phase, area, rabi or detuning"))
+    return reader(expr, scope)
+
+
+def _record_sel(expr: ast.RecordSel, scope: Scope) -> Quantity:
+    raise EvalError(error(f"`{expr.record.name}[…]` selects sites of a record; it is not a number", expr.span,
+                          "count it: `bright(…)`, `fraction(…)` or, for one site, `outcome(…)`"))
+
+
 def evaluate(expr: ast.Expr, scope: Scope) -> Quantity:
     """Evaluate to a Quantity; raise :class:`EvalError` with a diagnostic."""
     value = evaluate_any(expr, scope)
@@ -151,6 +237,8 @@ def _name(expr: ast.NameRef, scope: Scope) -> object:
     if value is None:
         raise EvalError(error(f"unknown name `{expr.name}`", expr.span,
                               did_you_mean(expr.name, scope.names())))
+    if isinstance(value, Deferred):
+        return evaluate_any(value.expr, value.scope)
     return value
 
 
@@ -220,13 +308,24 @@ def _neg(expr: ast.Neg, scope: Scope) -> Quantity:  # finite in, finite out
 
 
 def _call(expr: ast.Call, scope: Scope) -> Quantity:
+    if expr.func.name in RECORD_FUNCTIONS:
+        return _record_call(expr, scope)
+    if expr.func.name in MULTI_FUNCTIONS:
+        return _multi_call(expr, scope)
     fn = FUNCTIONS.get(expr.func.name)
     if fn is None:
         raise EvalError(error(f"unknown function `{expr.func.name}`", expr.func.span,
-                              did_you_mean(expr.func.name, FUNCTIONS)))
+                              did_you_mean(expr.func.name, [*FUNCTIONS, *MULTI_FUNCTIONS, *RECORD_FUNCTIONS])))
     if len(expr.args) != 1 or expr.args[0].name is not None:
         raise EvalError(error(f"`{expr.func.name}` takes one value", expr.span))
     return fn(evaluate(expr.args[0].value, scope), expr.span)
+
+
+def _multi_call(expr: ast.Call, scope: Scope) -> Quantity:
+    count, fn = MULTI_FUNCTIONS[expr.func.name]
+    if any(a.name is not None for a in expr.args) or (len(expr.args) != count if count else len(expr.args) < 2):
+        raise EvalError(error(f"`{expr.func.name}` takes {count or 'two or more'} values", expr.span))
+    return fn([evaluate(a.value, scope) for a in expr.args], expr.span)
 
 
 def _tuple(expr: ast.TupleExpr, scope: Scope) -> tuple:
@@ -243,7 +342,7 @@ def _what(value: object) -> str:
 
 _HANDLERS = {
     ast.Number: _number, ast.UnitRef: _unit, ast.NameRef: _name, ast.WithUnit: _with_unit,
-    ast.BinOp: _binop, ast.Neg: _neg, ast.Call: _call, ast.TupleExpr: _tuple,
+    ast.BinOp: _binop, ast.Neg: _neg, ast.Call: _call, ast.TupleExpr: _tuple, ast.RecordSel: _record_sel,
 }
 
 

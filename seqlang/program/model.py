@@ -74,6 +74,7 @@ class Imaging:
     latency_s: float
     extra: Mapping[str, float]
     span: Span
+    decision_latency_s: float = 0.0  # image end → first operation that may depend on its record
 
 
 @dataclass(frozen=True)
@@ -88,6 +89,10 @@ class Port:
     value_range: tuple[float, float] | None
     unit_dim: tuple[int, ...] | None
     span: Span
+    # Electrodes: `field_per_volt` (V/m per V at the atoms). Deflectors (kind
+    # "deflector"): axis, scale (Hz/m), center (Hz), sample_rate (Hz), steers (species),
+    # max_velocity (m/s), max_acceleration (m/s²).
+    extra: Mapping[str, object] = field(default_factory=dict)
     role: str = "plain"  # "traps": switches the tweezer light
 
 
@@ -105,6 +110,10 @@ class Rig:
     ports: Mapping[str, Port]
     span: Span
     environment_k: float = 300.0  # temperature of the surroundings (black-body radiation)
+    quantization_axis: tuple[float, float, float] | None = None  # None: each pair's own axis (θ = 0)
+    min_spacing_m: float = 1e-6
+    resonant_pairs: frozenset = frozenset()  # species-name pairs modelled as resonant (C3/R³)
+    field_rms_g: float = 0.0  # quasi-static field offset shared by the array, rms (G)
 
 
 @dataclass(frozen=True)
@@ -128,6 +137,52 @@ class Shape:
         return dict(self.params).get(name, default)
 
 
+# ---- feed-forward ----------------------------------------------------------------
+@dataclass(frozen=True)
+class Selection:
+    """Sites of one image record: the key a conditioned operation is looked up by.
+
+    The key is the number of sites reported bright, 0 .. len(sites) (for one site:
+    the outcome bit).
+    """
+
+    record: str
+    sites: tuple[str, ...]
+    species: str
+    span: Span = field(compare=False, hash=False)
+
+    @property
+    def keys(self) -> range:
+        return range(len(self.sites) + 1)
+
+    def label(self) -> str:
+        return f"{self.record}[{', '.join(self.sites)}]"
+
+
+@dataclass(frozen=True)
+class Variant:
+    """The parameters a conditioned pulse plays for one key."""
+
+    rabi_hz: float
+    detuning_hz: float
+    phase_rad: float
+    area_rad: float
+
+
+@dataclass(frozen=True)
+class Decision:
+    """How an operation depends on a record: played for which keys, and with what.
+
+    `enabled[k]` says whether it plays when the key is k; `variants[k]` (pulses
+    with record-dependent values only) its parameters for key k.
+    """
+
+    selection: Selection
+    enabled: tuple[bool, ...]
+    variants: tuple[Variant, ...] | None
+    span: Span
+
+
 # ---- operations of the sequence ---------------------------------------------
 @dataclass(frozen=True)
 class PulseOp:
@@ -142,6 +197,7 @@ class PulseOp:
     area_rad: float
     shape: Shape
     span: Span
+    decision: Decision | None = None
 
 
 @dataclass(frozen=True)
@@ -193,7 +249,41 @@ class RepeatOp:
     span: Span
 
 
-Op = Union[PulseOp, WaitOp, ImageOp, PortOp, SerialOp, TogetherOp, RepeatOp]
+@dataclass(frozen=True)
+class FieldOp:
+    """An electric field (V/m, along the quantisation axis) from an electrode port during `body`."""
+
+    port: str
+    field_v_m: float
+    volts: float
+    body: SerialOp
+    span: Span
+
+
+@dataclass(frozen=True)
+class MoveOp:
+    """Sites displaced by (dx, dy, dz) metres over `duration_s` with a smooth `profile`."""
+
+    sites: tuple[str, ...]
+    displacement_m: tuple[float, float, float]
+    duration_s: float
+    profile: str
+    span: Span
+
+
+
+@dataclass(frozen=True)
+class BranchOp:
+    """``when``: `then` plays for the keys where `decision.enabled`, `otherwise` for the rest;
+    both start together and last as long as the longer one (the shorter is padded)."""
+
+    decision: Decision
+    then: SerialOp
+    otherwise: SerialOp
+    span: Span
+
+
+Op = Union[PulseOp, WaitOp, ImageOp, PortOp, SerialOp, TogetherOp, RepeatOp, BranchOp, FieldOp, MoveOp]
 
 
 @dataclass(frozen=True)
@@ -201,9 +291,11 @@ class Expectation:
     """The state a sequence means to make on named sites."""
 
     sites: tuple[str, ...]
-    state: str  # "phi_plus" ... or a ket like "01"
+    state: str  # "phi_plus" ..., "ghz", "w", a product "plus*zero", or a ket like "01"
     is_ket: bool
     span: Span
+    phase_rad: float = 0.0  # relative phase φ of (|0…0⟩ + e^{iφ}|1…1⟩)/√2 for "ghz"
+    correlators: tuple[str, ...] = ()  # Pauli strings asked for with `correlate`
 
 
 @dataclass(frozen=True)
@@ -219,6 +311,10 @@ class Program:
     expects: tuple[Expectation, ...]
     sources: Mapping[str, str] = field(default_factory=dict)  # path -> sha256
     constants: Mapping[str, object] = field(default_factory=dict)
+    scans: object = None  # a program.scans.ScanSpace when the file declares scans
+    point: Mapping[str, float] = field(default_factory=dict)  # this point's scanned values (SI)
+    point_index: int = 0
+    free: tuple = ()  # program.scans.FreeParam of each `free` declaration
 
     def sites_of(self, species: str) -> tuple[str, ...]:
         return tuple(n for n, s in self.sites.items() if s.species == species)

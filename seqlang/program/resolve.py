@@ -18,6 +18,7 @@ from ..lang.parser import parse_text
 from . import includes
 from .evaluate import EvalError, Scope, evaluate, evaluate_any, expect_kind
 from .model import Expectation, Program, Rig, SerialOp, Site
+from .scans import bind_free, bind_point, override_rig, resolve_free, resolve_scans
 from .sequence import SequenceResolver
 
 BELL_STATES = ("phi_plus", "phi_minus", "psi_plus", "psi_minus")
@@ -36,16 +37,29 @@ class Loaded:
     sources: Mapping[str, str] = field(default_factory=dict)
 
 
-def resolve(path: str, sources: Mapping[str, str] | None = None) -> tuple[Program, list[Diagnostic]]:
+def resolve(path: str, sources: Mapping[str, str] | None = None,
+            point: int | None = None) -> tuple[Program, list[Diagnostic]]:
     """Parse, resolve and check the sequence file at `path` (warnings returned).
 
     `sources` maps paths to texts that replace the files on disk (an editor's
-    unsaved buffers); paths are matched as the resolver forms them.
+    unsaved buffers); paths are matched as the resolver forms them. A file with
+    scans is resolved at scan point `point` (default: the first point).
     """
+    return resolve_point(load_files(path, sources), point)
+
+
+def load_files(path: str, sources: Mapping[str, str] | None = None) -> Loaded:
+    """Read and parse a program's files once, so that scan points re-use them."""
+    return _load(path, [], sources or {})
+
+
+def resolve_point(loaded: Loaded, point: int | None = None,
+                  free: dict[str, float] | None = None) -> tuple[Program, list[Diagnostic]]:
+    """Resolve parsed files at one scan point (an index; None for the first point), with the
+    `free` values given (SI; the others at their start)."""
     diags: list[Diagnostic] = []
-    loaded = _load(path, diags, sources or {})
     failed: set[str] = set()
-    program = _resolve_loaded(loaded, diags, failed)
+    program = _resolve_loaded(loaded, diags, failed, point or 0, free)
     diags = _without_knock_ons(diags, failed)
     errors = [d for d in diags if d.severity == ERROR]
     if errors or program is None:
@@ -160,14 +174,25 @@ def _without_knock_ons(diags: list[Diagnostic], failed: set[str]) -> list[Diagno
     return [d for d in diags if not knock_on(d)]
 
 
-def _resolve_loaded(loaded: Loaded, diags: list[Diagnostic], failed: set[str]) -> Program | None:
+def _resolve_loaded(loaded: Loaded, diags: list[Diagnostic], failed: set[str], point: int = 0,
+                    free_values: dict[str, float] | None = None) -> Program | None:
     from .rig import resolve_rig
     scope = Scope()
     if loaded.rig is None:
         diags.append(error("no rig: add `use \"lab.rig\"` at the top of the file",
                            Span(loaded.main.path, 1, 1, 1, 1)))
         return None
-    rig = resolve_rig(loaded.rig, loaded.rig_path, scope, diags)
+    for imported in loaded.imports:  # a scan or free value belongs to the file that is run
+        for decl in (i for i in imported.items if isinstance(i, (ast.ScanDecl, ast.LockstepDecl, ast.FreeDecl))):
+            diags.append(error("`scan` and `free` are declared in the sequence file that is run, "
+                               "not in an imported one", decl.span))
+    space = resolve_scans(loaded.main, diags)
+    failed.update(_failed_scans(loaded.main, space))
+    values = space.point(point) if space is not None else {}
+    bind_point(space, values, scope)
+    free = resolve_free(loaded.main, set(values), diags)
+    bind_free(free, free_values, scope)
+    rig = resolve_rig(override_rig(loaded.rig, space, diags), loaded.rig_path, scope, diags)
     files = loaded.imports + [loaded.main]
     _bind_lets(files, scope, diags, failed)
     sites = _sites(loaded.main, rig, scope, diags, failed)
@@ -180,14 +205,24 @@ def _resolve_loaded(loaded: Loaded, diags: list[Diagnostic], failed: set[str]) -
     resolver = SequenceResolver(rig, sites, groups, blocks, diags)
     body = resolver.resolve_body(sequences[0].body, scope, sequences[0].span) if sequences \
         else SerialOp((), Span(loaded.main.path, 1, 1, 1, 1))
-    expects = _expects(loaded.main, sites, groups, diags, failed)
+    expects = _expects(loaded.main, sites, groups, diags, failed, scope)
     return Program(name, loaded.main.path, rig, sites, groups, body, expects,
-                   dict(sorted(loaded.hashes.items())), dict(scope.values))
+                   dict(sorted(loaded.hashes.items())), dict(scope.values), space, values, point, free)
+
+
+def _failed_scans(source: ast.SourceFile, space) -> set[str]:
+    """Scans whose declaration has an error: their names stay unknown, without knock-on errors."""
+    ok = {a.name for a in space.axes} if space is not None else set()
+    return {d.target.name for d in source.items if isinstance(d, ast.ScanDecl) and d.target.name not in ok}
 
 
 def _bind_lets(files, scope: Scope, diags: list[Diagnostic], failed: set[str]) -> None:
     for source in files:
         for let in (i for i in source.items if isinstance(i, ast.LetStmt)):
+            if let.name.name in scope.pinned:
+                diags.append(error(f"`{let.name.name}` is scanned; a `let` cannot redefine it", let.name.span,
+                                   "remove this `let` or rename the scan"))
+                continue
             if let.name.name in units.UNITS:
                 diags.append(error(f"`{let.name.name}` is a unit and cannot be a constant's name", let.name.span))
                 continue
@@ -289,7 +324,7 @@ def _blocks(files, diags: list[Diagnostic]) -> dict[str, ast.BlockDef]:
 
 
 def _expects(source: ast.SourceFile, sites, groups, diags: list[Diagnostic],
-             failed: set[str]) -> tuple[Expectation, ...]:
+             failed: set[str], scope: Scope | None = None) -> tuple[Expectation, ...]:
     out = []
     for stmt in (i for i in source.items if isinstance(i, ast.ExpectStmt)):
         if any(ident.name in failed for ident in stmt.sites):
@@ -304,9 +339,47 @@ def _expects(source: ast.SourceFile, sites, groups, diags: list[Diagnostic],
                 diags.append(error(f"unknown site `{ident.name}`", ident.span,
                                    did_you_mean(ident.name, list(sites) + list(groups))))
         state = _expected_state(stmt, len(names), diags)
-        if state is not None:
-            out.append(Expectation(tuple(names), state, stmt.is_ket, stmt.span))
+        extras = _expect_props(stmt, state, len(names), scope or Scope(), diags)
+        if state is not None and extras is not None:
+            out.append(Expectation(tuple(names), state, stmt.is_ket, stmt.span, *extras))
     return tuple(out)
+
+
+MANY_ATOM_STATES = ("ghz", "w")
+SINGLE_SITE_STATES = ("zero", "one", "plus", "minus", "plus_i", "minus_i")
+EXPECT_KEYS = ("phase", "correlate")
+
+
+def _expect_props(stmt: ast.ExpectStmt, state, count: int, scope: Scope, diags) -> tuple | None:
+    """(phase, correlators) from ``phase 90 deg`` (GHZ only) and ``correlate XXZ`` or
+    ``correlate (XXX, ZZZ)`` (Pauli strings of I, X, Y, Z, one letter per named site)."""
+    phase, strings, ok = 0.0, [], True
+    for prop in stmt.props:
+        key = prop.key.name
+        if key == "phase" and state == "ghz":
+            try:
+                phase = expect_kind(evaluate(prop.value, scope), units.ANGLE, prop.value.span)
+            except EvalError as exc:
+                diags.append(exc.diagnostic)
+                ok = False
+        elif key == "phase":
+            diags.append(error("only a GHZ target takes a `phase`", prop.key.span))
+            ok = False
+        elif key == "correlate":
+            items = prop.value.items if isinstance(prop.value, ast.TupleExpr) else (prop.value,)
+            for item in items:
+                text = item.name if isinstance(item, ast.NameRef) else ""
+                if not text or set(text) - set("IXYZ") or len(text) != count:
+                    diags.append(error(f"expected a Pauli string of {count} letters I, X, Y or Z (one per named "
+                                       "site), such as `" + "X" * count + "`", item.span))
+                    ok = False
+                else:
+                    strings.append(text)
+        else:
+            diags.append(error(f"unknown property `{key}` of `expect`", prop.key.span,
+                               did_you_mean(key, EXPECT_KEYS) or f"known: {', '.join(EXPECT_KEYS)}"))
+            ok = False
+    return (phase, tuple(dict.fromkeys(strings))) if ok else None
 
 
 def _expected_state(stmt: ast.ExpectStmt, count: int, diags: list[Diagnostic]) -> str | None:
@@ -316,9 +389,26 @@ def _expected_state(stmt: ast.ExpectStmt, count: int, diags: list[Diagnostic]) -
             diags.append(error(f"the ket has {len(bits)} qubits but {count} sites are named", stmt.state.span))
             return None
         return bits
+    if stmt.factors:
+        unknown = [f for f in stmt.factors if f.name not in SINGLE_SITE_STATES]
+        for f in unknown:
+            diags.append(error(f"unknown single-site state `{f.name}`", f.span,
+                               did_you_mean(f.name, SINGLE_SITE_STATES) or f"known: {', '.join(SINGLE_SITE_STATES)}"))
+        if not unknown and len(stmt.factors) != count:
+            diags.append(error(f"the product has {len(stmt.factors)} factors but {count} sites are named",
+                               stmt.state.span))
+            return None
+        return None if unknown else stmt.state.name
+    if stmt.state.name in MANY_ATOM_STATES:
+        if count < 2:
+            diags.append(error(f"a {stmt.state.name.upper()} state needs at least two sites, got {count}", stmt.span))
+            return None
+        return stmt.state.name
     if stmt.state.name not in BELL_STATES:
+        known = BELL_STATES + MANY_ATOM_STATES
         diags.append(error(f"unknown state `{stmt.state.name}`", stmt.state.span,
-                           did_you_mean(stmt.state.name, BELL_STATES) or f"known: {', '.join(BELL_STATES)}"))
+                           did_you_mean(stmt.state.name, known) or f"known: {', '.join(known)}, a ket such as "
+                           "|01>, or a product such as `plus * zero`"))
         return None
     if count != 2:
         diags.append(error(f"a Bell state needs two sites, got {count}", stmt.span))

@@ -11,14 +11,47 @@ from ..lang import syntax as ast
 from ..lang import units
 from ..lang.diagnostics import Diagnostic, did_you_mean, error
 from . import props as p
-from .evaluate import EvalError, Scope, evaluate
+from .evaluate import EvalError, Scope, evaluate, evaluate_any, expect_kind
 from .model import DRIVE_KINDS, Drive, Imaging, Legs, Port, Rig, Species
+
+_PER_FIELD = tuple(f - g for f, g in zip(units.FREQUENCY, units.FIELD))  # Hz/G: qubit shift per field
+
+_INTENSITY = tuple(w - 2 * m for w, m in zip(units.POWER, units.LENGTH))  # W/m²
 
 RIG_SETTINGS = {
     "tick": p.Key(p.positive(p.duration, "tick"), required=True, doc="the sequencer clock period, e.g. 2 ns"),
     "counter_bits": p.Key(p.integer(8, 64), 32, doc="width of the sequencer's duration counter"),
     "environment": p.Key(p.non_negative(p.temperature, "environment temperature"), 300.0,
                          doc="temperature of the surroundings, for black-body decay"),
+    # rms of the quasi-static magnetic field offset shared by the whole array (one value per shot);
+    # each species feels it through its `field_sensitivity`.
+    "field_rms": p.Key(p.non_negative(p.quantity(units.FIELD)), 0.0),
+}
+
+E_FIELD = tuple(v - l for v, l in zip(units.VOLTAGE, units.LENGTH))
+PER_LENGTH = tuple(-x for x in units.LENGTH)
+HZ_PER_M = tuple(f - l for f, l in zip(units.FREQUENCY, units.LENGTH))
+VELOCITY = tuple(l - t for l, t in zip(units.LENGTH, units.DURATION))
+ACCELERATION = tuple(l - 2 * t for l, t in zip(units.LENGTH, units.DURATION))
+DEFAULT_MIN_SPACING_M = 1e-6  # about one diffraction-limited tweezer spot (common practice)
+
+
+def _axis(expr, scope):
+    """``(0, 0, 1)``: a direction; normalised."""
+    value = evaluate_any(expr, scope)
+    if not isinstance(value, tuple) or len(value) != 3:
+        raise EvalError(error("expected a direction such as `(0, 0, 1)`", expr.span))
+    comps = [expect_kind(q, units.DIMENSIONLESS, expr.span) for q in value]
+    norm = math.sqrt(sum(c * c for c in comps))
+    if norm == 0:
+        raise EvalError(error("the quantisation axis cannot be zero", expr.span))
+    return tuple(c / norm for c in comps)
+
+
+RIG_SETTINGS_PAIRS = {
+    "quantization_axis": p.Key(_axis, None, doc="direction of the bias field, e.g. (0, 0, 1)"),
+    "min_spacing": p.Key(p.positive(p.length, "minimum spacing"), DEFAULT_MIN_SPACING_M,
+                         doc="closest two sites may come, e.g. 1.5 um"),
 }
 
 SPECIES_KEYS = {
@@ -33,6 +66,8 @@ SPECIES_KEYS = {
     "t2_star": p.Key(p.non_negative(p.duration), 0.0),
     "field_noise": p.Key(p.non_negative(p.frequency), 0.0),
     "field_noise_freq": p.Key(p.non_negative(p.frequency), 0.0),
+    "resonant_with": p.Key(lambda e, s: e, None, doc="a species whose pair with this one is modelled as C3/R^3"),
+    "field_sensitivity": p.Key(p.quantity(_PER_FIELD), 0.0),
     # Light shift of the Rydberg level by the trap light while the traps are on.
     "trap_rydberg_shift": p.Key(p.frequency, 0.0),
 }
@@ -77,16 +112,35 @@ IMAGE_KEYS = {
     "latency": p.Key(p.non_negative(p.duration), 0.0),
     "false_positive": p.Key(p.fraction, 0.0),
     "false_negative": p.Key(p.fraction, 0.0),
+    # Feed-forward: camera read-out plus processing, from the end of the imaging to
+    # the first operation that may depend on its record.
+    "decision_latency": p.Key(p.non_negative(p.duration), 0.0),
+    # Imaging crosstalk: the imaging light's wavelength (default: the species' D2 line) and its
+    # intensity, or its saturation parameter on the imaged species' D2 line.
+    "light_wavelength": p.Key(p.positive(p.length, "wavelength"), None),
+    "light_intensity": p.Key(p.non_negative(p.quantity(_INTENSITY)), None),
+    "saturation": p.Key(p.non_negative(p.quantity(units.DIMENSIONLESS)), None),
 }
 
 PORT_KEYS = {
-    "kind": p.Key(p.choice("digital", "analog"), "digital"),
+    "kind": p.Key(p.choice("digital", "analog", "deflector"), "digital"),
     "latency": p.Key(p.non_negative(p.duration), 0.0),
     "width": p.Key(p.positive(p.duration, "trigger width"), 1e-6),
     "range": p.Key(p.any_range, None),
+    # electrodes (analog) and deflectors: see PORT_EXTRA_KEYS and docs/language.md
+    "field_per_volt": p.Key(p.positive(p.quantity(PER_LENGTH), "calibration"), None),
+    "axis": p.Key(p.choice("x", "y", "z"), None),
+    "scale": p.Key(p.quantity(HZ_PER_M), None),
+    "center": p.Key(p.positive(p.frequency, "centre frequency"), None),
+    "sample_rate": p.Key(p.positive(p.frequency, "sample rate"), None),
+    "steers": p.Key(lambda e, s: e, None, doc="the species whose tweezers it steers"),
+    "max_velocity": p.Key(p.positive(p.quantity(VELOCITY), "maximum velocity"), None),
+    "max_acceleration": p.Key(p.positive(p.quantity(ACCELERATION), "maximum acceleration"), None),
     # `role traps`: this digital line switches the tweezer light (on = traps on).
     "role": p.Key(p.choice("plain", "traps"), "plain"),
 }
+PORT_KINDS = ("digital", "analog", "deflector")
+DEFLECTOR_REQUIRED = ("axis", "scale", "center", "sample_rate")
 
 
 def drive_keys(kind: str) -> dict[str, p.Key]:
@@ -97,7 +151,8 @@ def drive_keys(kind: str) -> dict[str, p.Key]:
 def resolve_rig(rig: ast.RigDef, path: str, scope: Scope, diags: list[Diagnostic]) -> Rig:
     """Build the Rig; every problem found is appended to `diags`."""
     _bind_lets(rig.lets, scope, diags)
-    settings = p.read_props(rig.settings, RIG_SETTINGS, scope, f"rig `{rig.name.name}`", rig.name.span, diags)
+    settings = p.read_props(rig.settings, {**RIG_SETTINGS, **RIG_SETTINGS_PAIRS}, scope, f"rig `{rig.name.name}`",
+                            rig.name.span, diags)
     species = _unique(rig.species, lambda d: d.name, "species", diags)
     species_map = {name: _species(decl, scope, diags) for name, decl in species.items()}
     drives = _unique(rig.drives, lambda d: d.name, "drive", diags)
@@ -110,11 +165,29 @@ def resolve_rig(rig: ast.RigDef, path: str, scope: Scope, diags: list[Diagnostic
                {k: v for k, v in species_map.items() if v is not None},
                {k: v for k, v in drive_map.items() if v is not None},
                {k: v for k, v in image_map.items() if v is not None}, port_map, rig.span,
-               settings["environment"] if settings["environment"] is not None else 300.0)
+               settings["environment"] if settings["environment"] is not None else 300.0,
+               settings["quantization_axis"], settings["min_spacing"] or DEFAULT_MIN_SPACING_M,
+               _resonant_pairs(species, species_map, diags), settings["field_rms"] or 0.0)
+
+
+def _resonant_pairs(decls: dict, species_map: dict, diags: list[Diagnostic]) -> frozenset:
+    """Species pairs declared `resonant_with` each other (order-free)."""
+    out = set()
+    for name, decl in decls.items():
+        for prop in (q for q in decl.props if q.key.name == "resonant_with"):
+            other = prop.value.name if isinstance(prop.value, ast.NameRef) else None
+            if other not in species_map:
+                diags.append(error("expected the name of a species of this rig", prop.value.span,
+                                   did_you_mean(other or "", species_map)))
+                continue
+            out.add(frozenset((name, other)))
+    return frozenset(out)
 
 
 def _bind_lets(lets, scope: Scope, diags: list[Diagnostic]) -> None:
     for let in lets:
+        if let.name.name in scope.pinned:
+            continue  # a scan of the sequence overrides this rig constant
         try:
             scope.values[let.name.name] = evaluate(let.value, scope)
         except EvalError as exc:
@@ -144,7 +217,8 @@ def _species(decl: ast.SpeciesDecl, scope: Scope, diags: list[Diagnostic]) -> Sp
     values = p.read_props(decl.props, SPECIES_KEYS, scope, f"species `{decl.name.name}`", decl.name.span, diags)
     qubit = _qubit(values["qubit"], data, diags)
     level = _level(values["rydberg"], data, diags)
-    extra = {k: v for k, v in values.items() if k not in ("qubit", "rydberg", "temperature", "__spans__")}
+    extra = {k: v for k, v in values.items() if k not in ("qubit", "rydberg", "temperature", "__spans__",
+                                                         "resonant_with")}
     return Species(decl.name.name, data, qubit, level, values["temperature"] or 0.0, extra, decl.span)
 
 
@@ -231,8 +305,9 @@ def _imaging(decl: ast.ImageDecl, species: dict, scope: Scope, diags: list[Diagn
     if v["port"] is None or v["duration"] is None:
         return None
     extra = {"false_positive": v["false_positive"], "false_negative": v["false_negative"]}
+    extra.update({k: v[k] for k in ("light_wavelength", "light_intensity", "saturation") if v[k] is not None})
     return Imaging(decl.species.name, v["port"], v["duration"], v["fidelity"], v["loss"], v["latency"],
-                   extra, decl.span)
+                   extra, decl.span, v["decision_latency"] or 0.0)
 
 
 def _port(decl: ast.PortDecl, scope: Scope, diags: list[Diagnostic]) -> Port:
@@ -244,7 +319,26 @@ def _port(decl: ast.PortDecl, scope: Scope, diags: list[Diagnostic]) -> Port:
         diags.append(error("the trap switch must be a digital port", v["__spans__"]["role"], "add `kind digital`"))
     bounds = (value_range[0], value_range[1]) if value_range else None
     return Port(decl.name.name, decl.channel.text, v["kind"], v["latency"], v["width"], bounds,
-                value_range[2] if value_range else None, decl.span, v["role"])
+                value_range[2] if value_range else None, decl.span, _port_extra(decl, v, diags),
+                role=v["role"])
+
+
+def _port_extra(decl: ast.PortDecl, v: dict, diags: list[Diagnostic]) -> dict:
+    """Electrode calibration and deflector settings, each allowed only on its kind."""
+    spans, kind = v["__spans__"], v["kind"]
+    deflector_keys = ("axis", "scale", "center", "sample_rate", "steers", "max_velocity", "max_acceleration")
+    for key in deflector_keys:
+        if key in spans and kind != "deflector":
+            diags.append(error(f"`{key}` belongs to a deflector port", spans[key], "add `kind deflector`"))
+    if "field_per_volt" in spans and kind != "analog":
+        diags.append(error("`field_per_volt` belongs to an analog (electrode) port", spans["field_per_volt"]))
+    if kind == "deflector":
+        for key in (k for k in DEFLECTOR_REQUIRED if v[k] is None):
+            diags.append(error(f"deflector port `{decl.name.name}` needs `{key}`", decl.name.span))
+    extra = {k: v[k] for k in deflector_keys + ("field_per_volt",) if v[k] is not None}
+    if isinstance(extra.get("steers"), ast.NameRef):
+        extra["steers"] = extra["steers"].name
+    return extra
 
 
 # ---- leg wavelengths against the species' lines ------------------------------

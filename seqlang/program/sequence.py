@@ -13,8 +13,10 @@ from ..lang import units
 from ..lang.diagnostics import Diagnostic, Span, did_you_mean, error, warning
 from ..lang.units import format_quantity
 from . import props as p
+from .decisions import FeedForwardMixin
 from .evaluate import EvalError, Scope, SiteRef, evaluate, evaluate_any, expect_kind
-from .model import Drive, ImageOp, PortOp, PulseOp, RepeatOp, Rig, SerialOp, Shape, Site, TogetherOp, WaitOp
+from .model import (Drive, FieldOp, ImageOp, MoveOp, PortOp, PulseOp, RepeatOp, Rig, SerialOp, Shape, Site,
+                    TogetherOp, WaitOp)
 
 MAX_REPEAT = 1_000_000
 MAX_BLOCK_DEPTH = 64
@@ -47,9 +49,15 @@ PULSE_KEYS = {
     "shape": p.Key(_shape, None),
 }
 TRIGGER_KEYS = {"width": p.Key(p.positive(p.duration, "width"), None)}
+MOVE_PROFILES = ("minimum_jerk",)
+MOVE_KEYS = {
+    "duration": p.Key(p.positive(p.duration, "duration"), None, required=True, doc="how long the move takes"),
+    "profile": p.Key(p.choice(*MOVE_PROFILES), "minimum_jerk"),
+}
+E_FIELD = tuple(v - l for v, l in zip(units.VOLTAGE, units.LENGTH))
 
 
-class SequenceResolver:
+class SequenceResolver(FeedForwardMixin):
     """Turns statements into operations, collecting diagnostics."""
 
     def __init__(self, rig: Rig, sites: dict[str, Site], groups: dict[str, tuple[str, ...]],
@@ -59,11 +67,12 @@ class SequenceResolver:
         self.block_stack: list[str] = []
         self.records: dict[str, Span] = {}
         self.root: Scope | None = None
+        self.positions = {name: site.position_m for name, site in sites.items()}  # after the moves so far
 
     def resolve_body(self, stmts, scope: Scope, span: Span) -> SerialOp:
         """All statements of a body, one after another."""
         if self.root is None:
-            self.root = scope
+            self.root, self.top_stmts = scope, stmts
         scope = scope.child()
         ops = [op for op in (self._stmt(s, scope) for s in stmts) if op is not None]
         return SerialOp(tuple(ops), span)
@@ -80,6 +89,8 @@ class SequenceResolver:
     def _LetStmt(self, stmt: ast.LetStmt, scope: Scope):
         if stmt.name.name in units.UNITS:
             raise EvalError(error(f"`{stmt.name.name}` is a unit and cannot be a constant's name", stmt.name.span))
+        if self._deferred_let(stmt, scope):
+            return None
         scope.values[stmt.name.name] = evaluate(stmt.value, scope)
         return None
 
@@ -154,7 +165,7 @@ class SequenceResolver:
                 if prm.default is None:
                     raise EvalError(error(f"block `{block.name.name}` needs a value for `{prm.name.name}`",
                                           stmt.span))
-                inner.values[prm.name.name] = evaluate(prm.default, inner)
+                inner.values[prm.name.name] = self._arg_value(prm.default, inner)
         return inner
 
     def _arg_value(self, expr: ast.Expr, scope: Scope):
@@ -162,6 +173,9 @@ class SequenceResolver:
             names = self._site_names(expr.name)
             if names is not None:
                 return SiteRef(names, expr.span)
+            if self._named_ref(expr) is not None:
+                return self._named_ref(expr)
+            raise self._unknown_argument(expr, scope)
         return evaluate_any(expr, scope)
 
     def _site_names(self, name: str):
@@ -183,7 +197,11 @@ class SequenceResolver:
         record = stmt.record.name
         if record in self.records and not self.block_stack:
             raise EvalError(error(f"record `{record}` is written twice", stmt.record.span))
+        if getattr(self, "when_stack", None):
+            raise EvalError(error("imaging cannot depend on a record: it is part of the fixed timeline",
+                                  stmt.span, "image before or after the `when`"))
         self.records[record] = stmt.record.span
+        self._note_record(record, species)
         return ImageOp(species, record, imaging.duration_s, stmt.span)
 
     def _port(self, ident: ast.Ident, kind: str):
@@ -214,13 +232,56 @@ class SequenceResolver:
         v = p.read_props(stmt.props, TRIGGER_KEYS, scope, "a trigger", stmt.span, self.diags)
         return PortOp(port.name, "trigger", 1.0, v["width"] or port.width_s, stmt.span)
 
+    # ---- fields and moves ------------------------------------------------------
+    def _FieldStmt(self, stmt: ast.FieldStmt, scope: Scope) -> FieldOp:
+        port = self._port(stmt.port, "analog")
+        per_volt = port.extra.get("field_per_volt")
+        if per_volt is None:
+            raise EvalError(error(f"port `{port.name}` has no `field_per_volt` calibration", stmt.port.span,
+                                  "declare it in the rig, e.g. `field_per_volt 0.5 / cm`"))
+        value = evaluate(stmt.value, scope)
+        if value.dim == units.VOLTAGE:
+            volts, field = value.value, value.value * per_volt
+        else:
+            field = expect_kind(value, E_FIELD, stmt.value.span)
+            volts = field / per_volt
+        if port.value_range and not port.value_range[0] <= volts <= port.value_range[1]:
+            low, high = (format_quantity(x, units.VOLTAGE) for x in port.value_range)
+            raise EvalError(error(f"{format_quantity(volts, units.VOLTAGE)} is outside the range {low} .. {high} "
+                                  f"of port `{port.name}`", stmt.value.span))
+        body = self.resolve_body(stmt.body, scope, stmt.span)
+        return FieldOp(port.name, field, volts, body, stmt.span)
+
+    def _MoveStmt(self, stmt: ast.MoveStmt, scope: Scope) -> MoveOp | None:
+        names: list[str] = []
+        for ident in stmt.sites:
+            names += [n for n in self._target_names(ident, scope) if n not in names]
+        v = p.read_props(stmt.props, MOVE_KEYS, scope, "a move", stmt.span, self.diags)
+        target = self._coordinates(stmt.target, scope)
+        if not names or v["duration"] is None:
+            return None
+        if not stmt.relative and len(names) != 1:
+            raise EvalError(error("`move … to` takes one site; move a group with `by`", stmt.sites[0].span))
+        start = self.positions[names[0]]
+        shift = target if stmt.relative else tuple(t - s for t, s in zip(target, start))
+        for name in names:
+            self.positions[name] = tuple(a + d for a, d in zip(self.positions[name], shift))
+        return MoveOp(tuple(names), shift, v["duration"], v["profile"], stmt.span)
+
+    def _coordinates(self, expr: ast.Expr, scope: Scope) -> tuple[float, float, float]:
+        value = evaluate_any(expr, scope)
+        if not isinstance(value, tuple) or len(value) not in (2, 3):
+            raise EvalError(error("expected coordinates such as `(3, 0) um`", expr.span))
+        coords = [expect_kind(q, units.LENGTH, expr.span) for q in value]
+        return tuple(coords + [0.0] * (3 - len(coords)))
+
     # ---- pulses ------------------------------------------------------------
     def _PulseStmt(self, stmt: ast.PulseStmt, scope: Scope) -> PulseOp | None:
-        drive = self.rig.drives.get(stmt.drive.name)
-        if drive is None:
-            raise EvalError(error(f"unknown drive `{stmt.drive.name}`", stmt.drive.span,
-                                  did_you_mean(stmt.drive.name, self.rig.drives)))
+        drive = self._drive_of(stmt.drive, scope)
         targets = self._targets(stmt, drive, scope)
+        selection = self._statement_selection([prop.value for prop in stmt.props], scope, stmt.span)
+        if selection is not None:
+            return self._keyed_pulse(stmt, drive, targets, scope, selection) if targets is not None else None
         before = len(self.diags)
         v = p.read_props(stmt.props, PULSE_KEYS, scope, "a pulse", stmt.span, self.diags)
         if len(self.diags) > before or targets is None:

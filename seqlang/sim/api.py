@@ -13,23 +13,22 @@ import numpy as np
 
 from ..lang.diagnostics import Diagnostic, warning
 from . import engine as fast
-from . import noise, observables
-from .basis import (Basis, full_basis, norms, partial_trace_density, partial_trace_kets, probabilities, reduced_basis,
-                    site_populations)
+from . import limits, noise, observables, statistics
+from . import shared as shared_noise
+from .basis import Basis, full_basis, norms, partial_trace_density, partial_trace_kets, probabilities, site_populations
+from .clusters import CLUSTER_THRESHOLD, representatives, smallest_rydberg_rabi_hz
 from .clusters import clusters as find_clusters
-from .model import DIM, G0, G1, INTERMEDIATE, LOST, RYD, Model, build_model, leg_rabi, pair_interactions_hz
-from .solve import propagate
+from .model import DIM, LOST, RYD, Model, build_model, leg_rabi, pair_interactions_hz
+from .runner import SHOT_CHUNK, TRUNCATION_TOLERANCE, Plan, Progress, Runner, final_states  # noqa: F401
 
-ENGINES = ("auto", "fast", "lindblad", "qutip")
+ENGINES = ("auto", "fast", "trajectories", "lindblad", "qutip")
 OPTIONS = {"interactions_hz": None, "history": False, "ladder": False, "noise": "off", "shots": 200, "seed": 1,
-           "engine": "auto", "truncate": True, "repetitions": None, "progress": False}
+           "engine": "auto", "truncate": True, "repetitions": None, "progress": False,
+           "memory_limit": limits.MEMORY_LIMIT, "shared_noise": True, "feed_forward": True}
 # Outcomes rarer than this are not worth a conditioned report.
 MIN_CONDITION_PROBABILITY = 1e-9
-# Drop |rr⟩ of strongly blockaded pairs while the estimated error stays below this
-# (see engine.blockade_truncation).
-TRUNCATION_TOLERANCE = 1e-4
-SHOT_CHUNK = 100  # shots propagated together; an interrupt keeps every finished chunk
 FULL_DENSITY_SITES = 5  # expectations over more sites are read from the qubit block only
+MAX_CONDITIONED_CLUSTERS = 16  # larger arrays list conditions only within the expectation's clusters
 
 
 @dataclass(frozen=True)
@@ -43,6 +42,8 @@ class ClusterResult:
     history: tuple = ()
     engine: str = "qutip"
     readout: dict = field(default_factory=dict)  # site → (false positive, false negative)
+    representative: int = 0  # clusters simulated by one run share this number (and their shots)
+    sampled: bool = False  # shots are Monte Carlo samples (sampled noise or trajectories)
 
     @property
     def shots(self) -> int:
@@ -96,6 +97,21 @@ class ClusterResult:
             total += (fp if condition[2] == 1 else 1 - fp) * max(0.0, 1.0 - float(sum(kept)))
         return total
 
+    def shot_weights(self, condition) -> np.ndarray:
+        """(shots,) probability of a reported outcome in each shot (as `weight`, per shot)."""
+        kept = [norms(s, self.is_density) for s in self.states]
+        total = sum(f * n for f, n in zip(self.factors(condition), kept))
+        fp = self.readout.get(condition[1], (0.0, 0.0))[0]
+        return total + (fp if condition[2] == 1 else 1 - fp) * np.maximum(0.0, 1.0 - sum(kept))
+
+    def shot_populations(self) -> np.ndarray:
+        """(shots, sites, 4) level populations per shot (lost norm in |x⟩)."""
+        probs = statistics.shot_probabilities(self)
+        onehot = np.stack([(self.basis.levels == level) for level in range(DIM)], axis=-1).astype(float)
+        out = np.einsum("sk,kil->sil", probs, onehot)
+        out[:, :, LOST] += np.maximum(0.0, 1.0 - probs.sum(axis=1))[:, None]
+        return out
+
     def populations(self) -> np.ndarray:
         """populations[site, level] (4 levels), averaged over shots and branches
         (lost norm counts in |x⟩, see basis.site_populations)."""
@@ -132,6 +148,8 @@ class SimulationResult:
     noise: dict = field(default_factory=dict)
     engine: str = "qutip"
     reduction: dict = field(default_factory=dict)
+    pair_models: dict = field(default_factory=dict)  # (a, b) -> atoms.pairs.PairShift, when computed here
+    program: object = field(default=None, repr=False, compare=False)  # for array summaries
 
     def reduced_density(self, sites: tuple[str, ...], condition=None) -> np.ndarray:
         """Density matrix (4 levels per atom) of `sites`, optionally given one imaging outcome."""
@@ -140,6 +158,21 @@ class SimulationResult:
     def final_state(self) -> dict[tuple[str, ...], np.ndarray]:
         """Density matrix of each cluster, averaged over imaging outcomes and shots."""
         return {c.model.sites: c.density() for c in self.clusters}
+
+    def _repr_html_(self) -> str:
+        """Jupyter: a compact table of the expectations, and the correlator figure."""
+        from ..report.notebook import result_html
+        return result_html(self)
+
+    def to_xarray(self):
+        """Expectations, final populations and any population history as an xarray.Dataset."""
+        from ..report.notebook import result_dataset
+        return result_dataset(self)
+
+    def to_dataframe(self):
+        """One row per expectation as a pandas DataFrame (pandas is optional)."""
+        from ..report.notebook import result_dataframe
+        return result_dataframe(self)
 
 
 def reduced_density(clusters, sites, condition=None, shot: int | None = None, dim: int = DIM) -> np.ndarray:
@@ -165,141 +198,129 @@ def _reorder(rho: np.ndarray, have: list[str], want: list[str], dim: int = DIM) 
 
 
 def simulate(source, **options) -> SimulationResult:
-    """Simulate a sequence file path or a loaded :class:`seqlang.Sequence`."""
+    """Simulate a sequence file path or a loaded :class:`seqlang.Sequence`.
+
+    Options (defaults in ``OPTIONS``):
+
+    * ``noise``: "off", "all", a comma list or a tuple of sources (``noise.SOURCES``);
+    * ``shots`` (200), ``seed`` (1): Monte Carlo shots of sampled noise or trajectories;
+    * ``engine``: "auto", "fast", "trajectories", "lindblad" or "qutip";
+    * ``truncate`` (True): blockade truncation of strongly shifted |rr⟩;
+    * ``repetitions``: also draw a histogram of that many experiment repetitions;
+    * ``ladder`` (False): keep the intermediate state of Rydberg drives explicit;
+    * ``interactions_hz``: pair shifts to use instead of the atomic data;
+    * ``history`` (False): record level populations along the sequence;
+    * ``progress`` (False): a progress bar and the time estimate on a terminal;
+    * ``memory_limit`` (4 GiB): refuse runs estimated above this many bytes.
+    """
     unknown = set(options) - set(OPTIONS)
     if unknown:
-        raise TypeError(f"unknown simulate option(s): {', '.join(sorted(unknown))}")
+        raise TypeError(f"unknown simulate option(s): {', '.join(sorted(unknown))}; "
+                        f"known: {', '.join(OPTIONS)}")
     options = {**OPTIONS, **options}
     if options["engine"] not in ENGINES:
         raise ValueError(f"unknown engine {options['engine']!r}; use one of {', '.join(ENGINES)}")
     from ..api import Sequence, load
     sequence = source if isinstance(source, Sequence) else load(str(source))
     program, timeline = sequence.program, sequence.played
+    sources = noise.parse_sources(options["noise"]) if isinstance(options["noise"], str) else tuple(options["noise"])
+    limits.check_shots(options["shots"])
     interactions = options["interactions_hz"]
-    warnings = []
+    warnings, pair_models = [], {}
     if interactions is None:
-        interactions = pair_interactions_hz(program, tuple(program.sites))
+        # Near pairs only (one C6 per species pair), then the pair model of each near
+        # Rydberg pair at its geometry (perturbative or diagonalised; atoms.pairs).
+        from ..compile.geometry import pair_shifts
+        cutoff = CLUSTER_THRESHOLD * smallest_rydberg_rabi_hz(program, timeline)
+        interactions = pair_interactions_hz(program, tuple(program.sites), cutoff)
+        pair_models = pair_shifts(program, timeline, pairs=set(interactions))
+        interactions.update({pair: model.shift_hz for pair, model in pair_models.items()})
         warnings = _forster_warnings(program)
     if options["ladder"] and not any(leg_rabi(d, 1.0) for d in program.rig.drives.values()):
         warnings.append(warning("ladder mode: no Rydberg drive declares `intermediate`, `lower_rabi` and "
                                 "`upper_rabi`, so the explicit ladder is the effective model", program.rig.span))
-    sources = noise.parse_sources(options["noise"]) if isinstance(options["noise"], str) else tuple(options["noise"])
-    shots = options["shots"] if noise.is_sampled(sources) else 1
-    rng = np.random.default_rng(options["seed"])
-    runner = _ClusterRunner(program, options, sources, shots, rng)
-    results = [runner.run(build_model(program, timeline, group, interactions, ladder=options["ladder"]))
-               for group in find_clusters(program, timeline, interactions)]
-    done = min(r.shots for r in results) if shots > 1 else 1
-    repetitions = options["repetitions"] or done
-    expectations = tuple(_with_errors(_expectation(program, results, e), results, repetitions, done)
-                         for e in program.expects)
+    if timeline.conditioned():  # measurement-conditioned operations: the feed-forward path
+        return _feed_forward(program, timeline, options, sources, interactions, warnings)
+    models = [build_model(program, timeline, group, interactions, ladder=options["ladder"])
+              for group in find_clusters(program, timeline, interactions)]
+    reps = representatives(program, models)
+    runner = Runner(program, options, sources, np.random.default_rng(options["seed"]))
+    if options["shared_noise"] and noise.is_sampled(sources):
+        runner.shared = shared_noise.draw_shared(list(program.rig.drives), options["shots"], options["seed"])
+    plans = {r: runner.plan(models[r], r) for r in sorted(set(reps))}
+    seconds, total_bytes = runner.check(list(plans.values()), reps)
+    stochastic = [p for p in plans.values() if p.stochastic]
+    progress = None
+    if options["progress"]:
+        _announce(runner.notes, seconds, total_bytes, plans)
+        if stochastic and options["shots"] > SHOT_CHUNK:
+            progress = Progress(options["shots"])
+    try:
+        runner.run(list(plans.values()), progress)
+    finally:
+        if progress:
+            progress.close()
+    results = tuple(_cluster_result(plans[r], models[k], r) for k, r in enumerate(reps))
+    done = min((p.done for p in stochastic), default=0)
+    expectations = tuple(_expectation(program, results, e) for e in program.expects)
+    info = {"sources": list(sources), "seed": options["seed"]}
+    if stochastic:
+        info["shots"] = done
+    else:
+        info["exact"] = True  # no sampled noise and no trajectories: nothing here carries an error bar
     if options["repetitions"]:
-        expectations = tuple({**e, "sampled_counts": sample_counts(e["populations"], repetitions,
+        info["repetitions"] = options["repetitions"]
+        expectations = tuple({**e, "sampled_counts": sample_counts(e["populations"], options["repetitions"],
+                                                                   (options["seed"], k)),
+                              "sampled_error": {key: observables.clean(noise.binomial_error(v, options["repetitions"]))
+                                                for key, v in e["populations"].items()}}
+                             for k, e in enumerate(expectations))
+    if runner.interrupted:
+        info["interrupted"] = f"stopped after {done} of {options['shots']} shots"
+    if runner.notes:
+        info["notes"] = list(runner.notes)
+    if noise.is_sampled(sources):
+        info["shared_noise"] = bool(options["shared_noise"])
+    engines = sorted({r.engine for r in results})
+    return SimulationResult(program.name, results, expectations, _records(results), interactions,
+                            tuple(warnings), info, "+".join(engines), runner.reduction, pair_models, program)
+
+
+def _feed_forward(program, timeline, options, sources, interactions, warnings) -> SimulationResult:
+    """Programs with measurement-conditioned operations (seqlang/sim/feedforward.py): every
+    cluster shot by shot with sampled imaging outcomes, with and without feed-forward."""
+    from . import feedforward
+    shots = options["shots"]
+    runner = _ClusterRunner(program, options, sources, shots, np.random.default_rng(options["seed"]))
+    if options["shared_noise"]:
+        runner.shared = shared_noise.draw_shared(list(program.rig.drives), shots, options["seed"])
+    groups = find_clusters(program, timeline, interactions)
+    ff = feedforward.run(runner, timeline, groups, interactions)
+    results = tuple(replace(r, sampled=True) for r in (ff.with_ff if options["feed_forward"] else ff.without))
+    expectations = tuple(_expectation(program, results, e) for e in program.expects)
+    expectations = tuple({**e, "conditioned": ff.conditioned(program, x) if options["feed_forward"]
+                          else e["conditioned"],
+                          "feed_forward": ff.summary(program, x, _expectation,
+                                                     e if options["feed_forward"] else None)}
+                         for e, x in zip(expectations, program.expects))
+    if options["repetitions"]:
+        expectations = tuple({**e, "sampled_counts": sample_counts(e["populations"], options["repetitions"],
                                                                    (options["seed"], k))}
                              for k, e in enumerate(expectations))
-    info = {"sources": list(sources), "shots": done, "seed": options["seed"], "repetitions": repetitions}
-    if runner.interrupted:
-        info["interrupted"] = f"stopped after {done} of {shots} shots"
+    done = min(r.shots for r in results)
+    info = {"sources": list(sources), "shots": done, "seed": options["seed"],
+            "shared_noise": bool(options["shared_noise"])}
+    if options["repetitions"]:
+        info["repetitions"] = options["repetitions"]
     engines = sorted({r.engine for r in results})
-    return SimulationResult(program.name, tuple(results), expectations, _records(results), interactions,
-                            tuple(warnings), info, "+".join(engines), runner.reduction)
-
-
-class _ClusterRunner:
-    """Draws the shots of a cluster and propagates them with the chosen engine."""
-
-    def __init__(self, program, options, sources, shots, rng):
-        self.program, self.options, self.sources, self.shots, self.rng = program, options, sources, shots, rng
-        self.interrupted = False
-        self.reduction: dict = {"truncated_pairs": [], "neglected_bound": 0.0, "states": 0, "full_states": 0}
-
-    def run(self, nominal: Model) -> ClusterResult:
-        program, sources = self.program, self.sources
-        model = noise.prepare(program, nominal, sources)
-        jumps = noise.jumps(program, model, sources)
-        engine = _choose(self.options["engine"], jumps)
-        readout = {name: noise.readout_errors(program, sp, sources) for name, sp in zip(model.sites, model.species)}
-        shots = self._draw(model)
-        if engine == "qutip":
-            result = self._qutip(model, shots, jumps)
-        else:
-            result = self._fast(model, shots, jumps, engine == "lindblad")
-        return ClusterResult(nominal, result[0], result[1], result[2], result[3], engine, readout)
-
-    def _draw(self, model: Model) -> noise.Shots:
-        if not noise.is_sampled(self.sources):
-            return noise.nominal_shots(model)
-        return noise.sample(self.program, model, self.sources, noise.draw(model, self.shots, self.rng))
-
-    def _basis(self, model: Model, jumps, density: bool) -> Basis:
-        rydberg = {c.site for seg in model.segments for c in seg.couplings if RYD in (c.lower, c.upper)}
-        ladder = {c.site for seg in model.segments for c in seg.couplings if INTERMEDIATE in (c.lower, c.upper)}
-        lossy = noise.lossy_sites(self.program, model, self.sources)
-        if density:  # density matrices carry |x⟩ explicitly wherever decay or scattering can lead
-            lossy |= {j.site for j in jumps if j.target == LOST}
-            lossy |= {x.site for seg in model.segments for x in seg.shifts if x.loss_rate > 0}
-        allowed = [(G0, G1) + ((RYD,) if i in rydberg else ()) + ((LOST,) if i in lossy else ())
-                   + ((INTERMEDIATE,) if i in ladder else ()) for i in range(model.size)]
-        candidates = replace(model, interactions={p: v for p, v in model.interactions.items()
-                                                  if p[0] in rydberg and p[1] in rydberg})
-        pairs, bound = (fast.blockade_truncation(candidates, TRUNCATION_TOLERANCE) if self.options["truncate"]
-                        else ((), 0.0))
-        basis = reduced_basis(allowed, model.dim, pairs, bound)
-        r = self.reduction
-        r["truncated_pairs"] += [[model.sites[i], model.sites[j]] for i, j in pairs]
-        r["neglected_bound"] = observables.clean(r["neglected_bound"] + bound)
-        r["states"] += basis.size
-        r["full_states"] += model.dim ** model.size
-        return basis
-
-    def _fast(self, model: Model, shots: noise.Shots, jumps, density: bool):
-        basis = self._basis(model, jumps, density)
-        loss = noise.image_loss(self.program, self.sources)
-        merged: dict[tuple, list[np.ndarray]] = {}
-        history = ()
-        progress = _Progress(shots.count) if self.options["progress"] and shots.count > SHOT_CHUNK else None
-        done = 0
-        try:
-            for lo in range(0, shots.count, SHOT_CHUNK):
-                chunk = shots.rows(lo, lo + SHOT_CHUNK)
-                found = fast.run(basis, chunk, jumps, density, loss, self.options["history"])
-                _merge(merged, found.outcomes, found.states, done)
-                history = history or tuple(found.history)
-                done += chunk.count
-                if progress:
-                    progress.update(done)
-        except KeyboardInterrupt:
-            if done == 0:
-                raise
-            self.interrupted = True
-        finally:
-            if progress:
-                progress.close()
-        outcomes = tuple(sorted(merged))
-        return basis, outcomes, tuple(_pad(merged[o], done) for o in outcomes), history
-
-    def _qutip(self, model: Model, shots: noise.Shots, jumps):
-        c_ops = noise.collapse_operators(self.program, model, self.sources)
-        basis = full_basis(model.size, model.dim)
-        self.reduction["states"] += basis.size
-        self.reduction["full_states"] += basis.size
-        loss = noise.image_loss(self.program, self.sources)
-        merged: dict[tuple, list[np.ndarray]] = {}
-        history = ()
-        for k in range(shots.count):
-            initial = basis.state(shots.initial[k])
-            draws = tuple(d[k] for d in shots.image_draws)
-            found, hist = propagate(shots.shot_model(k), c_ops, self.options["history"], initial, loss, draws)
-            history = history or tuple(hist)
-            _merge(merged, [b.outcomes for b in found], [b.state[None] for b in found], k)
-        outcomes = tuple(sorted(merged))
-        return basis, outcomes, tuple(_pad(merged[o], shots.count) for o in outcomes), history
+    return SimulationResult(program.name, results, expectations, _records(results), interactions,
+                            tuple(warnings), info, "+".join(engines), runner.reduction, program=program)
 
 
 def _choose(requested: str, jumps) -> str:
-    """The engine for a model: Lindblad when dissipation returns into the simulated states."""
+    """The engine of the feed-forward path: Lindblad when dissipation returns into the kept states."""
     returning = fast.needs_lindblad(jumps)
-    if requested == "auto":
+    if requested in ("auto", "trajectories"):
         return "lindblad" if returning else "fast"
     if requested == "fast" and returning:
         raise ValueError("the fast engine needs all dissipation to end in the loss level; this model has decay "
@@ -307,70 +328,136 @@ def _choose(requested: str, jumps) -> str:
     return requested
 
 
-def _merge(merged: dict, outcomes, states, offset: int) -> None:
-    """Collect per-branch state arrays over chunks of shots: (first shot index, array)."""
-    for labels, state in zip(outcomes, states):
-        merged.setdefault(tuple(labels), []).append((offset, state))
+class _ClusterRunner:
+    """What the feed-forward path asks of a runner: draws with shared noise, and the basis."""
+
+    def __init__(self, program, options, sources, shots, rng):
+        self.program, self.options, self.sources, self.shots, self.rng = program, options, sources, shots, rng
+        self.interrupted = False
+        self.shared = None  # classical noise shared by the array (sim/shared.py)
+        self._planner = Runner(program, options, sources, rng)
+        self.reduction = self._planner.reduction
+
+    def _draw(self, model: Model) -> noise.Shots:
+        if not noise.is_sampled(self.sources):
+            return noise.nominal_shots(model)
+        draws = shared_noise.apply(self.shared, model, noise.draw(model, self.shots, self.rng), self.rng)
+        return noise.sample(self.program, model, self.sources, draws)
+
+    def _basis(self, model: Model, jumps, density: bool) -> Basis:
+        basis = self._planner._basis(model, jumps, density)
+        self._planner._count(basis, model)
+        return basis
 
 
-def _pad(parts: list, total: int) -> np.ndarray:
-    """One (shots, …) array per branch, with zeros for shots where the branch was dropped."""
-    first = parts[0][1]
-    out = np.zeros((total,) + first.shape[1:], dtype=complex)
-    for offset, state in parts:
-        out[offset:offset + state.shape[0]] = state[: total - offset]
-    return out
+def _announce(notes: list[str], seconds: float, total_bytes: int, plans) -> None:
+    """On a terminal: why an engine was chosen, and the estimate when the run will take a while."""
+    if not sys.stderr.isatty():
+        return
+    for note in notes:
+        sys.stderr.write(f"seqlang: {note}\n")
+    if seconds > limits.ESTIMATE_SECONDS:
+        engines = ", ".join(sorted({p.engine for p in plans.values()}))
+        states = max(p.basis.size for p in plans.values())
+        sys.stderr.write(f"seqlang: estimated {limits.describe(seconds, total_bytes)} (engine {engines}, "
+                         f"largest cluster {states:,} states)\n")
 
 
-class _Progress:
-    """A one-line progress bar on stderr, for long Monte Carlo runs on a terminal."""
-
-    def __init__(self, total: int):
-        self.total, self.live = total, sys.stderr.isatty()
-
-    def update(self, done: int) -> None:
-        if self.live:
-            filled = int(30 * done / self.total)
-            sys.stderr.write(f"\r  shots [{'#' * filled}{'.' * (30 - filled)}] {done}/{self.total}")
-            sys.stderr.flush()
-
-    def close(self) -> None:
-        if self.live:
-            sys.stderr.write("\n")
-
-
-def _with_errors(expectation: dict, clusters, repetitions: int, shots: int) -> dict:
-    """Binomial error bars for `repetitions` runs of the experiment, the Monte Carlo standard
-    error of the fidelity, and a sampled histogram of the expected sites' outcomes."""
-    out = dict(expectation)
-    out["populations_error"] = {k: observables.clean(noise.binomial_error(v, repetitions))
-                                for k, v in expectation["populations"].items()}
-    inside = [c for c in clusters if set(expectation["sites"]) <= set(c.model.sites)]
-    if inside and shots > 1:
-        values = [_shot_fidelity(inside[0], k, expectation) for k in range(inside[0].shots)]
-        out["fidelity_error"] = observables.clean(np.std(values, ddof=1) / math.sqrt(len(values)))
-    return out
-
-
-def _shot_fidelity(cluster: ClusterResult, shot: int, expectation) -> float:
-    block = reduced_density([cluster], tuple(expectation["sites"]), shot=shot, dim=2)
-    state = expectation["state"]
-    target = observables.target_state(state.strip("|>"), state.startswith("|"))
-    return float(np.real(np.vdot(target, block @ target)))
+def _cluster_result(plan: Plan, model: Model, rep: int) -> ClusterResult:
+    outcomes, states = final_states(plan)
+    return ClusterResult(model, plan.basis, outcomes, states, plan.history, plan.engine, dict(
+        zip(model.sites, (plan.readout[s] for s in plan.nominal.sites))), rep, plan.stochastic)
 
 
 def _expectation(program, clusters, expect) -> dict:
+    """The numbers of one `expect`, with Monte Carlo errors where a cluster was sampled."""
+    count = len(expect.sites)
     out = {"sites": list(expect.sites), "state": expect.state if not expect.is_ket else f"|{expect.state}>"}
-    if len(expect.sites) <= FULL_DENSITY_SITES:
+    phase = getattr(expect, "phase_rad", 0.0)
+    if phase:
+        out["phase_rad"] = observables.clean(phase)
+    if count <= FULL_DENSITY_SITES:
         rho = reduced_density(clusters, expect.sites)
-        out.update(observables.summarize(rho, len(expect.sites), expect.state, expect.is_ket))
+        out.update(observables.summarize(rho, count, expect.state, expect.is_ket, phase))
+        block = observables.qubit_block(rho, count)
     else:  # many atoms: the qubit block only, and the level probabilities from the states
         block = reduced_density(clusters, expect.sites, dim=2)
-        out.update(observables.summarize_block(block, len(expect.sites), expect.state, expect.is_ket,
+        out.update(observables.summarize_block(block, count, expect.state, expect.is_ket,
                                                _any_level(clusters, expect.sites, RYD),
-                                               _any_level(clusters, expect.sites, LOST)))
+                                               _any_level(clusters, expect.sites, LOST), phase))
+    requested = tuple(getattr(expect, "correlators", ()) or ())
+    if requested:
+        out["correlators"] = {**out.get("correlators", {}), **observables.pauli_expectations(block, requested)}
+    ghz = expect.state == "ghz"
+    if ghz:
+        out["ghz"] = observables.ghz_numbers(block, count)
+    out.update(_errors(clusters, expect, out, block, requested, ghz))
     out["conditioned"] = _conditioned(program, clusters, expect)
     return out
+
+
+def _parts(clusters, sites) -> tuple[list, list[str]]:
+    """(cluster, kept indices, representative, sampled, mean qubit block) of each cluster the
+    sites touch, and the site order of their product."""
+    parts, order = [], []
+    for cluster in clusters:
+        keep = [i for i, s in enumerate(cluster.model.sites) if s in sites]
+        if keep:
+            parts.append((cluster, keep, cluster.representative, cluster.sampled and cluster.shots > 1,
+                          cluster.reduced(keep, dim=2)))
+            order += [cluster.model.sites[i] for i in keep]
+    return parts, order
+
+
+def _errors(clusters, expect, numbers: dict, block: np.ndarray, requested, ghz: bool) -> dict:
+    """`*_error` entries for every number of the expectation that was sampled."""
+    parts, order = _parts(clusters, expect.sites)
+    count = len(expect.sites)
+    if not any(p[3] for p in parts) or count > statistics.MAX_ERROR_SITES:
+        return {}
+    want = list(expect.sites)
+    labels = list(numbers["populations"])
+    pairs = list(numbers.get("correlators", {})) if count == 2 or requested else []
+    target = observables.target_vector(expect.state, expect.is_ket, count, getattr(expect, "phase_rad", 0.0))
+    coherence = block[0, -1]
+    unit = np.conj(coherence) / abs(coherence) if abs(coherence) > 0 else 1.0
+    paulis = [observables.pauli_string(p) for p in pairs]
+
+    def functional(rho: np.ndarray) -> np.ndarray:
+        values = [np.real(np.einsum("i,sij,j->s", target.conj(), rho, target))[:, None],
+                  np.real(np.diagonal(rho, axis1=1, axis2=2))]
+        if paulis:
+            values.append(np.stack([np.real(np.einsum("sij,ji->s", rho, p)) for p in paulis], axis=1))
+        if ghz:  # C = 2|ρ₀…₀,₁…₁|, linearised about the mean coherence's phase
+            values.append(2 * np.real(unit * rho[:, 0, -1])[:, None])
+        return np.concatenate(values, axis=1)
+
+    errors = statistics.product_errors(parts, functional, lambda rho: _reorder_batch(rho, order, want))
+    out = {"fidelity_error": observables.clean(errors[0]),
+           "populations_error": {k: observables.clean(v) for k, v in zip(labels, errors[1:1 + len(labels)])}}
+    at = 1 + len(labels)
+    if paulis:
+        out["correlators_error"] = {k: observables.clean(v) for k, v in zip(pairs, errors[at:at + len(pairs)])}
+        at += len(pairs)
+    if ghz:
+        c_error = errors[at]
+        p_error = math.hypot(out["populations_error"][labels[0]], out["populations_error"][labels[-1]])
+        out["ghz_error"] = {"coherence": observables.clean(c_error),
+                            "parity_fidelity": observables.clean(0.5 * math.hypot(p_error, c_error))}
+    for key, level in (("residual_rydberg", RYD), ("loss", LOST)):
+        error = statistics.any_level_error(parts, level)
+        if error is not None:
+            out[key + "_error"] = observables.clean(error)
+    return out
+
+
+def _reorder_batch(rho: np.ndarray, have: list[str], want: list[str], dim: int = 2) -> np.ndarray:
+    n = len(have)
+    if have == want:
+        return rho
+    perm = [have.index(s) for s in want]
+    tensor = rho.reshape([rho.shape[0]] + [dim] * (2 * n))
+    return tensor.transpose([0] + [1 + p for p in perm] + [1 + p + n for p in perm]).reshape(rho.shape)
 
 
 def _any_level(clusters, sites, level: int) -> float:
@@ -384,9 +471,18 @@ def _any_level(clusters, sites, level: int) -> float:
 
 
 def _conditioned(program, clusters, expect) -> list[dict]:
-    """The expected sites' numbers given each reported imaging outcome of another site."""
+    """The expected sites' numbers given each reported imaging outcome of another site.
+
+    An outcome in an independent cluster leaves the numbers as they are (only its
+    probability is computed); those are listed for arrays of up to MAX_CONDITIONED_CLUSTERS
+    clusters, outcomes within the expectation's own clusters always.
+    """
     out = []
+    unconditioned = None
     for cluster in clusters:
+        touching = bool(set(cluster.model.sites) & set(expect.sites))
+        if not touching and len(clusters) > MAX_CONDITIONED_CLUSTERS:
+            continue
         labels = sorted({lab[:2] for o in cluster.outcomes for lab in o if lab[1] not in expect.sites})
         for record, site in labels if len(expect.sites) <= FULL_DENSITY_SITES else ():
             for bit in (0, 1):
@@ -394,9 +490,15 @@ def _conditioned(program, clusters, expect) -> list[dict]:
                 weight = cluster.weight(condition)
                 if weight < MIN_CONDITION_PROBABILITY:
                     continue
-                rho = reduced_density(clusters, expect.sites, condition)
-                rho = rho / np.trace(rho).real
-                numbers = observables.summarize(rho, len(expect.sites), expect.state, expect.is_ket)
+                if touching or unconditioned is None:
+                    rho = reduced_density(clusters, expect.sites, condition if touching else None)
+                    rho = rho / np.trace(rho).real
+                    numbers = observables.summarize(rho, len(expect.sites), expect.state, expect.is_ket,
+                                                    getattr(expect, "phase_rad", 0.0))
+                    if not touching:
+                        unconditioned = numbers
+                else:
+                    numbers = unconditioned
                 out.append({"record": record, "site": site, "outcome": bit,
                             "probability": observables.clean(weight), **numbers})
     return out
@@ -410,6 +512,18 @@ def _records(clusters) -> dict:
         for record, site in names:
             records.setdefault(record, {})[site] = cluster.weight((record, site, 1))
     return {r: {s: observables.clean(p) for s, p in sorted(v.items())} for r, v in sorted(records.items())}
+
+
+def record_errors(clusters) -> dict:
+    """Monte Carlo standard errors of the records' P(bright), where sampled."""
+    out: dict = {}
+    for cluster in clusters:
+        if not (cluster.sampled and cluster.shots > 1):
+            continue
+        for record, site in sorted({lab[:2] for o in cluster.outcomes for lab in o}):
+            per_shot = cluster.shot_weights((record, site, 1))
+            out.setdefault(record, {})[site] = observables.clean(np.std(per_shot, ddof=1) / math.sqrt(len(per_shot)))
+    return out
 
 
 def sample_counts(probabilities: dict[str, float], repetitions: int, seed) -> dict[str, int]:

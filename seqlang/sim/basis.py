@@ -78,12 +78,29 @@ def full_basis(size: int, base: int = DIM) -> Basis:
 
 
 def reduced_basis(allowed: list[tuple[int, ...]], base: int = DIM,
-                  truncated_pairs: tuple[tuple[int, int], ...] = (), neglected_bound: float = 0.0) -> Basis:
-    """Products of each site's `allowed` levels, without |rr⟩ on the truncated pairs."""
-    levels = np.array(list(itertools.product(*[sorted(a) for a in allowed])), dtype=np.int8)
-    levels = levels.reshape(-1, len(allowed))
+                  truncated_pairs: tuple[tuple[int, int], ...] = (), neglected_bound: float = 0.0,
+                  limit: int | None = None, on_limit=None) -> Basis:
+    """Products of each site's `allowed` levels, without |rr⟩ on the truncated pairs.
+
+    Built site by site, dropping forbidden |rr⟩ as soon as both sites are placed, so the
+    full product is never materialised. Every site allows |0⟩ and |1⟩, so the count can
+    only grow as sites are added: past `limit`, ``on_limit(count, placed)`` is raised
+    before anything larger is allocated.
+    """
+    partners: dict[int, list[int]] = {}
     for i, j in truncated_pairs:
-        levels = levels[~((levels[:, i] == RYD) & (levels[:, j] == RYD))]
+        partners.setdefault(max(i, j), []).append(min(i, j))
+    levels = np.zeros((1, 0), dtype=np.int8)
+    for site, options in enumerate(allowed):
+        options = np.array(sorted(options), dtype=np.int8)
+        grown = np.empty((levels.shape[0] * len(options), site + 1), dtype=np.int8)
+        grown[:, :site] = np.repeat(levels, len(options), axis=0)
+        grown[:, site] = np.tile(options, levels.shape[0])
+        for other in partners.get(site, ()):
+            grown = grown[~((grown[:, site] == RYD) & (grown[:, other] == RYD))]
+        levels = grown
+        if limit is not None and levels.shape[0] > limit:
+            raise on_limit(levels.shape[0], site + 1)
     return Basis(levels, base, tuple(truncated_pairs), neglected_bound)
 
 
@@ -133,11 +150,14 @@ def partial_trace_kets(basis: Basis, kets: np.ndarray, keep: list[int], dim: int
     """Σ over kets of Tr_rest |ψ⟩⟨ψ| on the `keep` sites (levels ≥ dim must be empty)."""
     inner, outer, count = _split(basis, keep, dim)
     inside = _inside(basis, keep, dim)
+    kets = kets.reshape(-1, basis.size)
     rho = np.zeros((dim ** len(keep),) * 2, dtype=complex)
-    for psi in kets.reshape(-1, basis.size):
-        block = np.zeros((dim ** len(keep), count), dtype=complex)
-        block[inner[inside], outer[inside]] = psi[inside]
-        rho += block @ block.conj().T
+    for lo in range(0, kets.shape[0], 256):  # Σ_k B_k B_k† as one product per batch of kets
+        part = kets[lo:lo + 256]
+        block = np.zeros((dim ** len(keep), part.shape[0], count), dtype=complex)
+        block[inner[inside], :, outer[inside]] = part[:, inside].T
+        flat = block.reshape(dim ** len(keep), -1)
+        rho += flat @ flat.conj().T
     return rho
 
 

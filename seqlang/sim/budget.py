@@ -20,11 +20,12 @@ def budget(sequence, shots: int = 200, seed: int = 1, **options) -> dict:
         for name, result in results.items():
             x = result.expectations[k]
             entry["infidelity"][name] = round(1 - x["fidelity"], 12)
-            entry["error"][name] = x.get("fidelity_error", 0.0)
+            entry["error"][name] = x.get("fidelity_error")  # None: an exact number, no error bar
         expectations.append(entry)
     engines = sorted({r.engine for r in results.values()})
+    from .declared import not_declared
     return {"program": sequence.program.name, "shots": shots, "seed": seed, "engines": engines,
-            "expectations": expectations}
+            "expectations": expectations, "not_declared": not_declared(sequence)}
 
 
 def budget_table(numbers: dict) -> str:
@@ -34,26 +35,17 @@ def budget_table(numbers: dict) -> str:
         lines.append(f"\n{', '.join(e['sites'])} as {e['state']}:")
         ordered = sorted(e["infidelity"].items(), key=lambda kv: -kv[1])
         for name, value in ordered:
-            error = f" ± {e['error'][name]:.2g}" if e["error"][name] else ""
+            if name in numbers.get("not_declared", {}):
+                lines.append(f"  {name + ' alone':<28} not declared ({numbers['not_declared'][name]})")
+                continue
+            error = f" ± {e['error'][name]:.2g}" if e["error"][name] is not None else ""
             label = {"none": "no noise (gate error only)", "all": "all sources"}.get(name, name + " alone")
             lines.append(f"  {label:<28} infidelity {value:.3e}{error}")
     return "\n".join(lines)
 
 
-def plot_budget(numbers: dict, path: str) -> None:
-    """Horizontal bars per source, sorted by size, one panel per expectation."""
-    import matplotlib
-    matplotlib.use("Agg")
-    import matplotlib.pyplot as plt
-
-    from ..plot.timeline import _save
-    count = max(1, len(numbers["expectations"]))
-    fig, axes = plt.subplots(count, 1, figsize=(8, 2.8 * count), squeeze=False)
-    for ax, e in zip(axes[:, 0], numbers["expectations"]):
-        ordered = sorted(e["infidelity"].items(), key=lambda kv: kv[1])
-        ax.barh([n for n, _ in ordered], [v for _, v in ordered],
-                xerr=[e["error"][n] for n, _ in ordered], color="tab:blue")
-        ax.set_xlabel("infidelity")
-        ax.set_title(f"{', '.join(e['sites'])} as {e['state']}")
-    fig.tight_layout()
-    _save(fig, path)
+def plot_budget(numbers: dict, path: str, what_if: bool = False) -> None:
+    """The budget chart (see :func:`seqlang.plot.budget.budget_figure`) as a PNG."""
+    from ..plot.budget import budget_figure
+    from ..plot.save import save_png
+    save_png(budget_figure(numbers, what_if=what_if), path)

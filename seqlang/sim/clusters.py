@@ -42,3 +42,26 @@ def clusters(program: Program, timeline: Timeline, interactions_hz: dict[tuple[s
     for site in program.sites:
         groups.setdefault(root(site), []).append(site)
     return [tuple(g) for g in groups.values()]
+
+
+def cluster_key(program: Program, model) -> tuple:
+    """What makes two clusters' simulations identical: species, positions relative to the
+    first atom, every segment's couplings and shifts (by local site index), pair shifts and
+    which local sites each imaging reads. Noise depends only on these (species, drives and
+    geometry), and is drawn independently per cluster, so identical keys may share one run."""
+    origin = program.sites[model.sites[0]].position_m
+    geometry = tuple(tuple(round(x - o, 15) for x, o in zip(program.sites[s].position_m, origin))
+                     for s in model.sites)
+    segments = tuple((seg.start_s, seg.duration_s, seg.couplings, seg.shifts,
+                      None if seg.image is None else (seg.image.record, tuple(s in seg.image.targets
+                                                                                for s in model.sites)))
+                     for seg in model.segments)
+    # Pair shifts agree to rounding only (distances from different absolute positions).
+    interactions = tuple((pair, float(f"{v:.10g}")) for pair, v in sorted(model.interactions.items()))
+    return (model.species, geometry, segments, interactions, model.dim)
+
+
+def representatives(program: Program, models: list) -> list[int]:
+    """For each cluster, the index of the first cluster with an identical simulation."""
+    first: dict[tuple, int] = {}
+    return [first.setdefault(cluster_key(program, m), k) for k, m in enumerate(models)]

@@ -2,6 +2,7 @@
 from __future__ import annotations
 
 import json
+import math
 import sys
 
 from ..lang.diagnostics import render, sort_diagnostics
@@ -10,9 +11,9 @@ from ..lang.diagnostics import render, sort_diagnostics
 # command (every `seqlang` start, `--help` included) does not import numpy and scipy;
 # tests/test_front_end.py checks that they match seqlang.sim.api.ENGINES and
 # seqlang.sim.noise.SOURCES.
-ENGINES = ("auto", "fast", "lindblad", "qutip")
+ENGINES = ("auto", "fast", "trajectories", "lindblad", "qutip")
 SOURCES = ("decay", "dephasing", "scattering", "laser_noise", "intensity", "doppler", "motion",
-           "detuning_error", "t2_star", "field_noise", "preparation", "imaging")
+           "detuning_error", "t2_star", "field_noise", "preparation", "imaging", "crosstalk")
 
 
 def register(sub) -> None:
@@ -22,6 +23,8 @@ def register(sub) -> None:
     p.add_argument("--ladder", action="store_true",
                    help="keep the intermediate state of Rydberg drives explicit (needs the legs' Rabi frequencies)")
     _noise_options(p)
+    p.add_argument("--unshared-noise", dest="shared_noise", action="store_false",
+                   help="draw the field and beam noise per cluster instead of once per shot for the array")
     p.add_argument("--sample", type=int, metavar="N",
                    help="error bars for N repetitions of the experiment, and a sampled histogram of N outcomes")
     p.set_defaults(run=cmd_simulate)
@@ -30,6 +33,8 @@ def register(sub) -> None:
     b.add_argument("file", help="a sequence file (*.seq)")
     b.add_argument("--json", action="store_true", help="print one JSON object instead of the table")
     b.add_argument("-o", "--output", metavar="PNG", help="also draw the budget as a bar chart")
+    b.add_argument("--what-if", action="store_true",
+                   help="add a panel: the all-sources infidelity with each source halved (first-order estimate)")
     _run_options(b)
     b.set_defaults(run=cmd_budget)
 
@@ -41,13 +46,27 @@ def _noise_options(p) -> None:
 
 
 def _run_options(p) -> None:
-    p.add_argument("--shots", type=int, default=200, help="Monte Carlo shots for sampled noise (default 200)")
+    p.add_argument("--shots", type=_count, default=200,
+                   help="Monte Carlo shots for sampled noise or trajectories (default 200; 1e4 is accepted)")
     p.add_argument("--seed", type=int, default=1, help="random seed (default 1); recorded in the output")
     p.add_argument("--engine", choices=ENGINES, default="auto",
-                   help="auto (default: fast unless dissipation returns into the qubit space), fast, lindblad, "
-                        "or qutip (the reference path)")
+                   help="auto (default: fast unless dissipation returns into the qubit space; then lindblad for "
+                        "small clusters, trajectories for large ones with pure dephasing), fast, trajectories, "
+                        "lindblad, or qutip (the reference path)")
     p.add_argument("--no-truncation", dest="truncate", action="store_false",
                    help="keep doubly excited states of strongly blockaded pairs")
+
+
+def _count(text: str) -> int:
+    """A whole number of shots, written 2000 or 2e3."""
+    import argparse
+    try:
+        value = float(text)
+    except ValueError:
+        raise argparse.ArgumentTypeError(f"expected a whole number, got {text!r}") from None
+    if not value.is_integer():
+        raise argparse.ArgumentTypeError(f"expected a whole number, got {text!r}")
+    return int(value)
 
 
 def cmd_simulate(args) -> int:
@@ -61,15 +80,20 @@ def cmd_simulate(args) -> int:
         raise UsageError(str(exc)) from None
     _check_counts(args)
     sequence = _load(args.file)
+    from .limits import SimulationLimit
     try:
         result = simulate(sequence, ladder=args.ladder, noise=sources, shots=args.shots, seed=args.seed,
-                          engine=args.engine, truncate=args.truncate, repetitions=args.sample, progress=True)
+                          engine=args.engine, truncate=args.truncate, repetitions=args.sample, progress=True,
+                          shared_noise=args.shared_noise)
+    except SimulationLimit as exc:
+        print(f"seqlang: {args.file}: {exc}", file=sys.stderr)
+        return 1
     except ValueError as exc:
         raise UsageError(str(exc)) from None
     for diagnostic in sort_diagnostics(result.warnings):
         print(render(diagnostic), file=sys.stderr)
     document = as_document(result)
-    print(json.dumps(document, indent=1) if args.json else summary(document))
+    print(json.dumps(document, indent=1, allow_nan=False) if args.json else summary(document))
     return 0
 
 
@@ -83,32 +107,62 @@ def _check_counts(args) -> None:
 
 def as_document(result) -> dict:
     """The JSON form: expectations, records, final level populations, interactions."""
+    from .api import record_errors
     from .model import LEVELS
     from .observables import clean
-    sites = {}
+    sites, errors = {}, {}
     for cluster in result.clusters:
         for name, row in zip(cluster.model.sites, cluster.populations()):
             sites[name] = {level: clean(p) for level, p in zip(LEVELS, row)}
+        if cluster.sampled and cluster.shots > 1:
+            spread = cluster.shot_populations().std(axis=0, ddof=1) / cluster.shots ** 0.5
+            for name, row in zip(cluster.model.sites, spread):
+                errors[name] = {level: clean(p) for level, p in zip(LEVELS, row)}
+    extra = {"site_populations_error": errors, "records_error": record_errors(result.clusters)} if errors else {}
     return {
         "program": result.program_name,
         "expectations": list(result.expectations),
         "records": result.records,
         "site_populations": sites,
+        **extra,
         "interactions_hz": {f"{a}-{b}": clean(v) for (a, b), v in sorted(result.interactions_hz.items())},
+        "interactions": {f"{a}-{b}": pair_entry(m) for (a, b), m in sorted(result.pair_models.items())},
         "clusters": [list(c.model.sites) for c in result.clusters],
         "noise": result.noise,
         "engine": result.engine,
         "reduction": result.reduction,
         "note": "model prediction for the played (tick-quantized) timeline; not a guarantee of the apparatus",
+        "array_summary": _array_summary(result, sites),
     }
 
 
+def pair_entry(shift) -> dict:
+    """One pair's model in the JSON: which model, its shift, overlap and nearest channel defect."""
+    from .observables import clean
+
+    def num(x):
+        return clean(x) if math.isfinite(x) else None
+    return {"model": shift.model, "shift_hz": num(shift.shift_hz), "overlap": num(shift.overlap),
+            "channel_defect_hz": num(shift.defect_hz), "distance_um": num(shift.distance_m * 1e6),
+            "theta_deg": num(math.degrees(shift.theta_rad)), "field_v_m": num(shift.field_v_m),
+            "crossover_radius_um": num(shift.crossover_radius_m * 1e6),
+            "le_roy_radius_um": num(shift.le_roy_radius_m * 1e6)}
+
+
+def _array_summary(result, sites: dict) -> dict:
+    from .array import summarize
+    return summarize(result.program, sites, result.records) if getattr(result, "program", None) else {}
+
+
 def summary(document: dict) -> str:
+    from .array import MANY_SITES, cluster_line, lines as array_lines
     noise = document.get("noise", {})
-    lines = [f"simulated {document['program']} (clusters: "
-             + ", ".join("{" + ",".join(c) + "}" for c in document["clusters"]) + "); noise: "
+    many = len(document["site_populations"]) > MANY_SITES
+    clusters = cluster_line(document["clusters"]) if many else \
+        "clusters: " + ", ".join("{" + ",".join(c) + "}" for c in document["clusters"])
+    lines = [f"simulated {document['program']} (" + clusters + "); noise: "
              + (", ".join(noise.get("sources", [])) or "off")
-             + (f"; {noise['shots']} shots, seed {noise['seed']}" if noise.get("shots", 1) > 1 else "")
+             + (f"; {noise['shots']} shots, seed {noise['seed']}" if "shots" in noise else "; exact (no sampling)")
              + f"; engine {document.get('engine', 'qutip')}"]
     reduction = document.get("reduction") or {}
     if reduction.get("truncated_pairs"):
@@ -116,45 +170,109 @@ def summary(document: dict) -> str:
                      f"neglected population <= {reduction['neglected_bound']:.2g}")
     if noise.get("interrupted"):
         lines.append(f"interrupted: {noise['interrupted']}; the numbers use the finished shots")
+    for note in noise.get("notes", []):
+        lines.append(f"note: {note}")
     for e in document["expectations"]:
-        error = f" ± {e['fidelity_error']:.2g} (Monte Carlo)" if "fidelity_error" in e else ""
-        lines.append(f"\nexpect {', '.join(e['sites'])} as {e['state']}: fidelity {e['fidelity']:.6f}{error}")
-        lines.append("  populations " + "  ".join(f"{k}: {v:.5f}" for k, v in e["populations"].items()))
-        if "sampled_counts" in e:
-            lines.append(f"  sampled {noise.get('repetitions')} repetitions (seed {noise.get('seed')}): "
-                         + "  ".join(f"{k}: {v}" for k, v in e["sampled_counts"].items())
-                         + "   binomial error " + "  ".join(f"{v:.3f}" for v in e["populations_error"].values()))
-        lines.append(f"  residual Rydberg {e['residual_rydberg']:.3g}   lost {e['loss']:.3g}")
-        if "correlators" in e:
-            c = e["correlators"]
-            for a in "XYZ":
-                lines.append("  " + "  ".join(f"<{a}{b}> {c[a + b]:+.4f}" for b in "XYZ"))
-        for cond in e["conditioned"]:
-            lines.append(f"  given {cond['record']}[{cond['site']}] = {cond['outcome']} "
-                         f"(p = {cond['probability']:.4f}): fidelity {cond['fidelity']:.6f}")
+        lines += _expectation_lines(e, noise)
+    if many and document.get("array_summary"):
+        lines.append(f"\narray of {len(document['site_populations'])} sites, final level populations "
+                     "(mean ± spread over sites; per site in --json):")
+        lines += array_lines(document["array_summary"])
+        return "\n".join(lines)
     lines.append("\nfinal level populations per site:")
-    for site, pops in document["site_populations"].items():
+    populations = list(document["site_populations"].items())
+    for site, pops in populations[:MAX_LISTED]:
         lines.append(f"  {site}: " + "  ".join(f"|{k}> {v:.5f}" for k, v in pops.items()))
+    if len(populations) > MAX_LISTED:
+        lines.append(f"  ... {len(populations) - MAX_LISTED} more sites (all in --json)")
     for record, sites in document["records"].items():
-        lines.append(f"record {record}: P(bright) " + ", ".join(f"{s} {p:.5f}" for s, p in sites.items()))
+        shown = list(sites.items())
+        lines.append(f"record {record}: P(bright) " + ", ".join(f"{s} {p:.5f}" for s, p in shown[:MAX_LISTED])
+                     + (f", ... {len(shown) - MAX_LISTED} more" if len(shown) > MAX_LISTED else ""))
     return "\n".join(lines)
 
 
-__all__ = ["register", "as_document", "summary"]
+MAX_LISTED = 12  # clusters and sites listed one by one on the terminal (all of them in --json)
+TOP_OUTCOMES = 8  # population tables longer than this show their largest entries on the terminal
+
+
+def _pm(e: dict, key: str, fmt: str = ".2g") -> str:
+    return f" ± {e[key]:{fmt}}" if key in e else ""
+
+
+def _expectation_lines(e: dict, noise: dict) -> list[str]:
+    phase = f" (phase {e['phase_rad']:.4g} rad)" if "phase_rad" in e else ""
+    lines = [f"\nexpect {', '.join(e['sites'])} as {e['state']}{phase}: fidelity {e['fidelity']:.6f}"
+             + _pm(e, "fidelity_error") + (" (Monte Carlo)" if "fidelity_error" in e else "")]
+    pops, errs = e["populations"], e.get("populations_error", {})
+    shown = list(pops.items())
+    if len(shown) > TOP_OUTCOMES:
+        shown = sorted(shown, key=lambda kv: -kv[1])[:TOP_OUTCOMES]
+    text = "  ".join(f"{k}: {v:.5f}" + (f"±{errs[k]:.1g}" if k in errs else "") for k, v in shown)
+    more = len(pops) - len(shown)
+    lines.append(("  top outcomes " if more else "  populations ") + text
+                 + (f"   (+{more} more, {sum(v for _, v in shown):.5f} shown; all in --json)" if more else ""))
+    if "sampled_counts" in e:
+        lines.append(f"  sampled {noise.get('repetitions')} repetitions (seed {noise.get('seed')}): "
+                     + "  ".join(f"{k}: {v}" for k, v in list(e["sampled_counts"].items())[:TOP_OUTCOMES + 1])
+                     + ("" if len(e["sampled_counts"]) <= TOP_OUTCOMES + 1 else "  ..."))
+    lines.append(f"  residual Rydberg {e['residual_rydberg']:.3g}{_pm(e, 'residual_rydberg_error', '.1g')}   "
+                 f"lost {e['loss']:.3g}{_pm(e, 'loss_error', '.1g')}")
+    if "ghz" in e:
+        g, ge = e["ghz"], e.get("ghz_error", {})
+        lines.append(f"  GHZ: P(0..0) {g['p_all_zero']:.5f}  P(1..1) {g['p_all_one']:.5f}  parity coherence C "
+                     f"{g['coherence']:.5f}{_pm(ge, 'coherence')}  F = (P0+P1)/2 + C/2 = {g['parity_fidelity']:.5f}"
+                     f"{_pm(ge, 'parity_fidelity')}")
+    c, ce = e.get("correlators", {}), e.get("correlators_error", {})
+    if len(e["sites"]) == 2 and all(a + b in c for a in "XYZ" for b in "XYZ"):
+        for a in "XYZ":
+            lines.append("  " + "  ".join(f"<{a}{b}> {c[a + b]:+.4f}" + _pm(ce, a + b, ".1g") for b in "XYZ"))
+    others = [k for k in c if len(k) != 2 or len(e["sites"]) != 2]
+    if others:
+        lines.append("  " + "  ".join(f"<{k}> {c[k]:+.4f}" + _pm(ce, k, ".1g") for k in others))
+    if "feed_forward" in e:
+        lines += feed_forward_lines(e["feed_forward"])
+    for cond in e["conditioned"]:
+        lines.append(f"  given {cond['record']}[{cond['site']}] = {cond['outcome']} "
+                     f"(p = {cond['probability']:.4f}): fidelity {cond['fidelity']:.6f}")
+    return lines
+
+
+def feed_forward_lines(ff: dict) -> list[str]:
+    """The fidelity with and without feed-forward, and how often each key occurred."""
+    lines = [f"  feed-forward: fidelity {ff['with']['fidelity']:.6f} with, {ff['without']['fidelity']:.6f} without"]
+    for table in ff["keys"]:
+        label = f"{table['record']}[{', '.join(table['sites'])}]"
+        lines.append(f"    keys of {label} ({table['key_kind'].replace('_', ' ')}; without feed-forward key "
+                     f"{table['fixed_key_without']} is played): "
+                     + "  ".join(f"{row['key']}: p {row['probability']:.3f}"
+                                 + (f" F {row['fidelity']:.4f}" if "fidelity" in row else "")
+                                 for row in table["keys"]))
+    return lines
+
+
+__all__ = ["register", "as_document", "summary", "feed_forward_lines"]
 
 
 def cmd_budget(args) -> int:
     from ..cli import UsageError, _load
     from .budget import budget, budget_table, plot_budget
     _check_counts(args)
+    if args.output:
+        from ..cli import _check_figure_name
+        _check_figure_name(args.output)
     sequence = _load(args.file)
+    from .limits import SimulationLimit
     try:
         numbers = budget(sequence, shots=args.shots, seed=args.seed, engine=args.engine, truncate=args.truncate)
+    except SimulationLimit as exc:
+        print(f"seqlang: {args.file}: {exc}", file=sys.stderr)
+        return 1
     except ValueError as exc:
         raise UsageError(str(exc)) from None
-    print(json.dumps(numbers, indent=1) if args.json else budget_table(numbers))
+    print(json.dumps(numbers, indent=1, allow_nan=False) if args.json else budget_table(numbers))
     if args.output:
-        plot_budget(numbers, args.output)
+        plot_budget(numbers, args.output, what_if=args.what_if)
         if not args.json:
             print(f"wrote {args.output}")
     return 0

@@ -11,6 +11,11 @@ samples (shots) of a segment are taken in one batched call. Two forms:
   (row-major vec(AρB) = (A ⊗ Bᵀ) vec ρ), for dissipation that returns into the
   qubit space (decay branching, pure dephasing); |x⟩ is kept where decay or
   scattering can lead, so every probability is exact.
+* ``trajectories``: kets as in ``fast``, with pure dephasing L = √(2γ)|r⟩⟨r|
+  unravelled as Gaussian phase kicks e^{−iφ n_r}, φ ~ N(0, 2γ·dt), drawn per shot
+  and site between sub-steps of each driven segment (symmetric Trotter splitting;
+  the kick average is exactly the dephasing channel of the sub-step). The shot
+  average converges to the Lindblad result; sub-steps keep Ω·dt ≤ KICK_ANGLE.
 
 The states a segment's couplings connect form blocks (an atom in |0⟩ sits out a
 Rydberg pulse); each block holding amplitude is exponentiated on its own, densely
@@ -43,6 +48,11 @@ MIN_WEIGHT = 1e-14
 HISTORY_STEPS = 40
 WORKERS = min(2, os.cpu_count() or 1)  # threads sharing a large stack of exponentials
 PARALLEL_WORK = 2**18  # matrices × size³ above which a stack is split over the threads
+KICK_ANGLE = 0.75  # largest Rabi angle Ω·dt of one sub-step between dephasing kicks (rad); the
+# splitting then misses at most ~(Ω·dt)²/12 ≈ 5 % of the dephasing's own small effect
+# Above this many squarings (‖A‖ ≳ 3·10⁵) scaling and squaring loses accuracy (each squaring
+# doubles the rounding error); such exponentials are taken from an eigendecomposition.
+MAX_SQUARINGS = 16
 
 
 @dataclass
@@ -59,15 +69,77 @@ def needs_lindblad(jumps: list[Jump]) -> bool:
     return any(j.target != LOST for j in jumps)
 
 
+def is_dephasing(jump: Jump) -> bool:
+    """A pure-dephasing operator √rate·|l⟩⟨l| (no population moves)."""
+    return jump.source == jump.target
+
+
+def can_unravel(jumps: list[Jump]) -> bool:
+    """True when kets with phase kicks describe every jump: loss and pure dephasing only."""
+    return all(j.target == LOST or is_dephasing(j) for j in jumps)
+
+
 def run(basis: Basis, shots: Shots, jumps: list[Jump], density: bool,
-        image_loss: dict[str, float] | None = None, record_history: bool = False) -> Run:
-    """Propagate all shots through the model's segments, branching at each imaging."""
+        image_loss: dict[str, float] | None = None, record_history: bool = False,
+        rng: np.random.Generator | None = None) -> Run:
+    """Propagate all shots through the model's segments, branching at each imaging.
+
+    For kets with pure-dephasing jumps, `rng` draws the phase kicks (see ``trajectories``)."""
+    kicks = None
+    if not density and any(is_dephasing(j) for j in jumps):
+        if rng is None:
+            raise ValueError("pure dephasing in kets needs phase-kick trajectories (a random generator)")
+        kicks = _Kicks(basis, [j for j in jumps if is_dephasing(j)], shots.count, rng)
+        jumps = [j for j in jumps if not is_dephasing(j)]
     with single_threaded_blas():
-        return _run(basis, shots, jumps, density, image_loss, record_history)
+        return _run(basis, shots, jumps, density, image_loss, record_history, kicks)
 
 
-def _run(basis, shots, jumps, density, image_loss, record_history) -> Run:
-    stepper = _Stepper(basis, shots, jumps, density)
+class _Kicks:
+    """Gaussian phase kicks that unravel pure dephasing √rate·|l⟩⟨l| (one stream per run)."""
+
+    def __init__(self, basis: Basis, jumps: list[Jump], rows: int, rng: np.random.Generator):
+        masks = np.array([basis.mask(j.site, j.source) for j in jumps], dtype=bool)  # (n, D)
+        self.size = basis.size
+        self.columns = np.nonzero(masks.any(axis=0))[0]  # only states with a dephased level get kicked
+        # Per kicked state, the jumps whose level it holds (padded with a jump-free slot, factor 1):
+        # its factor is the product of those few e^{−iφ}, gathered instead of exponentiated per state.
+        held = masks.T
+        width = max(1, int(held.sum(axis=1).max(initial=1)))
+        self.gather = np.full((self.size, width), len(jumps))
+        for k in self.columns:
+            where = np.nonzero(held[k])[0]
+            self.gather[k, :len(where)] = where
+        self.rates = np.array([j.rate for j in jumps])
+        self.rows, self.rng = rows, rng
+        self.pending = 0.0  # dephasing time not yet kicked (kicks commute with diagonal steps)
+
+    def flush(self, states):
+        """Apply the pending kick (before a measurement, a record or the end)."""
+        if self.pending > 0:
+            duration, self.pending = self.pending, 0.0
+            return list(self.apply(np.stack(states), duration))  # one draw per shot, for every branch
+        return states
+
+    def apply(self, states: np.ndarray, duration: float) -> np.ndarray:
+        """Kick (branches, rows, D) kets: e^{−iΣφ n} with φ ~ N(0, rate·duration) per shot and jump."""
+        phi = np.sqrt(self.rates * duration) * self.rng.standard_normal((self.rows, len(self.rates)))
+        single = np.ones((self.rows, len(self.rates) + 1), dtype=complex)
+        single[:, :-1] = np.exp(-1j * phi)
+        factors = single[:, self.gather[:, 0]]
+        for k in range(1, self.gather.shape[1]):
+            factors = factors * single[:, self.gather[:, k]]
+        states *= factors[None]
+        return states
+
+    def substeps(self, couplings: np.ndarray, dt: float) -> int:
+        """Sub-steps of a driven segment so that Ω·dt stays below KICK_ANGLE."""
+        omega = np.abs(couplings[..., 0]).max(initial=0.0)
+        return max(1, math.ceil(omega * dt / KICK_ANGLE))
+
+
+def _run(basis, shots, jumps, density, image_loss, record_history, kicks=None) -> Run:
+    stepper = _Stepper(basis, shots, jumps, density, kicks)
     kets = np.stack([basis.state(levels) for levels in shots.initial])
     states = [np.einsum("bi,bj->bij", kets, kets.conj()) if density else kets]
     outcomes: list[tuple] = [()]
@@ -76,6 +148,9 @@ def _run(basis, shots, jumps, density, image_loss, record_history) -> Run:
     images = 0
     for k, segment in enumerate(segments):
         if segment.image is not None:
+            states = stepper.close(states)
+            if kicks is not None:
+                states = kicks.flush(states)
             draws = shots.image_draws[images] if shots.image_draws else None
             outcomes, states = _image(basis, shots.model, k, outcomes, states, density, image_loss or {}, draws)
             images += 1
@@ -85,7 +160,13 @@ def _run(basis, shots, jumps, density, image_loss, record_history) -> Run:
             for t0, dt in _pieces(segment, record_history):
                 states = stepper.step(k, t0, dt, states)
                 if record_history:
+                    states = stepper.close(states)
+                    if kicks is not None:
+                        states = kicks.flush(states)
                     history.append((t0 + dt, _populations(basis, states, density)))
+    states = stepper.close(states)
+    if kicks is not None:
+        states = kicks.flush(states)
     return Run(outcomes, states, history)
 
 
@@ -99,8 +180,10 @@ def _pieces(segment: Segment, fine: bool) -> list[tuple[float, float]]:
 class _Stepper:
     """Builds the batched generator of a segment and applies its exponential."""
 
-    def __init__(self, basis: Basis, shots: Shots, jumps: list[Jump], density: bool):
-        self.basis, self.shots, self.density = basis, shots, density
+    def __init__(self, basis: Basis, shots: Shots, jumps: list[Jump], density: bool, kicks: _Kicks | None = None):
+        self.basis, self.shots, self.density, self.kicks = basis, shots, density, kicks
+        self.frame: np.ndarray | None = None  # the drive frame the states are in (None: the atom frame)
+        self.now = 0.0
         self.loss_diag = np.zeros(basis.size)
         for j in jumps:
             self.loss_diag += j.rate * basis.mask(j.site, j.source)
@@ -134,29 +217,105 @@ class _Stepper:
         b = self.basis
         rows = max(couplings.shape[0], shifts.shape[0], interactions.shape[0])
         frame = np.zeros((rows, b.size))
-        for j, c in enumerate(seg.couplings):
-            frame -= couplings[:, j, 1:2] * b.mask(c.site, c.upper)
-        diag = frame.astype(complex)
-        for j, (site, level) in enumerate(levels):
-            diag += (shifts[:, j, 0:1] - 0.5j * shifts[:, j, 1:2]) * b.mask(site, level)
-        for j, pair in enumerate(pairs):
-            diag += interactions[:, j:j + 1] * self._pair_mask(pair)
-        return diag - 0.5j * self.loss_diag, frame
+        if seg.couplings:  # one matrix product per kind of term: (rows, terms) @ (terms, D) masks
+            upper = np.array([b.mask(c.site, c.upper) for c in seg.couplings], dtype=float)
+            frame -= couplings[:, :, 1] @ upper
+        real = frame.copy()
+        imag = np.broadcast_to(-0.5 * self.loss_diag, (rows, b.size)).copy()
+        if levels:
+            masks = np.array([b.mask(site, level) for site, level in levels], dtype=float)
+            real += shifts[:, :, 0] @ masks
+            imag -= 0.5 * (shifts[:, :, 1] @ masks)
+        if pairs:
+            real += interactions @ np.array([self._pair_mask(p) for p in pairs], dtype=float)
+        return real + 1j * imag, frame
 
     def step(self, k: int, t0: float, dt: float, states: list[np.ndarray]) -> list[np.ndarray]:
         seg, couplings, shifts, levels, pairs, interactions = self.parameters(k)
         diag, frame = self.diagonal(seg, couplings, shifts, levels, pairs, interactions)
         couplings = np.broadcast_to(couplings, (diag.shape[0],) + couplings.shape[1:])
         stacked = np.stack(states)  # (K, B, D) or (K, B, D, D)
-        stacked = _rotate(stacked, np.exp(-1j * frame * t0), self.density)
+        stacked = self._enter(stacked, frame, t0)
         if not seg.couplings and not self.returning:
             stacked = self._diagonal_step(stacked, diag, dt)
+            if self.kicks is not None:  # kicks commute with a diagonal step: kick it with the next one
+                self.kicks.pending += dt
         elif self.density:
             stacked = self._lindblad_step(seg, couplings, diag, dt, stacked, shifts, levels)
+        elif self._separable(seg):
+            stacked = self._rotations_step(seg, couplings, diag, dt, stacked, shifts, levels)
+            if self.kicks is not None:  # no coupling moves a dephased level: the kicks commute
+                self.kicks.pending += dt
+        elif self.kicks is not None:  # symmetric splitting: half kicks at both ends, full ones between
+            n = self.kicks.substeps(couplings, dt)
+            stacked = self.kicks.apply(stacked, self.kicks.pending + dt / (2 * n))
+            self.kicks.pending = 0.0
+            done = [0]
+
+            def kick(states):  # the last half kick waits for the next step (or a flush)
+                done[0] += 1
+                if done[0] < n:
+                    return self.kicks.apply(states, dt / n)
+                self.kicks.pending = dt / (2 * n)
+                return states
+            stacked = self._ket_step(seg, couplings, diag, dt / n, stacked, n, kick)
         else:
             stacked = self._ket_step(seg, couplings, diag, dt, stacked)
-        stacked = _rotate(stacked, np.exp(1j * frame * (t0 + dt)), self.density)
+        self.now = t0 + dt  # left in the drive frame: the next step with the same frame skips two rotations
         return list(stacked)
+
+    def _enter(self, stacked: np.ndarray, frame: np.ndarray, t0: float) -> np.ndarray:
+        """Map the states into the drive frame of a step starting at t0, leaving the open one."""
+        if self.frame is not None and self.frame.shape == frame.shape and np.array_equal(self.frame, frame):
+            return stacked
+        stacked = self._leave(stacked, t0)
+        if frame.any():
+            stacked = _rotate(stacked, np.exp(-1j * frame * t0), self.density)
+            self.frame = frame
+        return stacked
+
+    def _leave(self, stacked: np.ndarray, t: float) -> np.ndarray:
+        if self.frame is not None:
+            stacked = _rotate(stacked, np.exp(1j * self.frame * t), self.density)
+            self.frame = None
+        return stacked
+
+    def close(self, states: list[np.ndarray]) -> list[np.ndarray]:
+        """The states back in the atom frame (before a measurement, a record or the end)."""
+        if self.frame is None:
+            return states
+        return list(self._leave(np.stack(states), self.now))
+
+    def _separable(self, seg: Segment) -> bool:
+        """Qubit rotations only (0↔1, one coupling per site): then every block's H_eff is a sum
+        of single-site terms plus a constant (atoms in |r⟩ or |x⟩ are spectators, and the pair
+        shifts act on |rr⟩ only), so its propagator is a product of 2×2 rotations."""
+        sites = [c.site for c in seg.couplings]
+        return (len(sites) > 1 and len(set(sites)) == len(sites)
+                and all((c.lower, c.upper) == (0, 1) for c in seg.couplings))
+
+    def _rotations_step(self, seg, couplings, diag, dt, stacked, shifts, levels) -> np.ndarray:
+        """e^{−iH·dt} as e^{−i·rest·dt} times one 2×2 rotation per driven site (they commute)."""
+        b, rows = self.basis, diag.shape[0]
+        rest = diag.copy()
+        singles = []
+        for j, c in enumerate(seg.couplings):
+            h = np.zeros((rows, 2, 2), dtype=complex)
+            for k, (site, level) in enumerate(levels):
+                if site == c.site and level in (0, 1):
+                    h[:, level, level] += np.broadcast_to(shifts[:, k, 0] - 0.5j * shifts[:, k, 1], (rows,))
+            h[:, 1, 1] -= couplings[:, j, 1]
+            value = 0.5 * couplings[:, j, 0] * np.exp(1j * couplings[:, j, 2])
+            h[:, 1, 0], h[:, 0, 1] = value, np.conj(value)
+            for level in (0, 1):
+                rest -= h[:, level, level][:, None] * b.mask(c.site, level)
+            singles.append((self._transition(c.site, 0, 1), _expm2(-1j * dt * h)))
+        out = stacked * np.exp(-1j * rest * dt)[None]
+        for (lower, upper), u in singles:
+            a, z = out[..., lower], out[..., upper]  # u: (rows, 2, 2); states (branches, rows, D)
+            out[..., lower] = u[None, :, 0, 0, None] * a + u[None, :, 0, 1, None] * z
+            out[..., upper] = u[None, :, 1, 0, None] * a + u[None, :, 1, 1, None] * z
+        return out
 
     def _diagonal_step(self, stacked: np.ndarray, diag: np.ndarray, dt: float) -> np.ndarray:
         phase = np.exp(-1j * diag * dt)[None]  # (1, rows, D)
@@ -164,25 +323,33 @@ class _Stepper:
             return stacked * phase
         return stacked * phase[..., :, None] * phase.conj()[..., None, :]
 
-    def _ket_step(self, seg, couplings, diag, dt, stacked):
+    def _ket_step(self, seg, couplings, diag, dt, stacked, repeats: int = 1, kick=None):
+        """e^{−iH_eff·dt} on every block, `repeats` times; after each, `kick(states)` (the
+        dephasing kicks, diagonal, applied to the whole state)."""
         occupied = np.any(stacked != 0, axis=(0, 1))
-        out = np.zeros_like(stacked)
         rows = diag.shape[0]
+        dense, sparse = [], []
         for idx in self.blocks(seg):
             idx = idx[occupied[idx].any(axis=1)]  # blocks holding no amplitude stay empty
             if not len(idx):
                 continue
             if idx.shape[1] > DENSE_LIMIT or self._sparse_is_cheaper(seg, couplings, diag, dt, idx, stacked.shape[0]):
-                for block in idx:
-                    out[..., block] = self._sparse_block_step(seg, couplings, diag, dt, stacked[..., block], block)
+                sparse += list(idx)
                 continue
             for lo, hi in _chunks(rows, idx.shape[1], idx.shape[0]):
                 u = batched_expm(-1j * dt * self.block_hamiltonian(seg, couplings[lo:hi], diag[lo:hi], idx))
+                dense.append((idx, lo, hi, u))
+        for _ in range(repeats):
+            out = np.zeros_like(stacked)
+            for idx, lo, hi, u in dense:
                 if rows > 1:  # u: (rows, blocks, k, k); states: (branches, rows, D)
                     out[:, lo:hi, idx] = np.einsum("rmij,krmj->krmi", u, stacked[:, lo:hi][..., idx])
                 else:
                     out[..., idx] = np.einsum("mij,krmj->krmi", u[0], stacked[..., idx])
-        return out
+            for block in sparse:
+                out[..., block] = self._sparse_block_step(seg, couplings, diag, dt, stacked[..., block], block)
+            stacked = out if kick is None else kick(out)
+        return stacked
 
     def _sparse_is_cheaper(self, seg, couplings, diag, dt, idx, branches) -> bool:
         """Compare flop estimates: scaling and squaring (~k³ per squaring) against the
@@ -284,9 +451,11 @@ class _Stepper:
         for group in _pair_groups(labels, jumps, occupied):
             elements, pairs = _group_elements(labels, group, d)
             if len(elements) > MAX_LINDBLAD_BLOCK:
-                raise MemoryError(f"the Lindblad engine would need a block of {len(elements)} density-matrix "
-                                  "elements; use the fast engine (no pure dephasing or decay back into the "
-                                  "qubit space) or fewer atoms per cluster")
+                from .limits import SimulationLimit
+                raise SimulationLimit(f"the Lindblad engine would need a block of {len(elements):,} density-matrix "
+                                      f"elements (limit {MAX_LINDBLAD_BLOCK:,}); what would help: the trajectories "
+                                      "engine (pure dephasing) or the fast engine (loss only), or fewer atoms "
+                                      "within one blockade radius")
             for lo, hi in _chunks(rows, len(elements)):
                 whole = np.arange(self.basis.size)[None]  # all states as one block: the dense H_eff
                 h = self.block_hamiltonian(seg, couplings[lo:hi], diag[lo:hi], whole)[:, 0]
@@ -400,6 +569,8 @@ def batched_expm(a: np.ndarray) -> np.ndarray:
     shape = a.shape
     if shape[-1] == 1:
         return np.exp(a)
+    if shape[-1] == 2:
+        return _expm2(a)
     m = a.reshape(-1, shape[-2], shape[-1])
     if WORKERS > 1 and m.shape[0] * shape[-1] ** 3 >= PARALLEL_WORK:
         with ThreadPoolExecutor(WORKERS) as pool:  # numpy's batched kernels release the GIL
@@ -407,10 +578,56 @@ def batched_expm(a: np.ndarray) -> np.ndarray:
     return _expm_stack(m).reshape(shape)
 
 
+def _expm2(a: np.ndarray) -> np.ndarray:
+    """exp of 2×2 matrices in closed form: with A = τI + B, B traceless and s² = −det B,
+    e^A = ½[(e^{τ+s} + e^{τ−s}) I + (e^{τ+s} − e^{τ−s}) B/s] (Cayley–Hamilton). Exact at any
+    norm: a long pulse stays a contraction, where repeated squaring would amplify rounding."""
+    tau = 0.5 * (a[..., 0, 0] + a[..., 1, 1])
+    b00 = a[..., 0, 0] - tau
+    s = np.sqrt(b00 * b00 + a[..., 0, 1] * a[..., 1, 0])
+    plus, minus = np.exp(tau + s), np.exp(tau - s)
+    small = np.abs(s) < 1e-6
+    safe = np.where(small, 1.0, s)
+    ratio = np.where(small, 2 * np.exp(tau) * (1 + s * s / 6), (plus - minus) / safe)  # (e^{τ+s} − e^{τ−s})/s
+    even = 0.5 * (plus + minus)
+    out = np.empty(a.shape, dtype=complex)
+    out[..., 0, 0] = even + 0.5 * ratio * b00
+    out[..., 1, 1] = even - 0.5 * ratio * b00
+    out[..., 0, 1] = 0.5 * ratio * a[..., 0, 1]
+    out[..., 1, 0] = 0.5 * ratio * a[..., 1, 0]
+    return out
+
+
+def _expm_eig(m: np.ndarray) -> np.ndarray:
+    """exp of matrices of very large norm from their eigendecomposition: unitary to rounding
+    for anti-Hermitian ones (−iH·t), and a contraction for −iH_eff·t, whose eigenvalues have
+    non-positive real parts. No error grows with the norm, unlike repeated squaring."""
+    out = np.empty_like(m)
+    hermitian = np.all(np.abs(m + np.conj(np.swapaxes(m, -1, -2))) <= 1e-12 * np.abs(m).max(axis=(-1, -2),
+                                                                                             keepdims=True),
+                       axis=(-1, -2))
+    if hermitian.any():
+        values, vectors = np.linalg.eigh(1j * m[hermitian])
+        out[hermitian] = (vectors * np.exp(-1j * values)[..., None, :]) @ np.conj(np.swapaxes(vectors, -1, -2))
+    if (~hermitian).any():
+        values, vectors = np.linalg.eig(m[~hermitian])
+        out[~hermitian] = np.linalg.solve(np.swapaxes(vectors, -1, -2),
+                                          np.swapaxes(vectors * np.exp(values)[..., None, :], -1, -2)
+                                          ).swapaxes(-1, -2)
+    return out
+
+
 def _expm_stack(m: np.ndarray) -> np.ndarray:
     shape = m.shape
     norms = np.abs(m).sum(axis=1).max(axis=1)
     squarings = np.maximum(0, np.ceil(np.log2(np.maximum(norms, 1e-300) / _THETA13))).astype(int)
+    long = squarings > MAX_SQUARINGS
+    if long.any():
+        out = np.empty_like(m)
+        out[long] = _expm_eig(m[long])
+        if (~long).any():
+            out[~long] = _expm_stack(m[~long])
+        return out
     m = m / (2.0 ** squarings)[:, None, None]
     b = _PADE13
     eye = np.eye(shape[-1])

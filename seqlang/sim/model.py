@@ -13,7 +13,7 @@ from __future__ import annotations
 
 import itertools
 import math
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 
 import numpy as np
 
@@ -43,6 +43,7 @@ class Drive1:
     delta: float
     phase: float
     drive: str = ""
+    event: int = -1  # timeline event that plays it (feed-forward looks conditioned ones up by it)
 
 
 @dataclass(frozen=True)
@@ -59,6 +60,7 @@ class LevelShift:
     shift: float
     loss_rate: float = 0.0
     scatter: float = 0.0
+    event: int = -1
 
 
 @dataclass(frozen=True)
@@ -81,24 +83,56 @@ class Model:
     interactions: dict[tuple[int, int], float]
     segments: tuple[Segment, ...]
     dim: int = DIM
+    images: tuple[Event, ...] = ()  # every imaging of the timeline, of either species (for crosstalk)
 
     @property
     def size(self) -> int:
         return len(self.sites)
 
 
-def pair_interactions_hz(program: Program, sites: tuple[str, ...]) -> dict[tuple[str, str], float]:
-    """V/h = C6/R⁶ for every pair of sites whose species have Rydberg levels."""
+def pair_interactions_hz(program: Program, sites: tuple[str, ...],
+                         cutoff_hz: float = 0.0) -> dict[tuple[str, str], float]:
+    """V/h = C6/R⁶ for every pair of sites whose species have Rydberg levels.
+
+    With `cutoff_hz`, pairs farther apart than where |C6|/R⁶ of their species falls below
+    it are not looked up at all (a k-d tree finds the near pairs), so a large array of
+    distant atoms costs one C6 per species pair and its near neighbours only.
+    """
     from ..atoms import rydberg
     out = {}
-    for a, b in itertools.combinations(sites, 2):
+    c6s: dict[tuple[str, str], object] = {}  # one lookup per species pair
+    for a, b in _candidate_pairs(program, sites, cutoff_hz):
         sa, sb = program.sites[a], program.sites[b]
         spa, spb = program.rig.species[sa.species], program.rig.species[sb.species]
         if spa.rydberg is None or spb.rydberg is None:
             continue
-        c6 = rydberg.c6_hz_m6(spa.data, spa.rydberg, spb.data, spb.rydberg)
-        out[(a, b)] = rydberg.interaction_hz(c6, math.dist(sa.position_m, sb.position_m))
+        key = (sa.species, sb.species)
+        if key not in c6s:
+            c6s[key] = rydberg.c6_hz_m6(spa.data, spa.rydberg, spb.data, spb.rydberg)
+        out[(a, b)] = rydberg.interaction_hz(c6s[key], math.dist(sa.position_m, sb.position_m))
     return out
+
+
+def _candidate_pairs(program: Program, sites: tuple[str, ...], cutoff_hz: float):
+    """Pairs of `sites` (in order) that may interact above `cutoff_hz` (every pair without one)."""
+    if cutoff_hz <= 0 or len(sites) < 3:
+        yield from itertools.combinations(sites, 2)
+        return
+    from scipy.spatial import cKDTree
+
+    from ..atoms import rydberg
+    species = {program.sites[s].species for s in sites}
+    radius = 0.0
+    for a in species:
+        for b in species:
+            sa, sb = program.rig.species[a], program.rig.species[b]
+            if sa.rydberg is not None and sb.rydberg is not None:
+                c6 = abs(rydberg.interaction_hz(rydberg.c6_hz_m6(sa.data, sa.rydberg, sb.data, sb.rydberg), 1.0))
+                radius = max(radius, 1.001 * (c6 / cutoff_hz) ** (1 / 6))
+    points = np.array([program.sites[s].position_m for s in sites], dtype=float)
+    pairs = cKDTree(points).query_pairs(radius, output_type="ndarray")
+    for i, j in sorted((min(i, j), max(i, j)) for i, j in pairs.tolist()):
+        yield sites[i], sites[j]
 
 
 def build_model(program: Program, timeline: Timeline, sites: tuple[str, ...],
@@ -114,7 +148,8 @@ def build_model(program: Program, timeline: Timeline, sites: tuple[str, ...],
     relevant = [e for e in timeline.events if e.kind in (PULSE, IMAGE) and set(e.targets) & set(sites)]
     segments = _segments(program, relevant, index, timeline.duration_s, ladder)
     species = tuple(program.sites[s].species for s in sites)
-    return Model(tuple(sites), species, pairs, tuple(segments), LADDER_DIM if ladder else DIM)
+    images = tuple(e for e in timeline.events if e.kind == IMAGE)
+    return Model(tuple(sites), species, pairs, tuple(segments), LADDER_DIM if ladder else DIM, images)
 
 
 def _tick(t: float, tick: float) -> int:
@@ -176,13 +211,13 @@ def _couplings(program: Program, active: list[Event], index: dict[str, int], t_m
         legs = leg_rabi(drive, omega)
         for site in (index[s] for s in pulse.targets if s in index):
             if legs is None:
-                couplings.append(Drive1(site, lower, upper, omega, delta, pulse.phase_rad, drive.name))
+                couplings.append(Drive1(site, lower, upper, omega, delta, pulse.phase_rad, drive.name, pulse.index))
             elif ladder:
-                couplings += [Drive1(site, G1, INTERMEDIATE, legs[0], legs[2], 0.0, drive.name),
-                              Drive1(site, INTERMEDIATE, RYD, legs[1], delta, pulse.phase_rad, drive.name)]
+                couplings += [Drive1(site, G1, INTERMEDIATE, legs[0], legs[2], 0.0, drive.name, pulse.index),
+                              Drive1(site, INTERMEDIATE, RYD, legs[1], delta, pulse.phase_rad, drive.name, pulse.index)]
             else:
-                couplings.append(Drive1(site, lower, upper, omega, delta, pulse.phase_rad, drive.name))
-                shifts += light_shifts(site, *legs)
+                couplings.append(Drive1(site, lower, upper, omega, delta, pulse.phase_rad, drive.name, pulse.index))
+                shifts += [replace(x, event=pulse.index) for x in light_shifts(site, *legs)]
     return tuple(couplings), tuple(shifts)
 
 

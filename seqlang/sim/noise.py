@@ -34,7 +34,9 @@ sources see the same samples (common random numbers make budgets fair):
   Δν/π), sampled per shot as a sum of Gaussian-weighted quadratures;
 * ``preparation``: an atom starts lost (|x⟩) with the species' ``prep_error``;
 * ``imaging``: a bright atom is lost during imaging with the imaging ``loss``;
-  readout flips (false positives/negatives) are applied to the reported records.
+  readout flips (false positives/negatives) are applied to the reported records;
+* ``crosstalk``: the imaging light of one species, far detuned for the other,
+  dephases atoms of the other species that scatter a photon (sim/crosstalk.py).
 """
 from __future__ import annotations
 
@@ -48,7 +50,7 @@ from .model import G0, G1, INTERMEDIATE, LADDER_DIM, LOST, RYD, LevelShift, Mode
 
 MARKOVIAN = ("decay", "dephasing", "scattering")  # Lindblad jumps
 SAMPLED = ("laser_noise", "intensity", "doppler", "motion", "detuning_error", "t2_star", "field_noise",
-           "preparation", "imaging")  # drawn per shot
+           "preparation", "imaging", "crosstalk")  # drawn per shot
 SOURCES = MARKOVIAN + SAMPLED
 BOLTZMANN = 1.380649e-23  # J/K (SI, exact)
 BUMP_COMPONENTS = 48  # quadratures spanning a servo bump
@@ -210,6 +212,8 @@ class Draws:
     bumps: np.ndarray  # (shots, drives, BUMP_COMPONENTS, 2) quadratures
     prepared: np.ndarray  # (shots, sites) uniform
     imaging: tuple[np.ndarray, ...]  # per imaging segment, (shots, imaged sites) uniform
+    field_offset: np.ndarray | None = None  # (shots,) shared quasi-static field, units of field_rms (sim/shared.py)
+    crosstalk: np.ndarray | None = None  # (shots, images, sites, 3) uniform (sim/crosstalk.py)
 
     @property
     def count(self) -> int:
@@ -231,8 +235,10 @@ def draw(model: Model, shots: int, rng: np.random.Generator) -> Draws:
                      rng.standard_normal((drives, BUMP_COMPONENTS, 2)), rng.random(n),
                      tuple(rng.random(k) for k in images)))
     columns = list(zip(*rows))
+    # Drawn after every shot's row, so that the numbers above keep their values.
+    crosstalk = rng.random((shots, len(model.images), n, 3))
     return Draws(*(np.array(c) for c in columns[:8]),
-                 tuple(np.array([r[8][i] for r in rows]) for i in range(len(images))))
+                 tuple(np.array([r[8][i] for r in rows]) for i in range(len(images))), None, crosstalk)
 
 
 @dataclass(frozen=True)
@@ -265,6 +271,14 @@ class Shots:
                      self.pairs, cut(self.interactions), self.initial[lo:hi],
                      tuple(d[lo:hi] for d in self.image_draws))
 
+    def take(self, indices: np.ndarray) -> "Shots":
+        """The shots at `indices` (shared parameters stay shared)."""
+        def cut(a):
+            return a[indices] if a.shape[0] > 1 else a
+        return Shots(self.model, tuple(map(cut, self.couplings)), tuple(map(cut, self.shifts)), self.shift_levels,
+                     self.pairs, cut(self.interactions), tuple(self.initial[k] for k in indices),
+                     tuple(d[indices] for d in self.image_draws))
+
     def shot_model(self, k: int) -> Model:
         """The model of shot k, for the reference path."""
         def row(a):
@@ -294,6 +308,11 @@ def sample(program: Program | None, model: Model, sources: tuple[str, ...], draw
     offsets = _detuning_offsets(program, model, on, draws) if on & {"doppler", "detuning_error"} else None
     qubit = _qubit_offsets(program, model, draws) if "t2_star" in on else None
     field = _field(program, model, draws) if "field_noise" in on else None
+    if "crosstalk" in on and model.images:
+        from .crosstalk import kicks
+        cross = kicks(program, model, draws)
+    else:
+        cross = None
     phases = _laser_phases(program, model, draws) if "laser_noise" in on else {}
     drives = {d: i for i, d in enumerate(model_drives(model))}
     couplings, shifts, levels = [], [], []
@@ -310,8 +329,9 @@ def sample(program: Program | None, model: Model, sources: tuple[str, ...], draw
                 c[:, j, 2] += phases[x.drive](t_mid)
         sh = [np.tile([[x.shift, x.loss_rate] for x in seg.shifts], (rows, 1)).reshape(rows, -1, 2)]
         lv = [(x.site, x.level) for x in seg.shifts]
-        if qubit is not None or field is not None:
-            extra = (qubit if qubit is not None else 0.0) + (field(seg) if field is not None else 0.0)
+        if qubit is not None or field is not None or cross is not None:
+            extra = (qubit if qubit is not None else 0.0) + (field(seg) if field is not None else 0.0) \
+                + (cross(seg) if cross is not None else 0.0)
             sh.append(np.stack([extra * np.ones((rows, model.size)), np.zeros((rows, model.size))], axis=-1))
             lv += [(i, G1) for i in range(model.size)]
         couplings.append(_shared(c))
@@ -382,14 +402,18 @@ def _field(program, model, draws: Draws):
     amplitude = np.array([2 * math.pi * e.get("field_noise", 0.0) for e in extra])[None]
     w = np.array([2 * math.pi * e.get("field_noise_freq", 0.0) for e in extra])[None]
     phi = draws.field_phase[:, None]
+    # The shared quasi-static offset: each species' sensitivity times the shot's field (sim/shared.py).
+    per_field = np.array([2 * math.pi * e.get("field_sensitivity", 0.0) for e in extra])[None]
+    offset = per_field * program.rig.field_rms_g * (draws.field_offset[:, None] if draws.field_offset is not None
+                                                    else 0.0)
 
     def shift(seg: Segment) -> np.ndarray:
         a, b = seg.start_s, seg.start_s + seg.duration_s
         if seg.duration_s == 0:
-            return amplitude * np.sin(w * a + phi)
+            return amplitude * np.sin(w * a + phi) + offset
         with np.errstate(divide="ignore", invalid="ignore"):
             mean = (np.cos(w * a + phi) - np.cos(w * b + phi)) / (w * (b - a))
-        return amplitude * np.where(w > 0, mean, np.sin(phi))
+        return amplitude * np.where(w > 0, mean, np.sin(phi)) + offset
     return shift
 
 

@@ -27,13 +27,69 @@ BELL = {
 }
 
 
-def target_state(state: str, is_ket: bool) -> np.ndarray:
-    """The expected state as a vector in the computational basis."""
-    if not is_ket:
+# Named single-site states for product targets (`expect a, b as plus * zero`).
+SINGLE = {
+    "zero": np.array([1, 0], dtype=complex),
+    "one": np.array([0, 1], dtype=complex),
+    "plus": np.array([_S, _S], dtype=complex),
+    "minus": np.array([_S, -_S], dtype=complex),
+    "plus_i": np.array([_S, 1j * _S], dtype=complex),
+    "minus_i": np.array([_S, -1j * _S], dtype=complex),
+}
+MANY = ("ghz", "w")  # named states of any number of atoms
+
+
+def target_state(state: str, is_ket: bool, count: int | None = None, phase: float = 0.0) -> np.ndarray:
+    """The expected state as a vector in the computational basis (first site = leftmost bit);
+    named many-atom states default to two atoms."""
+    return target_vector(state, is_ket, 2 if count is None else count, phase)
+
+
+def target_vector(state: str, is_ket: bool, count: int | None = None, phase: float = 0.0) -> np.ndarray:
+    """Kets "0110"; Bell states; "ghz" (|0…0⟩ + e^{iφ}|1…1⟩)/√2; "w" (Σ one excitation)/√n;
+    products of single-site states "plus*zero*minus"."""
+    if is_ket:
+        vector = np.zeros(2 ** len(state), dtype=complex)
+        vector[int(state, 2)] = 1.0
+        return vector
+    if state in BELL:
         return BELL[state]
-    vector = np.zeros(2 ** len(state), dtype=complex)
-    vector[int(state, 2)] = 1.0
+    if state == "ghz":
+        vector = np.zeros(2**count, dtype=complex)
+        vector[0], vector[-1] = _S, _S * np.exp(1j * phase)
+        return vector
+    if state == "w":
+        vector = np.zeros(2**count, dtype=complex)
+        vector[[2**k for k in range(count)]] = 1 / math.sqrt(count)
+        return vector
+    vector = np.array([1.0 + 0j])
+    for name in state.split("*"):
+        vector = np.kron(vector, SINGLE[name])
     return vector
+
+
+def pauli_string(labels: str) -> np.ndarray:
+    """σ_a ⊗ σ_b ⊗ … for a string of I, X, Y, Z."""
+    out = np.array([[1.0 + 0j]])
+    for a in labels:
+        out = np.kron(out, PAULI[a] if a != "I" else np.eye(2))
+    return out
+
+
+def pauli_expectations(block: np.ndarray, strings) -> dict[str, float]:
+    """⟨σ…σ⟩ of the qubit block for each requested string (N-body correlators)."""
+    return {s: clean(np.real(np.trace(block @ pauli_string(s)))) for s in strings}
+
+
+def ghz_numbers(block: np.ndarray, count: int) -> dict:
+    """Populations of |0…0⟩ and |1…1⟩, the parity-oscillation coherence C = 2|ρ₀…₀,₁…₁| (the
+    amplitude of ⟨Π(φ)⟩ = C cos(Nφ + θ)), its phase θ, and the fidelity to the best-phased
+    GHZ state F = (P₀…₀ + P₁…₁)/2 + C/2 (Sackett et al., Nature 404, 256 (2000))."""
+    p0, p1 = float(np.real(block[0, 0])), float(np.real(block[-1, -1]))
+    c = 2 * abs(block[0, -1])
+    return {"p_all_zero": clean(p0), "p_all_one": clean(p1), "coherence": clean(c),
+            "coherence_phase_rad": clean(float(np.angle(block[-1, 0]))) if c > 1e-12 else 0.0,
+            "parity_fidelity": clean((p0 + p1) / 2 + c / 2)}
 
 
 def partial_trace(rho: np.ndarray, size: int, keep: list[int]) -> np.ndarray:
@@ -67,9 +123,10 @@ def level_probability(rho: np.ndarray, count: int, level: int) -> float:
     return float(np.real(np.trace(rho)) - none.sum())
 
 
-def summarize_block(block: np.ndarray, count: int, state: str, is_ket: bool, rydberg: float, lost: float) -> dict:
+def summarize_block(block: np.ndarray, count: int, state: str, is_ket: bool, rydberg: float, lost: float,
+                    phase: float = 0.0) -> dict:
     """As `summarize`, from the qubit block and the probabilities of |r⟩ and loss."""
-    target = target_state(state, is_ket)
+    target = target_vector(state, is_ket, count, phase)
     out = {
         "fidelity": clean(np.real(np.vdot(target, block @ target))),
         "populations": {"".join(map(str, bits)): clean(np.real(block[i, i]))
@@ -82,10 +139,10 @@ def summarize_block(block: np.ndarray, count: int, state: str, is_ket: bool, ryd
     return out
 
 
-def summarize(rho: np.ndarray, count: int, state: str, is_ket: bool) -> dict:
+def summarize(rho: np.ndarray, count: int, state: str, is_ket: bool, phase: float = 0.0) -> dict:
     """Fidelity, populations, correlators, residual Rydberg and loss of `count` atoms."""
     block = qubit_block(rho, count)
-    target = target_state(state, is_ket)
+    target = target_vector(state, is_ket, count, phase)
     out = {
         "fidelity": clean(np.real(np.vdot(target, block @ target))),
         "populations": {"".join(map(str, bits)): clean(np.real(block[i, i]))

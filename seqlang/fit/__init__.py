@@ -1,0 +1,1 @@
+"""Fits of measured and simulated scans: calibration curves and the rig changes they imply."""

@@ -1,0 +1,154 @@
+"""Calibration fits: recovery and coverage on data drawn from the simulator, the measured-CSV
+reader's messages, and `seqlang calibrate`."""
+from __future__ import annotations
+
+import math
+import subprocess
+import sys
+
+import numpy as np
+import pytest
+
+import seqlang
+from seqlang.fit.fitting import fit_counts, fit_values
+from seqlang.fit.measured import read_measured
+from seqlang.lang.diagnostics import SeqlangError
+from tests.conftest import ROOT
+
+RABI = """use "millpond.rig"
+site a = na at (0, 0) um
+scan t = 0.05 us .. 2 us points 25
+sequence rabi {
+  pulse mw_na area pi
+  pulse ryd_na duration t
+  image na -> bright
+}
+"""
+
+
+@pytest.fixture(scope="module")
+def rabi_scan(tmp_path_factory):
+    tmp = tmp_path_factory.mktemp("rabi")
+    (tmp / "millpond.rig").write_text((ROOT / "programs/millpond.rig").read_text())
+    (tmp / "rabi.seq").write_text(RABI)
+    ds = seqlang.scan(str(tmp / "rabi.seq"), str(tmp / "out"), simulate=True, workers=1, progress=False)
+    return tmp, ds["t"].values, ds["bright_bright_a"].values
+
+
+def test_rabi_fit_recovers_the_drive_rabi_frequency(rabi_scan):
+    """Noiseless: P(bright) = (1 + cos 2πft)/2 with f the drive's 1.3 MHz (Rabi formula, Foot 2005)."""
+    _, t, bright = rabi_scan
+    fit = fit_values("rabi", t, bright)
+    assert fit.values["frequency"] == pytest.approx(1.3, abs=1e-4)
+    assert fit.values["contrast"] == pytest.approx(1.0, abs=1e-3)
+
+
+def test_rabi_frequency_uncertainty_covers_the_truth_68_percent_of_the_time(rabi_scan):
+    """Coverage: over seeded binomial redraws of the simulated curve (200 repetitions per point),
+    the true frequency lies within the fit's 1σ in about 68 % of them (a Gaussian 1σ interval)."""
+    _, t, bright = rabi_scan
+    rng = np.random.default_rng(12)
+    inside = []
+    for _ in range(100):
+        counts = rng.binomial(200, np.clip(bright, 0, 1))
+        fit = fit_counts("rabi", t, counts, np.full_like(counts, 200))
+        inside.append(abs(fit.values["frequency"] - 1.3) <= fit.errors["frequency"])
+    # 100 draws: the fraction's standard deviation is 0.047; allow about 2.5 of them.
+    assert 0.56 <= np.mean(inside) <= 0.80
+
+
+@pytest.mark.parametrize("model,truth,kw", [
+    ("ramsey", {"detuning": 0.8, "t2": 3.0, "contrast": 0.9, "offset": 0.05, "phase": 0.3}, {"envelope": "gaussian"}),
+    ("ramsey", {"detuning": 0.5, "t2": 2.0, "contrast": 0.95, "offset": 0.02, "phase": 0.0}, {"envelope": "exponential"}),
+    ("resonance", {"centre": 4.0, "fwhm": 12.0, "amplitude": 0.9, "offset": 0.03}, {}),
+    ("blockade", {"radius": 8.0, "near": 0.98, "far": 0.25}, {}),
+], ids=["ramsey-gaussian", "ramsey-exponential", "resonance", "blockade"])
+def test_curves_recover_their_parameters_within_four_sigma(model, truth, kw):
+    """Closed-form curves with binomial noise. Four σ, not three: with the Gaussian
+    approximation of binomial errors the pulls spread a little wider than 1 (sd ≈ 1.2 for the
+    blockade radius over 40 seeds)."""
+    from seqlang.fit import models
+    x = {"ramsey": np.linspace(0, 6, 60), "resonance": np.linspace(-40, 40, 49),
+         "blockade": np.geomspace(2, 20, 25)}[model]
+    fn = {"ramsey": getattr(models, f"ramsey_{kw.get('envelope', 'gaussian')}"), "resonance": models.resonance,
+          "blockade": models.blockade}[model]
+    counts = np.random.default_rng(3).binomial(400, fn(x, **truth))
+    fit = fit_counts(model, x, counts, np.full_like(counts, 400), **kw)
+    for name in truth:
+        if name != "phase":
+            assert abs(fit.values[name] - truth[name]) <= 4 * fit.errors[name], name
+
+
+def test_sqrt_n_exponent_is_one_half():
+    """Collective enhancement: Ω_N = √N·Ω (Gaëtan et al. 2009; Urban et al. 2009), here fitted to
+    the closed form with 1 % noise."""
+    n = np.arange(1, 7)
+    frequency = 1.3 * np.sqrt(n) * (1 + 0.01 * np.random.default_rng(4).standard_normal(n.size))
+    fit = fit_values("sqrt_n", n, frequency, 0.013 * np.sqrt(n))
+    assert abs(fit.values["exponent"] - 0.5) <= 3 * fit.errors["exponent"] and fit.errors["exponent"] < 0.02
+
+
+def test_measured_csv_problems_have_line_and_column(tmp_path):
+    path = tmp_path / "m.csv"
+    path.write_text("# a comment\nt [us],bright_b_a,repetitions\n0.1,3,100\n0.2,x,100\n0.3,12.5,100\n0.4,2\n")
+    with pytest.raises(SeqlangError) as info:
+        read_measured(str(path))
+    found = sorted((d.span.line, d.span.column, d.message) for d in info.value.diagnostics)
+    assert found == [(4, 5, "`x` is not a number (column `bright_b_a`)"),
+                     (5, 5, "`bright_b_a` takes whole numbers from 0, not 12.5"),
+                     (6, 1, "expected 3 values, found 2")]
+    path.write_text("t [us],bright_b_a,repetitions\n0.1,3,100\n0.3,120,100\n")
+    with pytest.raises(SeqlangError) as info:
+        read_measured(str(path))
+    assert [(d.span.line, d.span.column, d.message) for d in info.value.diagnostics] == [
+        (3, 5, "120 bright of 100 repetitions")]
+
+
+def test_measured_csv_needs_repetitions_and_known_units(tmp_path):
+    path = tmp_path / "m.csv"
+    path.write_text("t [parsec],bright_b_a\n0.1,3\n")
+    with pytest.raises(SeqlangError) as info:
+        read_measured(str(path))
+    messages = {d.message for d in info.value.diagnostics}
+    assert "unknown unit `parsec`" in messages
+    assert any("`repetitions` column is needed" in m for m in messages)
+
+
+def _cli(*args, cwd):
+    return subprocess.run([sys.executable, "-m", "seqlang", *args], cwd=cwd, capture_output=True, text=True,
+                          timeout=300)
+
+
+def test_fit_then_calibrate_the_rig(rabi_scan):
+    tmp, _, _ = rabi_scan
+    data = ROOT / "programs/measured/rydberg_rabi.csv"
+    fitted = _cli("fit", "out", "--data", str(data), "--model", "rabi", cwd=tmp)
+    assert fitted.returncode == 0, fitted.stderr
+    assert "chi2 against the simulation" in fitted.stdout and (tmp / "out/fit/bright_bright_a.png").exists()
+    # The invented measurement was drawn at 1.24 MHz (programs/measured/rydberg_rabi.csv).
+    dry = _cli("calibrate", "out/fit/fit.json", "--rig", "millpond.rig", "--drive", "ryd_na", cwd=tmp)
+    assert dry.returncode == 0, dry.stderr
+    assert "-    rabi 1.3 MHz" in dry.stdout and "not applied" in dry.stdout
+    before = (tmp / "millpond.rig").read_text()
+    wrote = _cli("calibrate", "out/fit/fit.json", "--rig", "millpond.rig", "--drive", "ryd_na", "--write", cwd=tmp)
+    assert wrote.returncode == 0, wrote.stderr
+    assert (tmp / "millpond.rig.orig").read_text() == before
+    after = seqlang.load(str(tmp / "rabi.seq")).program.rig.drives["ryd_na"].max_rabi_hz
+    assert after == pytest.approx(1.24e6, abs=3 * 8e3)
+    changed = [line for line in (tmp / "millpond.rig").read_text().splitlines() if line not in before.splitlines()]
+    assert len(changed) == 1 and changed[0].strip().startswith("rabi ")
+
+
+def test_fit_rejects_a_malformed_measurement_with_a_caret(rabi_scan, tmp_path):
+    tmp, _, _ = rabi_scan
+    bad = tmp_path / "bad.csv"
+    bad.write_text("t [us],bright_bright_a,repetitions\n0.1,-3,100\n")
+    result = _cli("fit", str(tmp / "out"), "--data", str(bad), cwd=tmp)
+    assert result.returncode == 1
+    assert "bad.csv:2:5: error: `bright_bright_a` takes whole numbers from 0, not -3" in result.stderr
+    assert "^^" in result.stderr and "Traceback" not in result.stderr
+
+
+def test_command_line_model_list_matches_the_models():
+    from seqlang.fit import commands, models
+    assert commands.MODELS == models.MODELS

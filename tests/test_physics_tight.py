@@ -40,7 +40,10 @@ rig tightbench {
 """
 ARC_C6_ARGS = (0.0, 0.0, 5, 25e9)  # θ = 0, φ = 0, n' within n ± 5, channels below 25 GHz
 GHZ_UM6_TO_HZ_M6 = 1e9 * 1e-36
-R_JAKSCH_M = 6.0e-6  # Na 58S – Cs 62S: |V| ≈ 9 MHz, V/Ω ≈ 9 for the 1 MHz Cs drive
+# Na 58S – Cs 62S at 7 µm: |V| ≈ 3.6 MHz, V/Ω ≈ 3.6 for the 1 MHz Cs drive. Closer, the pair's
+# Förster channel (δ ≈ +130 MHz) makes the project diagonalise the pair instead of using C6/R⁶
+# (docs/atomic-data.md); this test is about the C6 regime.
+R_JAKSCH_M = 7.0e-6
 R_LEVINE_M = 5.0e-6  # Na 58S – Na 58S: V ≈ 13 MHz, V/Ω ≈ 10
 
 # Levine et al., PRL 123, 170503 (2019) (docs/references.md): Δ/Ω, τΩ, phase jump ξ.
@@ -223,7 +226,7 @@ def test_reference_propagation_reproduces_two_pulse_cz_in_perfect_blockade(tmp_p
 
 @pytest.mark.parametrize("case", ["jaksch", "levine"])
 def test_finite_blockade_gate_matches_independent_propagation(tmp_path, case):
-    """The π–2π–π gate (Jaksch et al. 2000) at V/Ω ≈ 9 on a Cs–Na pair and the two-pulse CZ
+    """The π–2π–π gate (Jaksch et al. 2000) at V/Ω ≈ 3.6 on a Cs–Na pair and the two-pulse CZ
     (Levine et al. 2019) at V/Ω ≈ 10 on a Na pair, V = C6/R⁶ with C6 from arc: the simulator's
     final ket equals the independent propagation of the same played pulses to 1e-8."""
     if case == "jaksch":
@@ -235,7 +238,7 @@ def test_finite_blockade_gate_matches_independent_propagation(tmp_path, case):
     path = _write(tmp_path, sites, body)
     result = seqlang.simulate(path, truncate=False)
     v_hz = c6 / distance ** 6
-    assert 5e6 < abs(v_hz) < 2e7  # the stated geometry is in the finite-blockade regime
+    assert 2e6 < abs(v_hz) < 2e7  # the stated geometry is in the finite-blockade regime
     assert result.interactions_hz[names] == pytest.approx(v_hz, rel=1e-9, abs=0)
     reference, _ = reference_propagation(seqlang.load(path), names, {names: v_hz})
     simulated = simulated_ket3(result, names)

@@ -56,9 +56,18 @@ def compile_summary(checked: Checked) -> str:
         + (f"; {report.stretched} pulse(s) lengthened by one tick to stay under the drive maximum, "
            f"moving later events by up to {_f(report.max_stretch_shift_s, units.DURATION)}"
            if report.stretched else ""),
-    ] + ([f"{plan.holds} hold row(s) split gaps longer than the sequencer's duration counter "
+    ] + _latency_remainder_lines(plan) + ([f"{plan.holds} hold row(s) split gaps longer than the sequencer's duration counter "
           f"({2 ** checked.program.rig.counter_bits - 1:,} ticks = "
           f"{_f((2 ** checked.program.rig.counter_bits - 1) * plan.tick_s, units.DURATION)})"] if plan.holds else []))
+
+
+def _latency_remainder_lines(plan) -> list[str]:
+    """The latency left uncompensated by whole ticks, per output that has any (none: no line)."""
+    left = {p: r for p, r in plan.latency_remainder_s.items() if r}
+    if not left:
+        return []
+    parts = ", ".join(f"{p} {'+' if r > 0 else '−'}{_f(abs(r), units.DURATION)}" for p, r in sorted(left.items()))
+    return [f"latency remainders (events late by, not compensated): {parts}"]
 
 
 def _total_parts(checked: Checked) -> str:

@@ -163,7 +163,8 @@ def test_second_c6_call_does_not_touch_arc(monkeypatch):
 # ----------------------------------------------------------------- lifetimes
 # Beterov, Ryabtsev, Tretyakov & Entin, PRA 79, 052504 (2009), nS fits (coefficients
 # copied by hand: from memory). docs/references.md: ARC's sums differ from the fit by
-# up to ~10 % at 0 K and ~3 % at 300 K; tolerances 12 % (0 K) and 8 % (300 K).
+# up to ~10 % at 0 K and ~3 % at 300 K; tolerances 12 % (0 K) and 8 % (300 K). The
+# lifetimes against arc itself (1e-6) are in tests/test_physics_tight.py.
 BETEROV_NS = {
     "Rb87": (1.368e-9, 3.0008, 0.134, 0.251, 2.567, 4.426),
     "Cs133": (1.2926e-9, 3.0005, 0.123, 0.231, 2.517, 4.375),

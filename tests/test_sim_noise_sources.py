@@ -244,22 +244,11 @@ def _levine_time_in_rydberg(steps: int = 2000) -> float:
     return (2 * integral(1.0) + integral(math.sqrt(2))) / 4
 
 
-def test_two_pulse_cz_decay_error_is_gamma_times_time_in_rydberg():
-    """Error ≈ Γ·T_R, T_R·Ω ≈ 3.29 for the two-pulse gate of Levine et al., PRL 123, 170503 (2019),
-    averaged over the four inputs (docs/references.md, derived; the time-optimal gate of Jandura &
-    Pupillo, PRX Quantum 3, 010353 (2022) has 2.96). The demo's Bell state is an equal superposition
-    of the inputs, so the average applies."""
+def test_two_pulse_cz_time_in_rydberg_is_published_value():
+    """T_R·Ω ≈ 3.29 for the two-pulse gate of Levine et al., PRL 123, 170503 (2019), averaged over
+    the four inputs in perfect blockade (docs/references.md, derived). The simulated decay error
+    against Γ·T_R (to 1 %, finite blockade) is in tests/test_physics_tight.py."""
     assert _levine_time_in_rydberg() == pytest.approx(3.29, abs=0.02)
-    path = str(ROOT / "programs" / "cz_global.seq")
-    sequence = seqlang.load(path)
-    program = sequence.program
-    pulses = [e for e in sequence.played.events if e.kind == "pulse" and program.rig.drives[e.drive].kind == "rydberg"]
-    omega = 2 * math.pi * pulses[0].rabi_hz
-    sp = program.rig.species[program.rig.drives[pulses[0].drive].species]
-    gamma = 1 / rydberg.lifetime_s(sp.data, sp.rydberg, program.rig.environment_k).total_s
-    ideal = seqlang.simulate(path, noise=()).expectations[0]["fidelity"]
-    decaying = seqlang.simulate(path, noise=("decay",)).expectations[0]["fidelity"]
-    assert ideal - decaying == pytest.approx(gamma * 3.29 / omega, rel=0.15)
 
 
 # ---- 8. imaging and preparation ----------------------------------------------------------------

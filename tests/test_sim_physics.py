@@ -2,7 +2,8 @@
 
 Each test names its source. Interactions are set explicitly (`interactions_hz`)
 where a test needs a chosen blockade strength, so these tests do not depend on
-atomic data; tests/test_atoms_rydberg.py checks the C6 values themselves.
+atomic data; tests/test_atoms_rydberg.py checks the C6 values themselves, and
+tests/test_physics_tight.py carries the library's C6 through finite-blockade gates.
 """
 from __future__ import annotations
 

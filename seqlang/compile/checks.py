@@ -9,11 +9,11 @@ from collections import defaultdict
 import math
 
 from ..lang import units
-from ..lang.diagnostics import Diagnostic, error
+from ..lang.diagnostics import Diagnostic, error, warning
 from ..program.model import Program
 from .decisions import exclusive
 from . import envelopes
-from .timeline import IMAGE, PULSE, Event, Timeline
+from .timeline import IMAGE, PULSE, SWITCH, Event, Timeline
 
 # Events closer than this are touching, not overlapping (float rounding of sums).
 TOUCH_S = 1e-15
@@ -21,7 +21,29 @@ TOUCH_S = 1e-15
 
 def check_timeline(program: Program, timeline: Timeline) -> list[Diagnostic]:
     """Every timing conflict of the timeline, in source order."""
-    return _overlaps(timeline) + _pulses_during_imaging(timeline)
+    return _overlaps(timeline) + _pulses_during_imaging(timeline) + _rydberg_pulses_in_trap_light(program, timeline)
+
+
+def _rydberg_pulses_in_trap_light(program: Program, timeline: Timeline) -> list[Diagnostic]:
+    """Rydberg pulses that play while the traps are on, where the rig says the trap light shifts
+    the Rydberg level. The traps are on at the start (atoms are loaded in them) until a
+    `switch` on a port declared `role traps` turns them off."""
+    trap_ports = {q.name for q in program.rig.ports.values() if q.role == "traps"}
+    trap_ports |= {q.channel for q in program.rig.ports.values() if q.role == "traps"}
+    if not trap_ports:
+        return []
+    out, on = [], True
+    for event in sorted(timeline.events, key=lambda e: (e.start_s, e.kind != SWITCH, e.index)):
+        if event.kind == SWITCH and event.port in trap_ports:
+            on = event.value > 0.5
+        elif event.kind == PULSE and on and program.rig.drives[event.drive].kind == "rydberg":
+            shift = program.rig.species[event.species].extra.get("trap_rydberg_shift", 0.0)
+            if shift:
+                out.append(warning(
+                    f"Rydberg pulse on `{event.drive}` plays with the traps on: the trap light shifts the "
+                    f"Rydberg level of `{event.species}` by {units.format_quantity(shift, units.FREQUENCY)}",
+                    event.span, "switch the trap port off around the pulse"))
+    return out
 
 
 def _lane_key(event: Event) -> tuple[str, str]:

@@ -10,12 +10,18 @@ The sequencer counts the time from one row to the next with its duration
 counter (``counter_bits``). Where two rows are further apart than the counter
 holds (a long wait), ``hold`` rows on the pseudo-output ``sequencer`` split
 the gap into counter-sized pieces; the compile report says how many.
+
+Latencies are compensated in whole ticks (rounded half to even), so each output
+keeps a remainder: its events happen ``latency − ticks·tick`` after the written
+time. The plan reports that remainder per output and warns above a quarter of a
+tick (``LATENCY_REMAINDER_WARN``).
 """
 from __future__ import annotations
 
 from collections import defaultdict
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 
+from ..lang.diagnostics import Diagnostic, Span, warning
 from ..program.model import Program
 from .quantize import QuantizeReport
 from . import motion
@@ -23,6 +29,10 @@ from .timeline import FIELD, IMAGE, MOVE, PULSE, SET, Event, Timeline, evolve
 
 GATE = "gate"
 HOLD, SEQUENCER = "hold", "sequencer"
+# Rounding keeps every remainder within half a tick, but two outputs' remainders can
+# add up. With each at most a quarter tick, the offset between any two outputs stays
+# within half a tick: no worse than rounding one event start to the grid.
+LATENCY_REMAINDER_WARN = 0.25  # of a tick
 
 
 @dataclass(frozen=True)
@@ -57,6 +67,9 @@ class HardwarePlan:
     report: QuantizeReport
     latency_ticks: dict[str, int]
     holds: int = 0  # hold rows inserted where a gap is longer than the duration counter
+    # Per output: declared latency minus the compensated whole ticks, in seconds; the
+    # output's events happen this much after their written time (negative: before).
+    latency_remainder_s: dict[str, float] = field(default_factory=dict)
 
     @property
     def shift_s(self) -> float:
@@ -88,25 +101,63 @@ def plan(program: Program, timeline: Timeline, report: QuantizeReport) -> Hardwa
         ports[entry.port].append(entry)
     ordered = {p: tuple(sorted(es, key=lambda e: (e.tick, e.kind, e.event))) for p, es in sorted(ports.items())}
     shifted = _shift_timeline(timeline, shift * tick)
-    return HardwarePlan(tick, shift, ordered, shifted, report, latencies, len(holds))
+    return HardwarePlan(tick, shift, ordered, shifted, report, latencies, len(holds),
+                        latency_remainder_s=latency_remainders(program))
 
 
 def _ticks(seconds: float, tick: float) -> int:
     return round(seconds / tick)
 
 
+def _declared_latencies(program: Program) -> dict[str, tuple[float, Span | None]]:
+    """Declared latency (s) of every output the rig names, and the declaration it comes from."""
+    rig = program.rig
+    out: dict[str, tuple[float, Span | None]] = {}
+    for port in rig.ports.values():
+        out[port.channel] = (port.latency_s, port.span)
+    for drive in rig.drives.values():
+        out[drive.port] = (drive.latency_s, drive.span)
+        if drive.gate is not None:
+            out.setdefault(drive.gate, (0.0, None))
+    for imaging in rig.imaging.values():
+        out[imaging.port] = (imaging.latency_s, imaging.span)
+    return out
+
+
 def _latencies(program: Program) -> dict[str, int]:
     """Latency in ticks of every output the rig names."""
-    rig, tick = program.rig, program.rig.tick_s
-    out: dict[str, int] = {}
-    for port in rig.ports.values():
-        out[port.channel] = _ticks(port.latency_s, tick)
-    for drive in rig.drives.values():
-        out[drive.port] = _ticks(drive.latency_s, tick)
-        if drive.gate is not None:
-            out.setdefault(drive.gate, 0)
-    for imaging in rig.imaging.values():
-        out[imaging.port] = _ticks(imaging.latency_s, tick)
+    tick = program.rig.tick_s
+    return {port: _ticks(seconds, tick) for port, (seconds, _) in _declared_latencies(program).items()}
+
+
+def latency_remainders(program: Program) -> dict[str, float]:
+    """Per output, the part of its latency that whole ticks do not compensate (s).
+
+    >>> # latency 1 ns at a 2 ns tick: 0 ticks compensated, remainder 1 ns  # doctest: +SKIP
+    """
+    tick = program.rig.tick_s
+    out = {}
+    for port, (seconds, _) in sorted(_declared_latencies(program).items()):
+        remainder = seconds - _ticks(seconds, tick) * tick
+        out[port] = 0.0 if abs(remainder) < 1e-9 * tick else remainder  # float dust of exact multiples
+    return out
+
+
+def latency_warnings(program: Program) -> list[Diagnostic]:
+    """A warning for each output whose uncompensated latency exceeds LATENCY_REMAINDER_WARN of a tick."""
+    tick = program.rig.tick_s
+    declared = _declared_latencies(program)
+    out = []
+    for port, remainder in latency_remainders(program).items():
+        span = declared[port][1]
+        if span is None or abs(remainder) <= LATENCY_REMAINDER_WARN * tick:
+            continue
+        late = "late" if remainder > 0 else "early"
+        out.append(warning(
+            f"latency of output {port} ({declared[port][0] * 1e9:g} ns) is not a whole number of "
+            f"{tick * 1e9:g} ns ticks: its events happen {abs(remainder) * 1e9:.3g} ns {late} "
+            f"({abs(remainder) / tick:.2f} of a tick; warned above {LATENCY_REMAINDER_WARN:g})",
+            span, "declare the latency as a multiple of the tick, or trim the delay in the hardware"))
     return out
 
 

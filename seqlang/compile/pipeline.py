@@ -14,7 +14,7 @@ from ..program.resolve import resolve
 from .checks import check_timeline, check_waveforms
 from .decisions import check_decisions
 from .geometry import check_geometry
-from .hardware import HardwarePlan, plan
+from .hardware import HardwarePlan, latency_warnings, plan
 from .lower import lower
 from .quantize import quantize
 from .timeline import Timeline
@@ -55,4 +55,4 @@ def check_program(program: Program, diags: list[Diagnostic]) -> Checked:
     if any(d.severity == ERROR for d in diags):
         raise SeqlangError(diags)
     hardware = plan(program, quantized, report)
-    return Checked(program, timeline, hardware.timeline, hardware, tuple(diags))
+    return Checked(program, timeline, hardware.timeline, hardware, tuple(diags + latency_warnings(program)))

@@ -160,6 +160,8 @@ def timing_json(checked: Checked) -> str:
         "shift_ns": _num(plan.shift_s * 1e9),
         "duration_ns": _num(checked.quantized.duration_s * 1e9),
         "latency_ticks": dict(sorted(plan.latency_ticks.items())),
+        # Part of each latency that whole ticks do not compensate: events happen this much late.
+        "latency_remainder_ns": {port: _num(r * 1e9) for port, r in sorted(plan.latency_remainder_s.items())},
         "report": {
             "max_area_error_rad": _num(report.max_area_error_rad),
             "max_timing_error_ns": _num(report.max_timing_error_s * 1e9),

@@ -93,6 +93,7 @@ class Port:
     # "deflector"): axis, scale (Hz/m), center (Hz), sample_rate (Hz), steers (species),
     # max_velocity (m/s), max_acceleration (m/s²).
     extra: Mapping[str, object] = field(default_factory=dict)
+    role: str = "plain"  # "traps": switches the tweezer light
 
 
 @dataclass(frozen=True)

@@ -68,6 +68,8 @@ SPECIES_KEYS = {
     "field_noise_freq": p.Key(p.non_negative(p.frequency), 0.0),
     "resonant_with": p.Key(lambda e, s: e, None, doc="a species whose pair with this one is modelled as C3/R^3"),
     "field_sensitivity": p.Key(p.quantity(_PER_FIELD), 0.0),
+    # Light shift of the Rydberg level by the trap light while the traps are on.
+    "trap_rydberg_shift": p.Key(p.frequency, 0.0),
 }
 
 _COMMON_DRIVE_KEYS = {
@@ -134,6 +136,8 @@ PORT_KEYS = {
     "steers": p.Key(lambda e, s: e, None, doc="the species whose tweezers it steers"),
     "max_velocity": p.Key(p.positive(p.quantity(VELOCITY), "maximum velocity"), None),
     "max_acceleration": p.Key(p.positive(p.quantity(ACCELERATION), "maximum acceleration"), None),
+    # `role traps`: this digital line switches the tweezer light (on = traps on).
+    "role": p.Key(p.choice("plain", "traps"), "plain"),
 }
 PORT_KINDS = ("digital", "analog", "deflector")
 DEFLECTOR_REQUIRED = ("axis", "scale", "center", "sample_rate")
@@ -311,9 +315,12 @@ def _port(decl: ast.PortDecl, scope: Scope, diags: list[Diagnostic]) -> Port:
     value_range = v["range"]
     if value_range is not None and v["kind"] == "digital":
         diags.append(error("a digital port has no value range", v["__spans__"]["range"], "add `kind analog`"))
+    if v["role"] == "traps" and v["kind"] != "digital":
+        diags.append(error("the trap switch must be a digital port", v["__spans__"]["role"], "add `kind digital`"))
     bounds = (value_range[0], value_range[1]) if value_range else None
     return Port(decl.name.name, decl.channel.text, v["kind"], v["latency"], v["width"], bounds,
-                value_range[2] if value_range else None, decl.span, _port_extra(decl, v, diags))
+                value_range[2] if value_range else None, decl.span, _port_extra(decl, v, diags),
+                role=v["role"])
 
 
 def _port_extra(decl: ast.PortDecl, v: dict, diags: list[Diagnostic]) -> dict:

@@ -33,11 +33,11 @@ def _program(tmp_path, body, sites, expect, tick="1 ns") -> str:
 
 
 def _crowd(tmp_path, atoms: int) -> tuple[str, dict]:
-    """`atoms` atoms on a ring of radius 3 µm (neighbours above the 1 µm minimum spacing):
+    """`atoms` atoms on a ring of radius 5 µm (neighbours beyond the Le Roy radius):
     all within one blockade radius."""
     names = [f"s{k}" for k in range(atoms)]
-    sites = "\n".join(f"site {n} = a at ({3 * math.cos(2 * math.pi * k / atoms):.6f}, "
-                      f"{3 * math.sin(2 * math.pi * k / atoms):.6f}) um" for k, n in enumerate(names))
+    sites = "\n".join(f"site {n} = a at ({5 * math.cos(2 * math.pi * k / atoms):.6f}, "
+                      f"{5 * math.sin(2 * math.pi * k / atoms):.6f}) um" for k, n in enumerate(names))
     interactions = {(a, b): 5e8 for i, a in enumerate(names) for b in names[i + 1:]}
     body = "pulse mw_a area pi\npulse ryd_a on " + ", ".join(names) + " area pi"
     return _program(tmp_path, body, sites, f"expect {', '.join(names[:2])} as |11>"), interactions

@@ -323,13 +323,21 @@ def pair_shift(species_a, level_a, species_b, level_b, distance_m: float, theta_
                   le_roy_radius_m=le_roy_radius_m(p.a, p.la, p.b, p.lb), crossover_radius_m=crossover,
                   c6_hz_m6=c6, c3_hz_m3=c3, near_forster=abs(defect) < rydberg.FORSTER_THRESHOLD_HZ)
     if resonant:
-        return PairShift(math.copysign(c3, c6) / distance_m**3, "resonant", 0.5, **common)
+        return PairShift(math.copysign(c3, c6) / _power(distance_m, 3), "resonant", 0.5, **common)
     if distance_m >= VALIDITY_FACTOR * crossover or distance_m > GRID_MAX_M:
         overlap = 1 - min(1.0, crossover / distance_m) ** 6
-        return PairShift(c6 / max(distance_m, 1e-12) ** 6, "perturbative", overlap, **common)
+        return PairShift(c6 / _power(distance_m, 6), "perturbative", overlap, **common)
     table = diagonalised_table(p.a, p.la, p.b, p.lb, theta_rad, field_v_m)
     value, overlap = _interpolate(table, distance_m)
     return PairShift(value, "diagonalised", overlap, **common)
+
+
+def _power(distance_m: float, exponent: int) -> float:
+    """R^k for the C3/C6 laws, kept finite and non-zero whatever distance a program states."""
+    try:
+        return max(distance_m, 1e-12) ** exponent
+    except OverflowError:  # beyond ~1e51 m: no interaction at all
+        return math.inf
 
 
 def angle_to_axis(a_m, b_m, axis) -> float:

@@ -114,7 +114,6 @@ def test_stark_shift_moves_the_rydberg_resonance_in_the_simulator(tmp_path):
 DEMO = os.path.join(ROOT, "programs")
 
 
-@pytest.mark.slow
 def test_demo_rig_pair_gets_a_warning_from_check():
     """The demo Na 58S + Cs 62S pair at 4 µm lies inside twice its crossover radius: `check`
     says so (the perturbative C6 gives −102 MHz, the diagonalised potential −63 MHz)."""
@@ -122,7 +121,6 @@ def test_demo_rig_pair_gets_a_warning_from_check():
     assert any("crossover radius" in w.message and "diagonalised" in w.message for w in warnings)
 
 
-@pytest.mark.slow
 def test_forster_demo_warns_and_reports_the_model_per_pair():
     sequence = seqlang.load(os.path.join(DEMO, "forster_gate.seq"))
     assert any("Förster resonance at 10.2 V/m" in w.message for w in sequence.warnings)
@@ -133,7 +131,6 @@ def test_forster_demo_warns_and_reports_the_model_per_pair():
     assert document["expectations"][0]["fidelity"] > 0.99
 
 
-@pytest.mark.slow
 def test_interactions_after_a_move_use_the_new_distance():
     document = as_document(seqlang.simulate(os.path.join(DEMO, "move_then_gate.seq")))
     assert document["interactions"]["d-h"]["distance_um"] == pytest.approx(4.0)
@@ -143,7 +140,10 @@ def test_interactions_after_a_move_use_the_new_distance():
 @pytest.mark.slow
 @pytest.mark.parametrize("distance", [8, 12])
 def test_partial_blockade_warns_with_ratio_and_radius(tmp_path, distance):
-    seq = (f'use "{DEMO}/millpond.rig"\nsite d = na at (0, 0) um\nsite h = cs at ({distance}, 0) um\n'
+    import shutil
+    shutil.copy(f"{DEMO}/millpond.rig", tmp_path / "millpond.rig")  # includes stay in the program's folder
+    seq = ('use "millpond.rig"\nsite d = na at (0, 0) um\n'
+           f"site h = cs at ({distance}, 0) um\n"
            "sequence s {\n  pulse ryd_cs on h area pi\n  pulse ryd_na area 2pi\n  pulse ryd_cs on h area pi\n}\n")
     path = tmp_path / "pair.seq"
     path.write_text(seq)
@@ -152,7 +152,6 @@ def test_partial_blockade_warns_with_ratio_and_radius(tmp_path, distance):
                for w in warnings), warnings
 
 
-@pytest.mark.slow
 def test_show_lists_the_pair_model_and_the_defects_at_the_field():
     run = subprocess.run([sys.executable, "-m", "seqlang", "show", os.path.join(DEMO, "forster_gate.seq")],
                          capture_output=True, text=True, env={**os.environ, "PYTHONPATH": ROOT})

@@ -75,7 +75,6 @@ def test_pool_and_dask_give_the_serial_store(serial, tmp_path):
     xr.testing.assert_identical(dask, expected)
 
 
-@pytest.mark.slow
 def test_an_existing_dask_cluster_by_address(serial, tmp_path):
     from distributed import LocalCluster
     path, expected = serial
@@ -117,7 +116,6 @@ def test_existing_store_needs_resume_and_the_same_options(tmp_path):
     assert "Traceback" not in again.stderr + other.stderr
 
 
-@pytest.mark.slow
 def test_kill_9_then_resume_equals_an_uninterrupted_scan(tmp_path):
     path = _program(tmp_path, n=10)
     args = [sys.executable, "-m", "seqlang", "scan", path, "--simulate", "--noise", "intensity", "--shots", "40",

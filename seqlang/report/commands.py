@@ -18,15 +18,9 @@ def register(sub) -> None:
 
 
 def cmd_report(args) -> int:
-    from ..cli import UsageError, _load
-    from ..sim.noise import parse_sources
+    from ..cli import UsageError, _load, _plot_simulation_options
     from .build import write_report
-    try:
-        sources = parse_sources(args.noise)
-    except ValueError as exc:
-        raise UsageError(str(exc)) from None
-    if args.shots < 1:
-        raise UsageError("--shots must be at least 1")
+    sources = _plot_simulation_options(args)["noise"]  # the same checks of --noise and --shots as `plot`
     sequence = _load(args.file)
     try:
         write_report(sequence, args.output, noise=sources, shots=args.shots, seed=args.seed,

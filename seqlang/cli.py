@@ -201,6 +201,11 @@ def build_parser() -> argparse.ArgumentParser:
     parser.add_argument("--rig-dir", action="append", default=[], metavar="DIR",
                         help="a further directory that `use` and `import` may read from (repeatable; "
                              "also $SEQLANG_RIG_PATH)")
+    parser.add_argument("--load-seed", type=int, default=1, metavar="N",
+                        help="seed of the drawn occupancy of traps that load with a probability (default 1; "
+                             "docs/arrays.md)")
+    parser.add_argument("--occupancy", metavar="FILE",
+                        help="the loaded traps of this shot, one site name per line, instead of a draw")
     sub = parser.add_subparsers(dest="command", metavar="command")
     sub.required = True
 
@@ -258,6 +263,7 @@ def main(argv: list[str] | None = None) -> int:
     args = parser.parse_args(argv)
     _add_rig_dirs(args.rig_dir)
     try:
+        _set_occupancy(args)
         return args.run(args)
     except SeqlangError as exc:
         _print_errors(exc)
@@ -284,6 +290,22 @@ def _print_errors(exc: SeqlangError) -> None:
     print(render_all(exc.diagnostics), file=sys.stderr)
     errors = sum(d.is_error for d in exc.diagnostics)
     print(f"{errors} error{'s' if errors != 1 else ''}", file=sys.stderr)
+
+
+def _set_occupancy(args) -> None:
+    """`--load-seed` / `--occupancy`: which traps loaded, for every command of this run."""
+    from .arrays.loading import Occupancy
+    from .arrays.stage import OCCUPANCY
+    if args.occupancy is None:
+        OCCUPANCY.set(Occupancy(seed=args.load_seed))
+        return
+    try:
+        with open(args.occupancy, encoding="utf-8") as handle:
+            text = handle.read()
+    except (OSError, UnicodeDecodeError) as exc:
+        raise UsageError(f"cannot read the occupancy {args.occupancy}: {exc}") from None
+    names = frozenset(n for n in (line.split("#", 1)[0].strip() for line in text.splitlines()) if n)
+    OCCUPANCY.set(Occupancy(seed=args.load_seed, given=names, source=args.occupancy, text=text))
 
 
 def _add_rig_dirs(dirs: list[str]) -> None:

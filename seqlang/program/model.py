@@ -289,6 +289,17 @@ class MoveOp:
 
 
 @dataclass(frozen=True)
+class FillOp:
+    """``fill``: move loaded atoms of `sources` onto every site of `targets` (planned once the
+    occupancy is known, by seqlang.arrays.stage); `strategy` names the collision avoidance."""
+
+    targets: tuple[str, ...]
+    sources: tuple[str, ...]
+    strategy: str
+    span: Span
+
+
+@dataclass(frozen=True)
 class BranchOp:
     """``when``: `then` plays for the keys where `decision.enabled`, `otherwise` for the rest;
     both start together and last as long as the longer one (the shorter is padded)."""
@@ -299,7 +310,7 @@ class BranchOp:
     span: Span
 
 
-Op = Union[PulseOp, WaitOp, ImageOp, PortOp, SerialOp, TogetherOp, RepeatOp, BranchOp, FieldOp, MoveOp]
+Op = Union[PulseOp, WaitOp, ImageOp, PortOp, SerialOp, TogetherOp, RepeatOp, BranchOp, FieldOp, MoveOp, FillOp]
 
 
 @dataclass(frozen=True)

@@ -14,7 +14,8 @@ from . import __version__
 from .lang.diagnostics import SeqlangError, render, render_all, sort_diagnostics
 
 EXIT_OK, EXIT_ERRORS, EXIT_USAGE = 0, 1, 2
-EXIT_INTERNAL = 70  # EX_SOFTWARE of the BSD sysexits convention
+EXIT_INTERNAL = 70
+MAX_PAIR_TABLE_SITES = 24  # `show` lists every pair up to this many sites  # EX_SOFTWARE of the BSD sysexits convention
 
 
 class UsageError(Exception):
@@ -129,7 +130,18 @@ def cmd_show(args) -> int:
     crosstalk = crosstalk_summary(sequence.program, sequence.played)
     if crosstalk:
         print("\nimaging crosstalk (far-detuned scattering, Grimm et al. 2000):\n" + "\n".join(crosstalk))
-    if not args.no_pairs and len(sequence.program.sites) > 1:
+    from .arrays.summary import layout_lines, occupancy_lines
+    arrays = layout_lines(sequence.program) + occupancy_lines(sequence.program)
+    if arrays:
+        print("\narrays (docs/arrays.md):\n" + "\n".join(arrays))
+    if not args.no_pairs and len(sequence.program.sites) > MAX_PAIR_TABLE_SITES:
+        print(f"\nRydberg pairs: {len(sequence.program.sites)} sites; the table of every pair is printed for "
+              f"at most {MAX_PAIR_TABLE_SITES} (the pair models used at the pulses follow)")
+        models = pair_models_table(sequence.program, sequence.played)
+        if models:
+            print("\nPair models used at the Rydberg pulses (seqlang.atoms.pairs):")
+            print(models)
+    elif not args.no_pairs and len(sequence.program.sites) > 1:
         table = pair_table(sequence.program)
         if table:
             print("\nRydberg pairs (van der Waals, C6 from the alkali Rydberg calculator):")

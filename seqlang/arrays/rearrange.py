@@ -59,6 +59,7 @@ class FillPlan:
     spare: tuple[str, ...]  # loaded atoms left where they are
     duration_s: float
     expected_filling: float
+    strategy: str = "corridors"
 
 
 def assign(sources: np.ndarray, targets: np.ndarray) -> list[tuple[int, int]]:

@@ -134,7 +134,7 @@ def _plan(program: Program, fill: FillOp, species: str, full: set[str], occupanc
     used = {s for s, t in pairs}
     filling = (len(kept) + sum(c.survival for c in made)) / len(targets)
     return rearrange.FillPlan(species, tuple(targets), kept, made, tuple(n for n in pool if n not in used),
-                              sum(leg[2] for c in made for leg in c.legs), filling)
+                              sum(leg[2] for c in made for leg in c.legs), filling, fill.strategy)
 
 
 def _limits(program: Program, species: str, fill: FillOp, diags):

@@ -35,10 +35,12 @@ def probabilities(program: Program) -> dict[str, float]:
     return {name: float(sp.extra.get("loading", 1.0)) for name, sp in program.rig.species.items()}
 
 
-def draw(program: Program, seed: int, shots: int = 1) -> np.ndarray:
-    """Loaded (True) per shot and site, sites in program order: shape (shots, sites)."""
+def draw(program: Program, seed: int, shots: int = 1, traps=None) -> np.ndarray:
+    """Loaded (True) per shot and trap, traps in program order: shape (shots, traps).
+
+    Shot 0 is the occupancy that `check`, `compile` and `simulate` use for this seed."""
     p = probabilities(program)
-    chance = np.array([p[s.species] for s in program.sites.values()])
+    chance = np.array([p[s.species] for s in (traps or program.sites).values()])
     rng = np.random.default_rng(seed)
     return rng.random((shots, len(chance))) < chance
 
@@ -68,11 +70,13 @@ def read_pattern(path: str, text: str, program: Program) -> tuple[frozenset, lis
     return frozenset(names), diags
 
 
-def statistics(program: Program, seed: int, shots: int) -> dict:
-    """Loaded counts per species over `shots` seeded draws, beside the binomial expectation."""
-    table = draw(program, seed, shots)
+def statistics(program: Program, seed: int, shots: int, traps=None, plans=()) -> dict:
+    """Loaded counts per species over `shots` seeded draws, beside the binomial expectation,
+    and for each fill the fraction of shots that load enough atoms for it."""
+    traps = traps or program.sites
+    table = draw(program, seed, shots, traps)
     p = probabilities(program)
-    species = np.array([s.species for s in program.sites.values()])
+    species = np.array([s.species for s in traps.values()])
     out = {}
     for name in sorted(set(species.tolist())):
         counts = table[:, species == name].sum(axis=1)
@@ -80,4 +84,8 @@ def statistics(program: Program, seed: int, shots: int) -> dict:
         out[name] = {"sites": n, "probability": q, "mean_loaded": float(counts.mean()),
                      "std_loaded": float(counts.std(ddof=1)) if shots > 1 else 0.0,
                      "binomial_mean": n * q, "binomial_std": float(np.sqrt(n * q * (1 - q)))}
-    return {"shots": shots, "seed": seed, "species": out}
+    names = list(traps)
+    fills = [{"species": plan.species, "targets": len(plan.targets),
+              "enough_atoms": float((table[:, [names.index(n) for n in plan.pool]].sum(axis=1)
+                                     >= len(plan.targets)).mean())} for plan in plans]
+    return {"shots": shots, "seed": seed, "species": out, "fills": fills}

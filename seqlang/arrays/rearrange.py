@@ -60,6 +60,7 @@ class FillPlan:
     duration_s: float
     expected_filling: float
     strategy: str = "corridors"
+    pool: tuple[str, ...] = ()  # every trap of the species it may take atoms from
 
 
 def assign(sources: np.ndarray, targets: np.ndarray) -> list[tuple[int, int]]:

@@ -113,7 +113,8 @@ def _placement(body: SerialOp) -> list[Diagnostic]:
 
 def _plan(program: Program, fill: FillOp, species: str, full: set[str], occupancy: Occupancy, diags) -> rearrange.FillPlan | None:
     targets = [t for t in fill.targets if program.sites[t].species == species]
-    pool = [s for s in dict.fromkeys(fill.sources + fill.targets) if program.sites[s].species == species and s in full]
+    traps = tuple(s for s in dict.fromkeys(fill.sources + fill.targets) if program.sites[s].species == species)
+    pool = [s for s in traps if s in full]
     if len(pool) < len(targets):
         diags.append(error(f"only {len(pool)} {species} atoms loaded for {len(targets)} target sites "
                            f"(occupancy {occupancy.describe()})", fill.span,
@@ -134,7 +135,7 @@ def _plan(program: Program, fill: FillOp, species: str, full: set[str], occupanc
     used = {s for s, t in pairs}
     filling = (len(kept) + sum(c.survival for c in made)) / len(targets)
     return rearrange.FillPlan(species, tuple(targets), kept, made, tuple(n for n in pool if n not in used),
-                              sum(leg[2] for c in made for leg in c.legs), filling, fill.strategy)
+                              sum(leg[2] for c in made for leg in c.legs), filling, fill.strategy, traps)
 
 
 def _limits(program: Program, species: str, fill: FillOp, diags):

@@ -284,13 +284,6 @@ class SequenceResolver(FeedForwardMixin):
         if kinds:
             raise EvalError(error(f"the sources hold {', '.join(sorted(kinds))} atoms, which no target site "
                                   "holds", stmt.sources[0].span, "fill each species from its own sites"))
-        pool = set(sources) | set(targets)
-        for species in sorted({self.sites[t].species for t in targets}):
-            wanted = sum(self.sites[t].species == species for t in targets)
-            have = sum(self.sites[n].species == species for n in pool)
-            if have < wanted:
-                raise EvalError(error(f"{wanted} {species} target sites, but only {have} {species} sites to "
-                                      "fill them from", stmt.span, "add sources after `from`, or fill fewer sites"))
         return FillOp(targets, sources, v["strategy"], stmt.span)
 
     def _names_of(self, idents, scope: Scope) -> tuple[str, ...]:

@@ -62,7 +62,8 @@ def _skipped(program: Program, exc: Exception) -> Diagnostic:
 
 def _static_spacing(program: Program) -> list[Diagnostic]:
     limit, out = program.rig.min_spacing_m, []
-    for a, b in itertools.combinations(program.sites.values(), 2):
+    sites = list(program.sites.values())
+    for a, b in _close_pairs(sites, limit):
         distance = math.dist(a.position_m, b.position_m)
         if 0 < distance < limit:
             out.append(error(f"sites `{a.name}` and `{b.name}` are {_um(distance)} apart, closer than the rig's "
@@ -70,10 +71,25 @@ def _static_spacing(program: Program) -> list[Diagnostic]:
     return out
 
 
+def _close_pairs(sites, limit: float):
+    """Pairs of sites (in declaration order) within `limit`: a k-d tree for large arrays."""
+    if len(sites) <= NEAR_PAIRS_ABOVE:
+        return itertools.combinations(sites, 2)
+    from scipy.spatial import cKDTree
+    tree = cKDTree([s.position_m for s in sites])
+    return [(sites[i], sites[j]) for i, j in sorted(tree.query_pairs(limit))]
+
+
 def _move_checks(program: Program, timeline: Timeline) -> list[Diagnostic]:
     out = []
-    for move in motion.moves(timeline):
-        out += _deflectors_and_limits(program, move) + _closest_approach(program, timeline, move)
+    limit = program.rig.min_spacing_m
+    close = motion.closest_approaches(program, timeline, limit, APPROACH_SAMPLES)
+    for k, move in enumerate(motion.moves(timeline)):
+        out += _deflectors_and_limits(program, move)
+        if k in close:
+            a, b, distance = close[k]
+            out.append(error(f"this move brings `{a}` within {_um(distance)} of `{b}`, closer than the "
+                             f"minimum spacing {_um(limit)}", move.span))
     return out
 
 
@@ -102,19 +118,6 @@ def _limit(port, key: str, value: float, unit: str, move: Event) -> list[Diagnos
     what = key.replace("max_", "peak ")
     return [error(f"{what} {value:.4g} {unit} of this move is above the {limit:.4g} {unit} of deflector "
                   f"`{port.name}`", move.span, "lengthen the move")]
-
-
-def _closest_approach(program: Program, timeline: Timeline, move: Event) -> list[Diagnostic]:
-    limit = program.rig.min_spacing_m
-    for k in range(APPROACH_SAMPLES + 1):
-        where = motion.positions_at(program, timeline, move.start_s + move.duration_s * k / APPROACH_SAMPLES)
-        for a in move.targets:
-            for b, pos in where.items():
-                distance = math.dist(where[a], pos)
-                if b != a and distance < limit:
-                    return [error(f"this move brings `{a}` within {_um(distance)} of `{b}`, closer than the "
-                                  f"minimum spacing {_um(limit)}", move.span)]
-    return []
 
 
 def _rydberg_pulses(program: Program, timeline: Timeline) -> list[Event]:

@@ -260,3 +260,33 @@ def test_fill_needs_deflector_limits(tmp_path):
     with pytest.raises(SeqlangError) as info:
         _fill(tmp_path, rig_edit=unlimited)
     assert "declare no `max_velocity` or `max_acceleration`" in info.value.diagnostics[0].message
+
+
+# ---------------------------------------------------------------- front end and figures
+def test_an_index_keeps_the_span_of_what_was_written(tmp_path):
+    from seqlang.lang import syntax as ast
+    from seqlang.lang.parser import parse_text
+    source = parse_text("group g = d[1 .. 2, *], q\n", "x.seq")
+    ref = source.items[0].members[0]
+    assert isinstance(ref, ast.Indexed) and ref.indices[1] is None
+    assert (ref.span.line, ref.span.column, ref.span.end_column) == (1, 11, 23)
+    assert [m.name for m in source.items[0].members[1:]] == ["q"]
+
+
+def test_show_and_the_array_figure_draw_the_demo(tmp_path):
+    demo = ROOT / "programs" / "array_rearrange.seq"
+    shown = subprocess.run([sys.executable, "-m", "seqlang", "show", str(demo), "--no-pairs"],
+                           capture_output=True, text=True, timeout=120)
+    assert shown.returncode == 0, shown.stderr
+    assert "lattice d: square 15 x 15, 225 sites (cs 105, na 120); nearest neighbours 4.5 um, up to 4" in shown.stdout
+    assert "fill cs: 18 target sites" in shown.stdout
+    from seqlang.plot.array import draw
+    figure = draw(load(str(demo)).program, {}, None)
+    labels = figure.axes[0].get_legend_handles_labels()[1]
+    assert {"empty trap", "fill path", "na", "cs"} <= set(labels)
+    png = tmp_path / "array.png"
+    run = subprocess.run([sys.executable, "-m", "seqlang", "plot", str(demo), "--what", "array", "-o", str(png)],
+                         capture_output=True, text=True, timeout=120)
+    assert run.returncode == 0, run.stderr
+    from matplotlib.image import imread
+    assert imread(png).std() > 0.01  # not blank

@@ -20,8 +20,6 @@ from __future__ import annotations
 import math
 from dataclasses import dataclass
 
-import numpy as np
-
 KINDS = ("square", "rectangular", "triangular", "hexagonal")
 PATTERNS = ("uniform", "checkerboard", "rows", "columns", "sublattice")
 MAX_SITES = 100_000  # per lattice: far above any tweezer array, far below memory trouble
@@ -50,6 +48,7 @@ def cell(kind: str, pitch: tuple[float, float]) -> Cell:
 
 def indices(kind: str, size: tuple[int, int]) -> np.ndarray:
     """Every site's index (i, j) or (i, j, k), j slowest: shape (N, 2) or (N, 3)."""
+    import numpy as np
     n1, n2 = size
     j, i = np.divmod(np.arange(n1 * n2), n1)
     if kind != "hexagonal":
@@ -60,6 +59,7 @@ def indices(kind: str, size: tuple[int, int]) -> np.ndarray:
 
 def local_positions(kind: str, pitch: tuple[float, float], index: np.ndarray) -> np.ndarray:
     """Positions (N, 2) in the lattice frame, before rotation and origin."""
+    import numpy as np
     c = cell(kind, pitch)
     i, j = index[:, 0].astype(float), index[:, 1].astype(float)
     x = i * c.step[0] + (index[:, 1] % 2) * c.row_shift
@@ -72,6 +72,7 @@ def local_positions(kind: str, pitch: tuple[float, float], index: np.ndarray) ->
 
 def place(local: np.ndarray, origin: tuple[float, float, float], rotation: float) -> np.ndarray:
     """Lattice-frame positions rotated by `rotation` (rad) and shifted by `origin`: (N, 3)."""
+    import numpy as np
     c, s = math.cos(rotation), math.sin(rotation)
     x = c * local[:, 0] - s * local[:, 1] + origin[0]
     y = s * local[:, 0] + c * local[:, 1] + origin[1]
@@ -85,6 +86,7 @@ def species_pattern(pattern: str, index: np.ndarray) -> np.ndarray:
     columns i; `sublattice`: the honeycomb's B sites, or in the other kinds the
     sites with i and j both even (a sub-lattice of twice the pitch). `uniform`: all 0.
     """
+    import numpy as np
     i, j = index[:, 0], index[:, 1]
     if pattern == "checkerboard":
         return (i + j) % 2

@@ -11,8 +11,6 @@ from __future__ import annotations
 
 from dataclasses import dataclass
 
-import numpy as np
-
 from ..lang.diagnostics import SOURCES, Diagnostic, Span, did_you_mean, error
 from ..program.model import Program
 
@@ -39,6 +37,7 @@ def draw(program: Program, seed: int, shots: int = 1, traps=None) -> np.ndarray:
     """Loaded (True) per shot and trap, traps in program order: shape (shots, traps).
 
     Shot 0 is the occupancy that `check`, `compile` and `simulate` use for this seed."""
+    import numpy as np
     p = probabilities(program)
     chance = np.array([p[s.species] for s in (traps or program.sites).values()])
     rng = np.random.default_rng(seed)
@@ -73,6 +72,7 @@ def read_pattern(path: str, text: str, program: Program) -> tuple[frozenset, lis
 def statistics(program: Program, seed: int, shots: int, traps=None, plans=()) -> dict:
     """Loaded counts per species over `shots` seeded draws, beside the binomial expectation,
     and for each fill the fraction of shots that load enough atoms for it."""
+    import numpy as np
     traps = traps or program.sites
     table = draw(program, seed, shots, traps)
     p = probabilities(program)

@@ -30,8 +30,6 @@ import heapq
 import math
 from dataclasses import dataclass
 
-import numpy as np
-
 from ..compile import motion
 
 Vec = tuple[float, float, float]

@@ -20,8 +20,6 @@ from contextvars import ContextVar
 from dataclasses import dataclass
 from typing import Mapping
 
-import numpy as np
-
 from ..compile import motion
 from ..lang.diagnostics import Diagnostic, SeqlangError, error
 from ..program.model import FillOp, MoveOp, Program, SerialOp, Site
@@ -112,6 +110,7 @@ def _placement(body: SerialOp) -> list[Diagnostic]:
 
 
 def _plan(program: Program, fill: FillOp, species: str, full: set[str], occupancy: Occupancy, diags) -> rearrange.FillPlan | None:
+    import numpy as np
     targets = [t for t in fill.targets if program.sites[t].species == species]
     traps = tuple(s for s in dict.fromkeys(fill.sources + fill.targets) if program.sites[s].species == species)
     pool = [s for s in traps if s in full]
@@ -170,6 +169,7 @@ def _corridor_layout(program: Program, fill: FillOp, diags):
 
 
 def _carry(program: Program, source: str, target: str, layout, limits, extra) -> rearrange.Carry:
+    import numpy as np
     start, end = program.sites[source].position_m, program.sites[target].position_m
     points = rearrange.corridor_path(start, end, layout) if layout is not None else [start, end]
     points[-1] = end  # exactly on the trap, whatever the rounding of the frames

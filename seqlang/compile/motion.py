@@ -108,11 +108,13 @@ def closest_approaches(program: Program, timeline: Timeline, limit: float, sampl
     moves that ended before this one started, plus the partial progress of the moves that
     overlap it, so thousands of moves (a rearrangement) are checked in well under a second.
     """
+    all_moves = moves(timeline)
+    if not all_moves:
+        return {}
     import numpy as np
     names = list(program.sites)
     where = {n: k for k, n in enumerate(names)}
     settled = np.array([program.sites[n].position_m for n in names], dtype=float).reshape(-1, 3)
-    all_moves = moves(timeline)
     order = sorted(range(len(all_moves)), key=lambda k: (all_moves[k].start_s, k))
     by_end = sorted(range(len(all_moves)), key=lambda k: (all_moves[k].end_s, k))
     done, out, taus = 0, {}, np.linspace(0.0, 1.0, samples + 1)

@@ -14,8 +14,6 @@ import hashlib
 import io
 import math
 
-import numpy as np
-
 from ..arrays import lattice as lat
 from ..lang import syntax as ast
 from ..lang import units
@@ -169,6 +167,7 @@ def _checked_pitch(kind: str, v: dict, rig: Rig, decl, diags: list[Diagnostic]):
 # ---------------------------------------------------------------- positions from a file
 def _from_file(decl: ast.LatticeFile, main: str, rig: Rig, scope: Scope, diags: list[Diagnostic],
                hashes: dict[str, str]):
+    import numpy as np
     import os
     target = os.path.normpath(os.path.join(os.path.dirname(main), decl.path))
     refusal = includes.refusal(main, decl.path, target, (".csv",))

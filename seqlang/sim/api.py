@@ -27,7 +27,10 @@ OPTIONS = {"interactions_hz": None, "history": False, "ladder": False, "noise": 
            "memory_limit": limits.MEMORY_LIMIT, "shared_noise": True, "feed_forward": True}
 # Outcomes rarer than this are not worth a conditioned report.
 MIN_CONDITION_PROBABILITY = 1e-9
-FULL_DENSITY_SITES = 5  # expectations over more sites are read from the qubit block only
+# Expectations over more sites are read from the qubit block and level probabilities (the
+# same numbers without the 4ⁿ × 4ⁿ reduced density matrix: 16 MB for five atoms).
+FULL_DENSITY_SITES = 4
+CONDITIONED_SITES = 5  # expectations over more sites list no numbers given an imaging outcome
 MAX_CONDITIONED_CLUSTERS = 16  # larger arrays list conditions only within the expectation's clusters
 
 
@@ -525,7 +528,7 @@ def _conditioned(program, clusters, expect, unconditioned_numbers: dict) -> list
         if not touching and len(clusters) > MAX_CONDITIONED_CLUSTERS:
             continue
         labels = sorted({lab[:2] for o in cluster.outcomes for lab in o if lab[1] not in expect.sites})
-        for record, site in labels if len(expect.sites) <= FULL_DENSITY_SITES else ():
+        for record, site in labels if len(expect.sites) <= CONDITIONED_SITES else ():
             for bit in (0, 1):
                 condition = (record, site, bit)
                 weight = cluster.weight(condition)

@@ -18,7 +18,7 @@ from dataclasses import dataclass, replace
 import numpy as np
 
 from ..compile import envelopes
-from ..compile.timeline import IMAGE, PULSE, Event, Timeline
+from ..compile.timeline import IMAGE, PULSE, SWITCH, Event, Timeline
 from ..program.model import Program
 
 LEVELS = ("0", "1", "r", "x")
@@ -85,6 +85,9 @@ class Model:
     segments: tuple[Segment, ...]
     dim: int = DIM
     images: tuple[Event, ...] = ()  # every imaging of the timeline, of either species (for crosstalk)
+    # (time_s, traps_on) of every switch of a port declared `role traps`, in time order; None when
+    # the rig declares no trap switch (the Doppler source is then free flight all along).
+    traps: tuple[tuple[float, bool], ...] | None = None
 
     @property
     def size(self) -> int:
@@ -151,7 +154,19 @@ def build_model(program: Program, timeline: Timeline, sites: tuple[str, ...],
                               _segments(program, relevant, index, timeline.duration_s, ladder))
     species = tuple(program.sites[s].species for s in sites)
     images = tuple(e for e in timeline.events if e.kind == IMAGE)
-    return Model(tuple(sites), species, pairs, tuple(segments), LADDER_DIM if ladder else DIM, images)
+    return Model(tuple(sites), species, pairs, tuple(segments), LADDER_DIM if ladder else DIM, images,
+                 trap_switches(program, timeline))
+
+
+def trap_switches(program: Program, timeline: Timeline) -> tuple[tuple[float, bool], ...] | None:
+    """(time_s, on) of each `switch` of a port declared `role traps` (the traps are on at t = 0,
+    as in `compile.checks`), or None when the rig declares no trap switch."""
+    ports = {q.name for q in program.rig.ports.values() if q.role == "traps"}
+    ports |= {q.channel for q in program.rig.ports.values() if q.role == "traps"}
+    if not ports:
+        return None
+    return tuple((e.start_s, e.value > 0.5) for e in sorted(timeline.events, key=lambda e: (e.start_s, e.index))
+                 if e.kind == SWITCH and e.port in ports)
 
 
 def _stark_shifted(program: Program, timeline: Timeline, sites, segments: list[Segment]) -> list[Segment]:

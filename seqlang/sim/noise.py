@@ -260,6 +260,8 @@ class Shots:
     interactions: np.ndarray
     initial: tuple[tuple[int, ...], ...]
     image_draws: tuple[np.ndarray, ...] = ()
+    # Per segment, None or (rows, P) pair shifts replacing `interactions` there (after a move).
+    segment_interactions: tuple[np.ndarray | None, ...] = ()
 
     @property
     def count(self) -> int:
@@ -271,7 +273,7 @@ class Shots:
             return a[lo:hi] if a.shape[0] > 1 else a
         return Shots(self.model, tuple(map(cut, self.couplings)), tuple(map(cut, self.shifts)), self.shift_levels,
                      self.pairs, cut(self.interactions), self.initial[lo:hi],
-                     tuple(d[lo:hi] for d in self.image_draws))
+                     tuple(d[lo:hi] for d in self.image_draws), _cut_each(self.segment_interactions, cut))
 
     def take(self, indices: np.ndarray) -> "Shots":
         """The shots at `indices` (shared parameters stay shared)."""
@@ -279,20 +281,34 @@ class Shots:
             return a[indices] if a.shape[0] > 1 else a
         return Shots(self.model, tuple(map(cut, self.couplings)), tuple(map(cut, self.shifts)), self.shift_levels,
                      self.pairs, cut(self.interactions), tuple(self.initial[k] for k in indices),
-                     tuple(d[indices] for d in self.image_draws))
+                     tuple(d[indices] for d in self.image_draws), _cut_each(self.segment_interactions, cut))
+
+    def interactions_at(self, k: int) -> np.ndarray:
+        """(rows, P) pair shifts in force during segment k."""
+        if self.segment_interactions and self.segment_interactions[k] is not None:
+            return self.segment_interactions[k]
+        return self.interactions
 
     def shot_model(self, k: int) -> Model:
         """The model of shot k, for the reference path."""
         def row(a):
             return a[k] if a.shape[0] > 1 else a[0]
         segments = []
-        for seg, c, sh, levels in zip(self.model.segments, self.couplings, self.shifts, self.shift_levels):
+        for k, (seg, c, sh, levels) in enumerate(zip(self.model.segments, self.couplings, self.shifts,
+                                                     self.shift_levels)):
             couplings = tuple(replace(x, omega=float(v[0]), delta=float(v[1]), phase=float(v[2]))
                               for x, v in zip(seg.couplings, row(c)))
             shifts = tuple(LevelShift(site, level, float(v[0]), float(v[1])) for (site, level), v in zip(levels, row(sh)))
-            segments.append(replace(seg, couplings=couplings, shifts=shifts))
+            pairs = seg.interactions
+            if pairs is not None:
+                pairs = tuple((p, float(v), r) for (p, _, r), v in zip(pairs, row(self.interactions_at(k))))
+            segments.append(replace(seg, couplings=couplings, shifts=shifts, interactions=pairs))
         interactions = dict(zip(self.pairs, map(float, row(self.interactions))))
         return replace(self.model, segments=tuple(segments), interactions=interactions)
+
+
+def _cut_each(arrays: tuple, cut) -> tuple:
+    return tuple(None if a is None else cut(a) for a in arrays)
 
 
 def nominal_shots(model: Model) -> Shots:
@@ -346,9 +362,24 @@ def sample(program: Program | None, model: Model, sources: tuple[str, ...], draw
     v = np.tile([[model.interactions[p] for p in pairs]], (rows, 1)).reshape(rows, len(pairs))
     if "motion" in on:
         v = _interactions(program, model, pairs, displaced)
+    moved = tuple(None if seg.interactions is None else _shared(_moved(program, model, seg, pairs, rows, displaced,
+                                                                       "motion" in on))
+                  for seg in model.segments)
     initial = _initial_levels(program, model, on, draws)
     image_draws = draws.imaging if "imaging" in on else ()
-    return Shots(model, tuple(couplings), tuple(shifts), tuple(levels), pairs, _shared(v), initial, image_draws)
+    return Shots(model, tuple(couplings), tuple(shifts), tuple(levels), pairs, _shared(v), initial, image_draws,
+                 moved if any(m is not None for m in moved) else ())
+
+
+def _moved(program, model: Model, seg: Segment, pairs, rows: int, displaced, motion: bool) -> np.ndarray:
+    """(rows, P) pair shifts of a segment after a move, each scaled by (R/R')⁶ for the thermal
+    offsets when the motion source is on."""
+    table = {p: (v, r) for p, v, r in seg.interactions}
+    out = np.tile([[table[p][0] for p in pairs]], (rows, 1)).reshape(rows, len(pairs))
+    if motion:
+        for k, p in enumerate(pairs):
+            out[:, k] *= _distance_factor(program, model, p, table[p][1], displaced)
+    return out
 
 
 def _shared(a: np.ndarray) -> np.ndarray:
@@ -487,13 +518,20 @@ def servo_psd(drive, f: np.ndarray) -> np.ndarray:
 def _interactions(program: Program, model: Model, pairs, displaced: np.ndarray) -> np.ndarray:
     """(shots, pairs): V_ij·(R₀/R)⁶ with each atom moved by its thermal offset."""
     out = np.empty((displaced.shape[0], len(pairs)))
-    for k, (i, j) in enumerate(pairs):
-        a = np.array(program.sites[model.sites[i]].position_m)
-        b = np.array(program.sites[model.sites[j]].position_m)
-        r0 = np.linalg.norm(a - b)
-        r = np.linalg.norm(a + displaced[:, i] - b - displaced[:, j], axis=1)
-        out[:, k] = model.interactions[(i, j)] * (r0 / r) ** 6
+    for k, pair in enumerate(pairs):
+        separation = (model.separations or {}).get(pair, ())
+        out[:, k] = model.interactions[pair] * _distance_factor(program, model, pair, separation, displaced)
     return out
+
+
+def _distance_factor(program: Program, model: Model, pair, separation, displaced: np.ndarray) -> np.ndarray:
+    """(shots,) (R₀/R)⁶ for the separation r_j − r_i (the declared sites' when not given)."""
+    i, j = pair
+    if not len(separation):
+        separation = np.subtract(program.sites[model.sites[j]].position_m, program.sites[model.sites[i]].position_m)
+    separation = np.asarray(separation, float)
+    r = np.linalg.norm(separation + displaced[:, j] - displaced[:, i], axis=1)
+    return (np.linalg.norm(separation) / r) ** 6
 
 
 def doppler_sigma_rad_s(program: Program, species: str) -> float:

@@ -18,7 +18,7 @@ from . import shared as shared_noise
 from .basis import Basis, full_basis, norms, partial_trace_density, partial_trace_kets, probabilities, site_populations
 from .clusters import CLUSTER_THRESHOLD, representatives, smallest_rydberg_rabi_hz
 from .clusters import clusters as find_clusters
-from .model import DIM, LOST, RYD, Model, build_model, leg_rabi, pair_interactions_hz
+from .model import DIM, LOST, RYD, Model, build_model, leg_rabi, pair_interactions_hz, with_latency_remainders
 from .runner import SHOT_CHUNK, TRUNCATION_TOLERANCE, Plan, Progress, Runner, final_states  # noqa: F401
 
 ENGINES = ("auto", "fast", "trajectories", "lindblad", "qutip")
@@ -153,6 +153,8 @@ class SimulationResult:
     # (a, b) -> ((start_s, PairShift), ...): the pair's shift from each later Rydberg pulse at a new
     # geometry (after a move) on; the first one is in pair_models.
     pair_tracks: dict = field(default_factory=dict)
+    # Output → latency remainder (s) applied to its pulses and imagings (the nonzero ones).
+    latency_remainders_s: dict = field(default_factory=dict)
 
     def reduced_density(self, sites: tuple[str, ...], condition=None) -> np.ndarray:
         """Density matrix (4 levels per atom) of `sites`, optionally given one imaging outcome."""
@@ -225,7 +227,10 @@ def simulate(source, **options) -> SimulationResult:
         raise ValueError(f"unknown engine {options['engine']!r}; use one of {', '.join(ENGINES)}")
     from ..api import Sequence, load
     sequence = source if isinstance(source, Sequence) else load(str(source))
-    program, timeline = sequence.program, sequence.played
+    program = sequence.program
+    # What the atoms see: the played timeline with each output's sub-tick latency remainder.
+    remainders = {port: r for port, r in sequence.checked.plan.latency_remainder_s.items() if r}
+    timeline = with_latency_remainders(sequence.played, remainders)
     sources = noise.parse_sources(options["noise"]) if isinstance(options["noise"], str) else tuple(options["noise"])
     limits.check_shots(options["shots"])
     interactions = options["interactions_hz"]
@@ -249,7 +254,8 @@ def simulate(source, **options) -> SimulationResult:
         warnings.append(warning("ladder mode: no Rydberg drive declares `intermediate`, `lower_rabi` and "
                                 "`upper_rabi`, so the explicit ladder is the effective model", program.rig.span))
     if timeline.conditioned():  # measurement-conditioned operations: the feed-forward path
-        return _feed_forward(program, timeline, options, sources, interactions, warnings, strongest, hz_tracks)
+        result = _feed_forward(program, timeline, options, sources, interactions, warnings, strongest, hz_tracks)
+        return replace(result, latency_remainders_s=remainders)
     models = [build_model(program, timeline, group, interactions, ladder=options["ladder"], tracks=hz_tracks)
               for group in find_clusters(program, timeline, strongest)]
     # Identical clusters share one run; not yet when the sequence images (records are
@@ -296,7 +302,7 @@ def simulate(source, **options) -> SimulationResult:
     engines = sorted({r.engine for r in results})
     return SimulationResult(program.name, results, expectations, _records(results), interactions,
                             tuple(warnings), info, "+".join(engines), runner.reduction, pair_models, program,
-                            pair_tracks=_later_shifts(tracks))
+                            pair_tracks=_later_shifts(tracks), latency_remainders_s=remainders)
 
 
 def _later_shifts(tracks: dict) -> dict:

@@ -129,6 +129,7 @@ def as_document(result) -> dict:
         "interactions": {f"{a}-{b}": _pair_entries(m, result.pair_tracks.get((a, b), ()))
                          for (a, b), m in sorted(result.pair_models.items())},
         "clusters": [list(c.model.sites) for c in result.clusters],
+        "latency_remainder_ns": {port: clean(r * 1e9) for port, r in sorted(result.latency_remainders_s.items())},
         "noise": result.noise,
         "engine": result.engine,
         "reduction": result.reduction,

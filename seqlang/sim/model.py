@@ -235,12 +235,39 @@ def _stark_shifted(program: Program, timeline: Timeline, sites, segments: list[S
     return out
 
 
+# Segment boundaries are kept in 1/SUBTICKS of a tick: the played timeline is on the tick grid,
+# except for the latency remainders of the outputs (`with_latency_remainders`).
+SUBTICKS = 1000
+
+
+def with_latency_remainders(timeline: Timeline, remainders: dict[str, float]) -> Timeline:
+    """The played timeline with every pulse and imaging of an output moved by that output's
+    latency remainder (compile/hardware.py: what whole ticks do not compensate; positive is
+    late), resolved to 1/SUBTICKS of a tick.
+
+    >>> # latency 81 ns at a 2 ns tick: 40 ticks compensated, the output's pulses play 1 ns late
+    """
+    from ..compile.timeline import evolve
+    if not any(remainders.values()):
+        return timeline
+    moved = tuple(evolve(e, start_s=e.start_s + remainders.get(e.port, 0.0))
+                  if e.kind in (PULSE, IMAGE) and remainders.get(e.port) else e for e in timeline.events)
+    end = max([timeline.duration_s] + [e.end_s for e in moved])
+    return Timeline(moved, end, timeline.tick_s, timeline.quantized, timeline.shift_s)
+
+
 def _tick(t: float, tick: float) -> int:
-    return round(t / tick)
+    return round(t / tick * SUBTICKS)
+
+
+def _seconds(k: int, tick: float) -> float:
+    """A boundary in seconds; whole ticks exactly as k·tick."""
+    whole, part = divmod(k, SUBTICKS)
+    return whole * tick if not part else k * tick / SUBTICKS
 
 
 def _boundaries(events: list[Event], total: int, tick: float) -> list[int]:
-    """Every start and end, in ticks (the played timeline is on the tick grid)."""
+    """Every start and end, in 1/SUBTICKS ticks."""
     times = {0, total}
     for e in events:
         times.add(_tick(e.start_s, tick))
@@ -257,11 +284,12 @@ def _segments(program: Program, events: list[Event], index: dict[str, int], tota
     times = _boundaries(events, _tick(total_s, tick), tick)
     out: list[Segment] = []
     for k0, k1 in zip(times, times[1:] + [None]):
-        out += [Segment(k0 * tick, 0.0, (), e) for e, k in sorted(images, key=lambda x: x[0].index) if k == k0]
+        out += [Segment(_seconds(k0, tick), 0.0, (), e) for e, k in sorted(images, key=lambda x: x[0].index)
+                if k == k0]
         if k1 is None:
             break
         active = [e for e, a, b in pulses if a <= k0 and b >= k1]
-        out += _pulse_steps(program, active, index, k0 * tick, k1 * tick, ladder)
+        out += _pulse_steps(program, active, index, _seconds(k0, tick), _seconds(k1, tick), ladder)
     return out
 
 

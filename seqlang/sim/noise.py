@@ -294,14 +294,14 @@ class Shots:
         def row(a):
             return a[k] if a.shape[0] > 1 else a[0]
         segments = []
-        for k, (seg, c, sh, levels) in enumerate(zip(self.model.segments, self.couplings, self.shifts,
-                                                     self.shift_levels)):
+        for index, (seg, c, sh, levels) in enumerate(zip(self.model.segments, self.couplings, self.shifts,
+                                                         self.shift_levels)):
             couplings = tuple(replace(x, omega=float(v[0]), delta=float(v[1]), phase=float(v[2]))
                               for x, v in zip(seg.couplings, row(c)))
             shifts = tuple(LevelShift(site, level, float(v[0]), float(v[1])) for (site, level), v in zip(levels, row(sh)))
             pairs = seg.interactions
             if pairs is not None:
-                pairs = tuple((p, float(v), r) for (p, _, r), v in zip(pairs, row(self.interactions_at(k))))
+                pairs = tuple((p, float(v), r) for (p, _, r), v in zip(pairs, row(self.interactions_at(index))))
             segments.append(replace(seg, couplings=couplings, shifts=shifts, interactions=pairs))
         interactions = dict(zip(self.pairs, map(float, row(self.interactions))))
         return replace(self.model, segments=tuple(segments), interactions=interactions)

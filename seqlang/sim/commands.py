@@ -130,8 +130,10 @@ def as_document(result, load_shots: int = 1000) -> dict:
         "site_populations": sites,
         **extra,
         "interactions_hz": {f"{a}-{b}": clean(v) for (a, b), v in sorted(result.interactions_hz.items())},
-        "interactions": {f"{a}-{b}": pair_entry(m) for (a, b), m in sorted(result.pair_models.items())},
+        "interactions": {f"{a}-{b}": _pair_entries(m, result.pair_tracks.get((a, b), ()))
+                         for (a, b), m in sorted(result.pair_models.items())},
         "clusters": [list(c.model.sites) for c in result.clusters],
+        "latency_remainder_ns": {port: clean(r * 1e9) for port, r in sorted(result.latency_remainders_s.items())},
         "noise": result.noise,
         "engine": result.engine,
         "reduction": result.reduction,
@@ -152,6 +154,16 @@ def _arrays(result, shots: int) -> dict:
     document["statistics"] = statistics(program, state.occupancy.seed, shots, state.traps, state.plans) \
         if state.occupancy.given is None else None
     return {"arrays": document}
+
+
+def _pair_entries(first, later) -> dict:
+    """A pair's model at its first Rydberg pulse and, under `later`, from each pulse at a new
+    geometry on (after a move), with the time it starts."""
+    from .observables import clean
+    entry = pair_entry(first)
+    if later:
+        entry["later"] = [{"from_s": clean(t), **pair_entry(shift)} for t, shift in later]
+    return entry
 
 
 def pair_entry(shift) -> dict:

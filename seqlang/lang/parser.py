@@ -27,7 +27,7 @@ from lark.parsers.lalr_parser import _Parser as _LalrDriver
 from lark.visitors import _vargs_meta
 
 from . import syntax as ast
-from . import source_text
+from . import lalr, source_text
 from .diagnostics import SOURCES, SeqlangError, Span, error
 from .grammar_cache import cached_lark
 from .syntax_errors import syntax_error, token_span as _token_span
@@ -57,13 +57,25 @@ def parse_text(text: str, path: str) -> ast.SourceFile:
     text = source_text.normalise(text)
     SOURCES.add(path, text)
     lark = _lark()
-    frontend = lark.parser
-    driver = _LalrDriver(_fast_table(lark)[0], _callbacks(lark, _Builder(path)))
-    try:
-        with cyclic_gc_paused():
-            result = driver.parse(frontend._make_lexer_thread(text), "start")
-    except UnexpectedInput as exc:
-        raise SeqlangError([syntax_error(exc, text, path, lark)]) from None
+    table = _fast_table(lark)[0]
+    fast = lalr.tables(lark, table)
+    with cyclic_gc_paused():
+        if fast is not None:
+            callbacks = _callbacks(lark, _Builder(path))
+            reducers = [None if callbacks[rule] is _pass_through else callbacks[rule] for rule in fast.rules]
+            try:
+                return _source_file(path, text, lalr.parse(text, fast, reducers))
+            except lalr.Unsupported:
+                pass  # a syntax error: lark's own driver says what and where
+        driver = _LalrDriver(table, _callbacks(lark, _Builder(path)))
+        try:
+            result = driver.parse(lark.parser._make_lexer_thread(text), "start")
+        except UnexpectedInput as exc:
+            raise SeqlangError([syntax_error(exc, text, path, lark)]) from None
+    return _source_file(path, text, result)
+
+
+def _source_file(path: str, text: str, result: "_Reduced") -> ast.SourceFile:
     return ast.SourceFile(path, text, tuple(result.value.children))
 
 

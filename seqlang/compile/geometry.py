@@ -9,9 +9,9 @@ without Rydberg pairs never imports the atomic-data library.
 
 ``pair_shifts`` is what `show` and the simulator use: for each pair of
 Rydberg-driven sites, the shift at the positions, angle and field of the first
-Rydberg pulse that reaches one of them (interactions after a move use the new
-distances). A pair that sees Rydberg pulses at two different geometries gets a
-warning, since the model holds one shift per pair.
+Rydberg pulse that reaches one of them. ``pair_shift_track`` adds the shift at
+every later Rydberg pulse whose geometry differs (after a move, or in another
+field), which the simulator plays from that pulse on.
 """
 from __future__ import annotations
 
@@ -198,17 +198,42 @@ def _pair_geometries(program: Program, timeline: Timeline, pairs=None) -> dict[t
 def pair_shifts(program: Program, timeline: Timeline, pairs=None) -> dict[tuple[str, str], object]:
     """The ``PairShift`` of every Rydberg pair (of `pairs`, if given) at its first Rydberg pulse
     (see the module notes)."""
-    return {pair: _shift(program, *pair, found[0][0])
-            for pair, found in _pair_geometries(program, timeline, pairs).items() if found}
+    return {pair: track[0][1] for pair, track in pair_shift_track(program, timeline, pairs).items()}
+
+
+def pair_shift_track(program: Program, timeline: Timeline, pairs=None) -> dict[tuple[str, str], tuple]:
+    """Per Rydberg pair (of `pairs`, if given): ((start_s, PairShift, separation r_b − r_a in m), ...)
+    at its first Rydberg pulse and at every later one whose geometry (R, θ, E) differs from the
+    pulse before; each shift holds from that pulse's start on (the simulator's V per segment).
+
+    >>> # a pulse at 15 µm, a move to 4 µm, a pulse: two entries, V at 15 µm then at 4 µm
+    """
+    out: dict[tuple[str, str], tuple] = {}
+    pulses = _rydberg_pulses(program, timeline)
+    shifts: dict[tuple, object] = {}
+    for a, b in rydberg_pairs(program, timeline):
+        if pairs is not None and (a, b) not in pairs:
+            continue
+        track, last = [], None
+        for pulse in (p for p in pulses if a in p.targets or b in p.targets):
+            geometry = tuple(round(x, 12) for x in _geometry(program, timeline, pulse, a, b))
+            if geometry == last:
+                continue
+            last = geometry
+            key = (program.sites[a].species, program.sites[b].species, geometry)
+            if key not in shifts:
+                shifts[key] = _shift(program, a, b, geometry)
+            where = motion.positions_at(program, timeline, pulse.start_s)
+            track.append((pulse.start_s, shifts[key], tuple(y - x for x, y in zip(where[a], where[b]))))
+        if track:
+            out[(a, b)] = tuple(track)
+    return out
 
 
 def _pair_checks(program: Program, timeline: Timeline) -> list[Diagnostic]:
     out: list[Diagnostic] = []
     warned_forster: set = set()
     for (a, b), found in _pair_geometries(program, timeline).items():
-        if len(found) > 1:
-            out.append(warning(f"`{a}` and `{b}` see Rydberg pulses at {len(found)} different distances or fields; "
-                               "the simulator uses the first", found[1][1].span))
         for geometry, pulse in found:
             out += _one_pair(program, a, b, _shift(program, a, b, geometry), pulse, warned_forster)
     return out
@@ -266,4 +291,4 @@ def stark_shift_hz(program: Program, species: str, field_v_m: float) -> float:
     return stark.stark_shift_hz(sp.data, sp.rydberg, field_v_m)
 
 
-__all__ = ["check_geometry", "pair_shifts", "rydberg_pairs", "field_at", "stark_shift_hz", "MOVE"]
+__all__ = ["check_geometry", "pair_shifts", "pair_shift_track", "rydberg_pairs", "field_at", "stark_shift_hz", "MOVE"]

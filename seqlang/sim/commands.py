@@ -126,14 +126,26 @@ def as_document(result) -> dict:
         "site_populations": sites,
         **extra,
         "interactions_hz": {f"{a}-{b}": clean(v) for (a, b), v in sorted(result.interactions_hz.items())},
-        "interactions": {f"{a}-{b}": pair_entry(m) for (a, b), m in sorted(result.pair_models.items())},
+        "interactions": {f"{a}-{b}": _pair_entries(m, result.pair_tracks.get((a, b), ()))
+                         for (a, b), m in sorted(result.pair_models.items())},
         "clusters": [list(c.model.sites) for c in result.clusters],
+        "latency_remainder_ns": {port: clean(r * 1e9) for port, r in sorted(result.latency_remainders_s.items())},
         "noise": result.noise,
         "engine": result.engine,
         "reduction": result.reduction,
         "note": "model prediction for the played (tick-quantized) timeline; not a guarantee of the apparatus",
         "array_summary": _array_summary(result, sites),
     }
+
+
+def _pair_entries(first, later) -> dict:
+    """A pair's model at its first Rydberg pulse and, under `later`, from each pulse at a new
+    geometry on (after a move), with the time it starts."""
+    from .observables import clean
+    entry = pair_entry(first)
+    if later:
+        entry["later"] = [{"from_s": clean(t), **pair_entry(shift)} for t, shift in later]
+    return entry
 
 
 def pair_entry(shift) -> dict:
@@ -234,7 +246,8 @@ def _expectation_lines(e: dict, noise: dict) -> list[str]:
         lines += feed_forward_lines(e["feed_forward"])
     for cond in e["conditioned"]:
         lines.append(f"  given {cond['record']}[{cond['site']}] = {cond['outcome']} "
-                     f"(p = {cond['probability']:.4f}): fidelity {cond['fidelity']:.6f}")
+                     f"(p = {cond['probability']:.4f}{_pm(cond, 'probability_error', '.1g')}): "
+                     f"fidelity {cond['fidelity']:.6f}{_pm(cond, 'fidelity_error')}")
     return lines
 
 

@@ -12,7 +12,8 @@ under 40 s. ``--baseline REF`` also runs the same programs with the code of git
 revision REF (exported to a temporary directory) in the same run and prints the
 ratios side by side, so that a loaded machine slows both alike. Each measurement
 runs in a fresh process, so peak memory (max RSS) is that run's own; times are
-wall-clock and CPU (user+system) of the check+compile alone. Not a test.
+CPU (``time.process_time``: user + system, the primary figure on a shared
+machine) and wall-clock of the check+compile alone. Not a test.
 """
 from __future__ import annotations
 
@@ -53,12 +54,12 @@ _CHILD = r"""
 import json, os, resource, sys, time
 import seqlang
 seqlang.load(sys.argv[2])                      # warm-up: imports and the grammar
-start, cpu = time.perf_counter(), os.times()
+start, cpu = time.perf_counter(), time.process_time()
 sequence = seqlang.load(sys.argv[1])
 sequence.compile()
-elapsed, after = time.perf_counter() - start, os.times()
+elapsed, used = time.perf_counter() - start, time.process_time() - cpu
 assert len(sequence.timeline.pulses()) == int(sys.argv[3])
-print(json.dumps({"seconds": elapsed, "cpu": after.user - cpu.user + after.system - cpu.system,
+print(json.dumps({"seconds": elapsed, "cpu": used,
                   "rss_mib": resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 1024}))
 """
 
@@ -85,13 +86,31 @@ def _export(ref: str, into: str) -> str:
     return into
 
 
-def _row(name: str, n: int, r: dict, base: dict | None) -> str:
-    line = (f"{name:>6} {n:>9,} pulses: {r['seconds']:7.2f} s wall, {r['cpu']:7.2f} s cpu, "
-            f"peak RSS {r['rss_mib']:7.1f} MiB")
-    if base is not None:
-        line += (f"   | baseline {base['seconds']:7.2f} s wall, {base['cpu']:7.2f} s cpu, "
-                 f"{base['rss_mib']:7.1f} MiB | cpu speed-up {base['cpu'] / r['cpu']:5.2f}x")
-    return line
+def _cell(r: dict | None) -> str:
+    if r is None:
+        return f"{'—':>28}"
+    return f"{r['cpu']:6.2f} s {r['seconds']:6.2f} s {r['rss_mib']:6.0f} MiB"
+
+
+def _table(results: dict, sizes: tuple[int, int], label: str) -> list[str]:
+    """One line per shape: CPU, wall and peak RSS at both sizes, and the large/small ratios."""
+    small, large = sizes
+    head = (f"{label:<8} {'':7} {f'{small:,} pulses (cpu, wall, rss)':>28} | "
+            f"{f'{large:,} pulses (cpu, wall, rss)':>28} | ratio cpu, wall")
+    lines = [head]
+    for shape in ("flat", "folded"):
+        a, b = results[shape][small], results[shape][large]
+        lines.append(f"{'':8} {shape:<7} {_cell(a)} | {_cell(b)} | "
+                     f"{b['cpu'] / a['cpu']:5.2f}, {b['seconds'] / a['seconds']:5.2f}")
+    return lines
+
+
+def _verdict(results: dict, sizes: tuple[int, int]) -> str:
+    flat = results["flat"][sizes[1]]
+    ratios = [results[s][sizes[1]]["cpu"] / results[s][sizes[0]]["cpu"] for s in ("flat", "folded")]
+    return (f"targets (CPU): flat {sizes[1]:,} under 5 s: {'yes' if flat['cpu'] < 5 else 'no'}; "
+            f"under 300 MiB: {'yes' if flat['rss_mib'] < 300 else 'no'}; "
+            f"ratios <= 11: {'yes' if max(ratios) <= 11 else 'no'}")
 
 
 def main() -> int:
@@ -99,21 +118,24 @@ def main() -> int:
     baseline = sys.argv[sys.argv.index("--baseline") + 1] if "--baseline" in sys.argv else None
     workdir = tempfile.mkdtemp(prefix="seqlang-bench-")
     shutil.copy(RIG, workdir)
+    shapes = {"flat": generate_flat, "folded": generate_folded}
+    print(f"load average at start: {' '.join(f'{x:.1f}' for x in os.getloadavg())} on {os.cpu_count()} cores",
+          flush=True)
     try:
         code = _export(baseline, tempfile.mkdtemp(dir=workdir)) if baseline else None
-        for name, generate in (("folded", generate_folded), ("flat", generate_flat)):
-            results = {n: measure(generate(n), n, workdir) for n in sizes}
-            bases = {n: measure(generate(n), n, workdir, code) for n in sizes} if code else {}
-            for n, r in results.items():
-                print(_row(name, n, r, bases.get(n)), flush=True)
-            small, large = (results[n] for n in sizes)
-            print(f"{name:>6} {sizes[1]}/{sizes[0]} ratio: {large['seconds'] / small['seconds']:.2f} wall, "
-                  f"{large['cpu'] / small['cpu']:.2f} cpu (target <= 11)"
-                  + (f"; baseline {bases[sizes[1]]['cpu'] / bases[sizes[0]]['cpu']:.2f} cpu" if bases else "")
-                  + f"; largest under 5 s: {'yes' if large['seconds'] < 5 else 'no'}", flush=True)
+        ours = {s: {n: measure(g(n), n, workdir) for n in sizes} for s, g in shapes.items()}
+        print("\n".join(_table(ours, sizes, "this tree")), flush=True)
+        if code:
+            base = {s: {n: measure(g(n), n, workdir, code) for n in sizes} for s, g in shapes.items()}
+            print("\n".join(_table(base, sizes, baseline)), flush=True)
+            print("cpu speed-up: " + ", ".join(f"{s} {n:,} {base[s][n]['cpu'] / ours[s][n]['cpu']:.2f}x"
+                                               for s in shapes for n in sizes), flush=True)
+        print(_verdict(ours, sizes), flush=True)
         if "--million" in sys.argv:
             r = measure(generate_folded(1_000_000), 1_000_000, workdir)
-            print(_row("folded", 1_000_000, r, None) + f"  (target < 40 s)", flush=True)
+            print(f"{'':8} folded 1,000,000 pulses: {_cell(r)}  (target < 40 s CPU: "
+                  f"{'yes' if r['cpu'] < 40 else 'no'})", flush=True)
+        print(f"load average at end: {' '.join(f'{x:.1f}' for x in os.getloadavg())}", flush=True)
     finally:
         shutil.rmtree(workdir)
     return 0

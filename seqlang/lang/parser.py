@@ -27,7 +27,7 @@ from lark.parsers.lalr_parser import _Parser as _LalrDriver
 from lark.visitors import _vargs_meta
 
 from . import syntax as ast
-from . import source_text
+from . import lalr, source_text
 from .diagnostics import SOURCES, SeqlangError, Span, error
 from .grammar_cache import cached_lark
 from .syntax_errors import syntax_error, token_span as _token_span
@@ -57,13 +57,25 @@ def parse_text(text: str, path: str) -> ast.SourceFile:
     text = source_text.normalise(text)
     SOURCES.add(path, text)
     lark = _lark()
-    frontend = lark.parser
-    driver = _LalrDriver(_fast_table(lark)[0], _callbacks(lark, _Builder(path)))
-    try:
-        with cyclic_gc_paused():
-            result = driver.parse(frontend._make_lexer_thread(text), "start")
-    except UnexpectedInput as exc:
-        raise SeqlangError([syntax_error(exc, text, path, lark)]) from None
+    table = _fast_table(lark)[0]
+    fast = lalr.tables(lark, table)
+    with cyclic_gc_paused():
+        if fast is not None:
+            callbacks = _callbacks(lark, _Builder(path))
+            reducers = [None if callbacks[rule] is _pass_through else callbacks[rule] for rule in fast.rules]
+            try:
+                return _source_file(path, text, lalr.parse(text, fast, reducers))
+            except lalr.Unsupported:
+                pass  # a syntax error: lark's own driver says what and where
+        driver = _LalrDriver(table, _callbacks(lark, _Builder(path)))
+        try:
+            result = driver.parse(lark.parser._make_lexer_thread(text), "start")
+        except UnexpectedInput as exc:
+            raise SeqlangError([syntax_error(exc, text, path, lark)]) from None
+    return _source_file(path, text, result)
+
+
+def _source_file(path: str, text: str, result: "_Reduced") -> ast.SourceFile:
     return ast.SourceFile(path, text, tuple(result.value.children))
 
 
@@ -191,38 +203,27 @@ def _reducer(plan, builder: "_Builder"):
     if kind == "expand1" and modes == (_KEEP,) and not nones:
         return _pass_through          # `?rule: other`, the commonest reduction: nothing to do
     steps = tuple(enumerate(modes))
+    kept = tuple((index, mode is _SPLICE) for index, mode in steps if mode is not _DROP)
 
     def reduce(children):
-        first = last = None
-        for child in children:
-            first = child if child.__class__ is Token else child.first
-            if first is not None:
-                break
-        for child in reversed(children):
-            last = child if child.__class__ is Token else child.last
-            if last is not None:
-                break
-        values, depth = [], 0
-        for index, mode in steps:
-            if nones and nones[index]:
-                values.extend([None] * nones[index])
-            if mode is _DROP:
-                continue
-            child = children[index]
-            if child.__class__ is Token:
-                values.append(child)
-                continue
-            if mode is _SPLICE:
-                if values:
+        first, last = _ends(children)
+        if nones:
+            values, depth = _values_with_placeholders(children, steps, nones)
+        else:
+            values, depth = [], 0
+            for index, splice in kept:
+                child = children[index]
+                if child.__class__ is Token:
+                    values.append(child)
+                    continue
+                if not splice:
+                    values.append(child.value)
+                elif values:
                     values.extend(child.value)
                 else:  # a left-recursive list (`x*`): grow the child's own list, as lark does
                     values = child.value
-            else:
-                values.append(child.value)
-            if child.depth > depth:
-                depth = child.depth
-        if nones and nones[-1]:
-            values.extend([None] * nones[-1])
+                if child.depth > depth:
+                    depth = child.depth
         if kind == "splice":
             return _Reduced(values, first, last, depth)
         if kind == "expand1" and len(values) == 1:
@@ -236,6 +237,49 @@ def _reducer(plan, builder: "_Builder"):
         return out
 
     return reduce
+
+
+def _ends(children) -> tuple:
+    """The first and last token of the text the children cover (None, None if none)."""
+    if children:
+        head, tail = children[0], children[-1]
+        first = head if head.__class__ is Token else head.first
+        last = tail if tail.__class__ is Token else tail.last
+        if first is not None and last is not None:
+            return first, last
+    first = last = None  # some children are empty rules
+    for child in children:
+        first = child if child.__class__ is Token else child.first
+        if first is not None:
+            break
+    for child in reversed(children):
+        last = child if child.__class__ is Token else child.last
+        if last is not None:
+            break
+    return first, last
+
+
+def _values_with_placeholders(children, steps, nones) -> tuple[list, int]:
+    """The kept values of a rule with `[optional]`s, a `None` standing for each one missing."""
+    values, depth = [], 0
+    for index, mode in steps:
+        if nones[index]:
+            values.extend([None] * nones[index])
+        if mode is _DROP:
+            continue
+        child = children[index]
+        if child.__class__ is Token:
+            values.append(child)
+            continue
+        if mode is _SPLICE:
+            values.extend(child.value)
+        else:
+            values.append(child.value)
+        if child.depth > depth:
+            depth = child.depth
+    if nones[-1]:
+        values.extend([None] * nones[-1])
+    return values, depth
 
 
 def _pass_through(children):
@@ -272,7 +316,8 @@ class _Builder(Transformer):
                     first.start_pos, last.end_pos)
 
     def _ident(self, token: Token) -> ast.Ident:
-        return ast.Ident(str(token), _token_span(token, self.path))
+        # Interned: a long program repeats a few names many times, each copy ~50 bytes.
+        return ast.Ident(sys.intern(str(token)), _token_span(token, self.path))
 
     # expressions
     @v_args(meta=True)
@@ -290,7 +335,7 @@ class _Builder(Transformer):
     @v_args(meta=True)
     def with_unit(self, meta, children):
         operand, unit = children
-        return ast.WithUnit(operand, str(unit), self._span(meta), _token_span(unit, self.path))
+        return ast.WithUnit(operand, sys.intern(str(unit)), self._span(meta), _token_span(unit, self.path))
 
     def _binop(op):
         @v_args(meta=True)

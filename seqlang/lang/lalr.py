@@ -1,0 +1,147 @@
+"""A fast LALR driver and contextual lexer over lark's own tables, for text that parses.
+
+Lark's lexer and driver are pure Python with a few layers per token (lexer thread,
+line counter, token constructor, parser state); on generated programs of 10⁵ lines
+they were most of the compile time. This module runs the same automaton in one
+loop: per parser state the compiled regular expression of lark's contextual lexer
+for that state (so a word is a keyword, a unit or a name exactly where lark would
+lex it so), lark's parse table with plain-string keys, and the reduce callbacks of
+:mod:`seqlang.lang.parser`. Positions are plain integers until a token is built.
+
+It knows only how to succeed: at the first character or token it cannot take it
+raises :class:`Unsupported`, and the caller parses the text again with lark's own
+driver, whose exceptions carry what the error messages need. Errors are rare, so
+they cost a second parse and nothing else.
+"""
+from __future__ import annotations
+
+import functools
+
+from lark import Lark, Token
+from lark.lexer import ContextualLexer, PatternStr, UnlessCallback
+from lark.parsers.lalr_analysis import Reduce
+
+# Token attributes are set directly: lark's constructor costs several calls per token.
+_new_str = str.__new__
+
+
+class Unsupported(Exception):
+    """The fast path cannot go on (a syntax error, or a lexer it does not know)."""
+
+
+class Tables:
+    """What the loop reads: per parser state its actions and its lexer."""
+
+    __slots__ = ("actions", "lexers", "start", "end", "rules")
+
+    def __init__(self, actions, lexers, start, end, rules):
+        self.actions, self.lexers, self.start, self.end, self.rules = actions, lexers, start, end, rules
+
+
+@functools.lru_cache(maxsize=4)
+def tables(lark: Lark, table) -> Tables | None:
+    """The loop's tables for `lark`, from `table` (string-keyed states, see parser._fast_table);
+    None if lark's lexer is of a kind this module does not reproduce."""
+    lexer = lark.parser.lexer
+    if not isinstance(lexer, ContextualLexer):
+        return None
+    lexers = {}
+    for state, basic in lexer.lexers.items():
+        entry = _state_lexer(basic)
+        if entry is None:
+            return None
+        lexers[state] = entry
+    rules: list = []
+    index: dict = {}
+    actions = {}
+    for state, row in table.states.items():
+        actions[state] = {symbol: arg if action is not Reduce else _reduction(arg, rules, index)
+                          for symbol, (action, arg) in row.items()}
+    return Tables(actions, lexers, table.start_states["start"], table.end_states["start"], tuple(rules))
+
+
+def _reduction(rule, rules: list, index: dict) -> tuple:
+    """A reduce action as (number of symbols, rule name for the goto, rule number)."""
+    if rule not in index:
+        index[rule] = len(rules)
+        rules.append(rule)
+    return (len(rule.expansion), rule.origin.name, index[rule])
+
+
+def _state_lexer(basic) -> tuple | None:
+    """(match, keywords, ignored, with newlines) for one state's lexer, as lark built it."""
+    scanner = basic.scanner
+    if len(scanner._mres) != 1 or basic.g_regex_flags or basic.use_bytes or basic.user_callbacks:
+        return None
+    keywords = {}
+    for kind, callback in basic.callback.items():
+        # Lark lexes a keyword as the name it also matches, then renames it by exact match.
+        if not isinstance(callback, UnlessCallback):
+            return None
+        words = callback.scanner.terminals
+        if any(not isinstance(t.pattern, PatternStr) or t.pattern.flags for t in words):
+            return None
+        keywords[kind] = {t.pattern.value: t.name for t in words}
+    return scanner._mres[0].match, keywords, basic.ignore_types, basic.newline_types
+
+
+def parse(text: str, tables: Tables, reducers: list):
+    """Run the automaton over `text`; `reducers[i]` builds rule i's value from its children
+    (None: pass the single child on). Returns the start rule's value."""
+    actions, lexers, rules = tables.actions, tables.lexers, tables.rules
+    end_state = tables.end
+    stack = [tables.start]
+    values: list = []
+    pos, length, line, line_start = 0, len(text), 1, 0
+    while True:
+        match, keywords, ignored, newlines = lexers[stack[-1]]
+        found = match(text, pos)
+        while found is not None and found.lastgroup in ignored:  # blanks and comments
+            end = found.end()
+            if found.lastgroup in newlines:
+                count = text.count("\n", pos, end)
+                if count:
+                    line += count
+                    line_start = text.rfind("\n", pos, end) + 1
+            pos = end
+            found = match(text, pos)
+        if found is not None:
+            kind, value, end = found.lastgroup, found.group(), found.end()
+            if kind in keywords:
+                kind = keywords[kind].get(value, kind)
+            token = _new_str(Token, value)
+            token.type, token.value, token.start_pos, token.end_pos = kind, value, pos, end
+            token.line, token.column = line, pos - line_start + 1
+            if kind in newlines and "\n" in value:
+                line += value.count("\n")
+                line_start = text.rfind("\n", pos, end) + 1
+            token.end_line, token.end_column = line, end - line_start + 1
+            pos = end
+        elif pos == length:
+            kind = "$END"
+        else:
+            raise Unsupported
+        while True:
+            action = actions[stack[-1]].get(kind)
+            if action is None:
+                raise Unsupported
+            if action.__class__ is int:
+                stack.append(action)
+                values.append(token)
+                break
+            size, origin, number = action
+            reduce = reducers[number]
+            if reduce is None:
+                # `?rule: other` passes its child on: only the state changes.
+                stack[-1] = actions[stack[-2]][origin]
+            else:
+                if size:
+                    children = values[-size:]
+                    del values[-size:]
+                    del stack[-size:]
+                else:
+                    children = []
+                values.append(reduce(children))
+                stack.append(actions[stack[-1]][origin])
+            if kind == "$END" and stack[-1] == end_state:
+                return values[-1]

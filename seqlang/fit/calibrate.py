@@ -50,6 +50,9 @@ def proposal(document: dict, rig_path: str, drive: str | None = None, species: s
     if owner is None:
         raise ValueError(f"a {fit['model']} fit calibrates a {kind}: name it with --{kind}")
     si = _to_si(fit["values"][parameter], document["si_factor"], dim)
+    if fit["errors"].get(parameter) is None:
+        raise ValueError(f"the fit left `{parameter}` without an uncertainty (the likelihood is flat there): "
+                         "nothing to calibrate from")
     error = _to_si(fit["errors"][parameter], document["si_factor"], dim)
     with open(rig_path, encoding="utf-8") as handle:
         text = handle.read()

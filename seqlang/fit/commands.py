@@ -2,9 +2,11 @@
 from __future__ import annotations
 
 import json
+import math
 import os
 
 MODELS = ("rabi", "ramsey", "resonance", "blockade", "sqrt_n")  # as fit.models.MODELS, without numpy
+LIKELIHOODS = ("auto", "binomial", "least_squares")  # as fit.fitting.LIKELIHOODS
 
 
 def register(sub) -> None:
@@ -14,6 +16,9 @@ def register(sub) -> None:
     p.add_argument("--model", choices=MODELS, help="fit this curve to each measured record")
     p.add_argument("--envelope", choices=("gaussian", "exponential"), default="gaussian",
                    help="decay of a Ramsey fringe (default gaussian)")
+    p.add_argument("--likelihood", choices=LIKELIHOODS, default="auto",
+                   help="binomial maximum likelihood or weighted least squares (default auto: binomial "
+                        "below 50 repetitions per point)")
     p.add_argument("-o", "--output", metavar="DIR", help="where to write fit.json and the figures (default DIR/fit)")
     p.set_defaults(run=cmd_fit)
 
@@ -51,7 +56,7 @@ def cmd_fit(args) -> int:
         raise UsageError("`seqlang fit` compares one-parameter scans; this store has "
                          f"{len(ds.sizes)} dimensions")
     measured = read_measured(_existing(args.data))
-    report = compare(ds, measured, args.model, args.envelope)
+    report = compare(ds, measured, args.model, args.envelope, args.likelihood)
     output = args.output or os.path.join(args.directory, "fit")
     os.makedirs(output, exist_ok=True)
     from ..emit.atomic import write_text
@@ -66,7 +71,7 @@ def cmd_fit(args) -> int:
     return 0
 
 
-def compare(ds, measured, model: str | None, envelope: str = "gaussian") -> dict:
+def compare(ds, measured, model: str | None, envelope: str = "gaussian", likelihood: str = "auto") -> dict:
     """χ² of the measured counts against the simulated scan, and the fits of `model`."""
     import numpy as np
     from ..lang.diagnostics import SeqlangError, Span, error
@@ -90,9 +95,11 @@ def compare(ds, measured, model: str | None, envelope: str = "gaussian") -> dict
             chi2 = float(np.sum(((counts / n - simulated) / binomial_sigma(counts, n)) ** 2))
             entry.update(chi2_vs_simulation=chi2, dof=int(len(x)))
         if model:
-            fit = fits[record] = fit_counts(model, x, counts, n, envelope)
+            fit = fits[record] = fit_counts(model, x, counts, n, envelope, likelihood)
             entry["fit"] = {"model": model, "envelope": envelope if model == "ramsey" else None,
-                            "values": fit.values, "errors": fit.errors, "chi2": fit.chi2, "dof": fit.dof}
+                            "likelihood": fit.likelihood, "values": fit.values,
+                            "errors": {k: v if math.isfinite(v) else None for k, v in fit.errors.items()},
+                            "chi2": fit.chi2, "dof": fit.dof}
         document["records"][record] = entry
     return {"document": document, "fits": fits, "x": x}
 
@@ -107,10 +114,19 @@ def summary(document: dict) -> str:
         lines.append(head)
         fit = entry.get("fit")
         if fit:
-            lines.append(f"  {fit['model']} fit (chi2 {fit['chi2']:.4g} for {fit['dof']} degrees of freedom):")
+            how = LIKELIHOOD_WORDS.get(fit.get("likelihood", "least_squares"))
+            lines.append(f"  {fit['model']} fit, {how} (chi2 {fit['chi2']:.4g} for {fit['dof']} degrees of "
+                         "freedom):")
             for name, value in fit["values"].items():
-                lines.append(f"    {name:10} {value:.6g} ± {fit['errors'][name]:.2g}")
+                error = fit["errors"].get(name)
+                lines.append(f"    {name:10} {value:.6g} ± {error:.2g}" if error is not None else
+                             f"    {name:10} {value:.6g} (no error: the likelihood is not curved here, e.g. "
+                             "a probability at 0 or 1)")
     return "\n".join(lines)
+
+
+LIKELIHOOD_WORDS = {"binomial": "binomial maximum likelihood, 1 sigma from the inverse Hessian",
+                    "least_squares": "weighted least squares with binomial error bars, 1 sigma from the covariance"}
 
 
 def cmd_calibrate(args) -> int:

@@ -39,6 +39,18 @@ def register(sub) -> None:
     o.add_argument("--seed", type=int, default=1, help="seed (the same for every trial: common random numbers)")
     o.add_argument("--tolerance", type=float, default=1e-8, help="stop when the simplex is this small (in units "
                                                                    "of each free range)")
+    o.add_argument("--expect", default="all", metavar="all|N|SITES",
+                   help="whose fidelity: all (their mean; default), the Nth expect, or the one on sites a,b")
+    o.add_argument("--method", choices=("simplex", "evolution"), default="simplex",
+                   help="simplex: Nelder-Mead from the start values (default); evolution: differential "
+                        "evolution over the bounds, then the simplex")
+    o.add_argument("--generations", type=int, default=30, metavar="N", help="evolution: at most N generations")
+    o.add_argument("--population", type=int, default=8, metavar="N",
+                   help="evolution: N trials per free value in each generation")
+    o.add_argument("--workers", type=int, default=1, metavar="N",
+                   help="trials at once on a local process pool (default 1: in this process)")
+    o.add_argument("--scheduler", metavar="ADDRESS|local",
+                   help="run the trials on a Dask cluster at ADDRESS, or a LocalCluster of --workers processes")
     o.add_argument("-o", "--output", metavar="FILE", help="write the optimum as a `let` block to FILE")
     o.add_argument("--no-budget", dest="budget", action="store_false", help="skip the error budget at the optimum")
     o.set_defaults(run=cmd_optimise)
@@ -153,14 +165,23 @@ def cmd_optimise(args) -> int:
     from ..emit.atomic import write_text
     from ..sim.noise import parse_sources
     from .optimise import optimise, sequence_at
+    for name in ("shots", "workers", "generations", "population"):
+        if getattr(args, name) < 1:
+            raise UsageError(f"--{name} must be at least 1")
+    if not args.tolerance > 0:
+        raise UsageError("--tolerance must be positive")
     try:
         sources = parse_sources(args.noise)
         best = optimise(_existing(args.file), noise=sources, shots=args.shots, seed=args.seed,
-                        tolerance=args.tolerance)
+                        tolerance=args.tolerance, expect=args.expect, method=args.method, workers=args.workers,
+                        scheduler=args.scheduler, generations=args.generations, population=args.population)
     except ValueError as exc:
         raise UsageError(str(exc)) from None
+    where = f"on Dask at {args.scheduler}" if args.scheduler else (
+        f"on {args.workers} worker processes" if args.workers > 1 else "in this process")
+    print(f"{args.file}: objective: the fidelity of {best.objective}")
     print(f"{args.file}: fidelity {best.fidelity:.8f} at the optimum (start {best.start_fidelity:.8f}; "
-          f"{best.evaluations} simulations; noise {', '.join(sources) or 'off'})")
+          f"{best.method}, {best.evaluations} simulations {where}; noise {', '.join(sources) or 'off'})")
     print(best.let_block(), end="")
     if args.output:
         write_text(args.output, best.let_block())

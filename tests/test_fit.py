@@ -246,3 +246,61 @@ def test_auto_likelihood_is_binomial_for_small_counts_only():
     assert choose_likelihood("least_squares", [3]) == "least_squares"
     with pytest.raises(ValueError):
         fit_counts("sqrt_n", [1, 2, 3], [1, 2, 3], 10, likelihood="binomial")
+
+
+# ---- resonance → line_offset, blockade → C6 ----------------------------------------------------------
+def test_resonance_fit_calibrates_the_line_offset_and_tables_play_it(tmp_path):
+    """The invented resonance measurement (programs/measured/microwave_resonance.csv) was drawn with
+    the line 3.2 kHz above nominal (Rabi formula line shape, Foot 2005): the Lorentzian's centre finds
+    it within its 1σ; calibrate inserts `line_offset`, and the compiled table then plays the written
+    detuning + the offset while the atoms (timeline, simulation) keep the written one."""
+    import json
+    from seqlang.fit.calibrate import apply, proposal
+    measured = read_measured(str(ROOT / "programs/measured/microwave_resonance.csv"))
+    unit, delta = measured.parameters["delta"]
+    fit = fit_counts("resonance", delta, measured.counts["bright_bright_c0"], measured.repetitions)
+    assert fit.likelihood == "binomial"  # 40 repetitions per point
+    assert abs(fit.values["centre"] - 3.2) <= fit.errors["centre"]
+    document = {"parameter": "delta", "unit": unit, "si_factor": 1e3, "records": {"bright_bright_c0": {"fit": {
+        "model": "resonance", "values": fit.values, "errors": fit.errors}}}}
+    rig = tmp_path / "millpond.rig"
+    rig.write_text((ROOT / "programs/millpond.rig").read_text())
+    change = proposal(json.loads(json.dumps(document)), str(rig), drive="mw_cs")
+    assert change.old is None and "+    line_offset 2.8" in change.diff
+    apply(change)
+    seq = tmp_path / "line.seq"
+    seq.write_text('use "millpond.rig"\nsite c = cs at (0, 0) um\nsequence s {\n  pulse mw_cs area pi detuning 1 kHz\n}\n')
+    checked = seqlang.load(str(seq))
+    offset = checked.program.rig.drives["mw_cs"].extra["line_offset"]
+    assert offset == pytest.approx(fit.values["centre"] * 1e3, rel=1e-5)
+    played = [e for e in checked.compile().rows() if e.kind == "pulse"]
+    assert played[0].detuning_hz == pytest.approx(1e3 + offset, rel=1e-5)  # tick rounding scales Δ a little
+    assert checked.timeline.events[0].detuning_hz == pytest.approx(1e3, rel=1e-5)
+    again = proposal(json.loads(json.dumps(document)), str(rig), drive="mw_cs")  # a second round adds up
+    assert again.new.startswith("5.6") and again.old.startswith("2.8")
+
+
+def test_blockade_fit_gives_c6_from_the_crossover(tmp_path):
+    """C6/h = (Ω/2π)·R_b⁶ (R_b = (C6/hΩ)^(1/6), common practice): 1.3 MHz · (8 µm)⁶ = 340.8 GHz·µm⁶,
+    with 6·σR/R relative error."""
+    from seqlang.fit.calibrate import blockade_c6
+    rig = tmp_path / "millpond.rig"
+    rig.write_text((ROOT / "programs/millpond.rig").read_text())
+    document = {"parameter": "r", "unit": "um", "si_factor": 1e-6, "records": {"fidelity": {"fit": {
+        "model": "blockade", "values": {"radius": 8.0}, "errors": {"radius": 0.1}}}}}
+    text = blockade_c6(document, str(rig), "ryd_na")
+    assert "C6/h = (Ω/2π)·R_b⁶ = 340.8 ± 26 GHz·um^6" in text
+    document["unit"] = "us"
+    with pytest.raises(ValueError, match="scan of a distance"):
+        blockade_c6(document, str(rig), "ryd_na")
+
+
+def test_calibrate_rejects_a_file_that_is_not_a_fit(tmp_path):
+    bad = tmp_path / "fit.json"
+    bad.write_text("{\n  \"records\": [1,\n")
+    rig = ROOT / "programs/millpond.rig"
+    result = _cli("calibrate", str(bad), "--rig", str(rig), "--drive", "ryd_na", cwd=tmp_path)
+    assert result.returncode == 2 and "fit.json:3:1: not a fit file" in result.stderr
+    bad.write_text('{"records": {"x": {"fit": {"model": "rabi"}}}}')
+    result = _cli("calibrate", str(bad), "--rig", str(rig), "--drive", "ryd_na", cwd=tmp_path)
+    assert result.returncode == 2 and "Traceback" not in result.stderr, result.stderr

@@ -26,7 +26,8 @@ def register(sub) -> None:
     c.add_argument("fit", metavar="FIT_JSON", help="fit.json written by `seqlang fit`")
     c.add_argument("--rig", required=True, help="the rig file to change")
     target = c.add_mutually_exclusive_group(required=True)
-    target.add_argument("--drive", help="the drive whose `rabi` a Rabi fit calibrates")
+    target.add_argument("--drive", help="the drive whose `rabi` (Rabi fit) or `line_offset` (resonance fit) is "
+                                        "calibrated, or whose Rabi frequency gives C6 (blockade fit)")
     target.add_argument("--species", help="the species whose `t2_star` a Ramsey fit calibrates")
     c.add_argument("--record", help="which fitted record to use (default: the only one)")
     c.add_argument("--write", action="store_true", help="apply the change (atomically; the old file is kept)")
@@ -143,13 +144,25 @@ LIKELIHOOD_WORDS = {"binomial": "binomial maximum likelihood, 1 sigma from the i
 
 def cmd_calibrate(args) -> int:
     from ..cli import UsageError, _existing
-    from .calibrate import apply, proposal
+    from .calibrate import apply, blockade_c6, proposal
     with open(_existing(args.fit), encoding="utf-8") as handle:
-        document = json.load(handle)
+        try:
+            document = json.load(handle)
+        except json.JSONDecodeError as exc:
+            raise UsageError(f"{args.fit}:{exc.lineno}:{exc.colno}: not a fit file written by `seqlang fit` "
+                             f"({exc.msg})") from None
+    _existing(args.rig)
     try:
+        if _models(document) == {"blockade"}:
+            if args.drive is None:
+                raise ValueError("C6 from a blockade fit needs the drive whose Rabi frequency it was: --drive")
+            print(blockade_c6(document, args.rig, args.drive, args.record))
+            if args.write:
+                print("(nothing to write: the rig takes C6 from the atomic data)")
+            return 0
         change = proposal(document, args.rig, drive=args.drive, species=args.species, record=args.record)
-    except ValueError as exc:
-        raise UsageError(str(exc)) from None
+    except (ValueError, KeyError, TypeError) as exc:
+        raise UsageError(f"{args.fit}: {exc}" if not isinstance(exc, ValueError) else str(exc)) from None
     print(change.describe())
     print(change.diff, end="" if change.diff.endswith("\n") else "\n")
     if args.write:
@@ -158,6 +171,14 @@ def cmd_calibrate(args) -> int:
     else:
         print("(not applied: add --write to change the rig file)")
     return 0
+
+
+def _models(document) -> set:
+    try:
+        return {e["fit"]["model"] for e in document["records"].values() if "fit" in e}
+    except (KeyError, TypeError, AttributeError):
+        from ..cli import UsageError
+        raise UsageError("not a fit file written by `seqlang fit` (no records with fits)") from None
 
 
 def cmd_optimise(args) -> int:

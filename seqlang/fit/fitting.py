@@ -30,6 +30,7 @@ from . import models
 LIKELIHOODS = ("auto", "binomial", "least_squares")
 SMALL_COUNTS = 50  # below this many repetitions at a point, `auto` takes the binomial likelihood
 _EDGE = 1e-12  # a model probability is held inside [_EDGE, 1 − _EDGE] in the likelihood
+_OUTSIDE_WEIGHT = 1e3  # residual per unit of probability by which a curve leaves [0, 1]
 
 
 @dataclass(frozen=True)
@@ -123,11 +124,14 @@ def _binomial(name, envelope, start, x, counts, repetitions) -> Fit:
     function = models.function(name, envelope)
 
     def deviance(params):
-        p = np.clip(function(x, **params.valuesdict()), _EDGE, 1 - _EDGE)
+        raw = function(x, **params.valuesdict())
+        p = np.clip(raw, _EDGE, 1 - _EDGE)
         expected = repetitions * p
         terms = xlogy(counts, counts / expected) + xlogy(repetitions - counts, (repetitions - counts)
                                                          / (repetitions - expected))
-        return np.sign(counts - expected) * np.sqrt(np.maximum(2 * terms, 0.0))
+        # A curve outside [0, 1] is pushed back (the clipped likelihood alone is flat out there).
+        outside = _OUTSIDE_WEIGHT * np.sqrt(repetitions) * (raw - p)
+        return np.concatenate([np.sign(counts - expected) * np.sqrt(np.maximum(2 * terms, 0.0)), outside])
 
     result = lmfit.minimize(deviance, start.copy(), method="leastsq", scale_covar=False)
     names = [k for k, p in result.params.items() if p.vary]

@@ -116,6 +116,24 @@ def test_timeline_shows_images_levels_and_lab_ports():
     _non_blank(figure_bytes(ax.figure, dpi=40))
 
 
+
+def _dashed_frames(ax) -> list:
+    from matplotlib.patches import Rectangle
+    return [p for p in ax.patches if isinstance(p, Rectangle) and not p.get_fill() and p.get_linestyle() != "solid"]
+
+
+def test_timeline_marks_the_events_played_from_an_image_record(bell):
+    sequence = seqlang.load(str(PROGRAMS / "phase_correction.seq"))
+    conditioned = sequence.checked.quantized.conditioned()
+    assert conditioned, "the demo's final data pulse depends on the helpers' image"
+    ax = timeline_figure(sequence.checked).axes[0]
+    assert len(_dashed_frames(ax)) == len(conditioned)
+    assert any(t.get_text().endswith("← mid") for t in ax.texts)
+    assert any("image record" in t for t in _texts(ax.get_legend().get_texts()))
+    plain = timeline_figure(bell.checked).axes[0]  # nothing conditioned: no frame, no legend entry
+    assert not _dashed_frames(plain)
+    assert not any("image record" in t for t in _texts(plain.get_legend().get_texts()))
+
 # ---- populations and correlators ---------------------------------------------------
 def test_populations_figure_has_bands_markers_ideal_and_noise_caption(bell, noisy_bell):
     fig = populations_figure(noisy_bell, bell)

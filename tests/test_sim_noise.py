@@ -76,3 +76,50 @@ def test_binomial_error_bar_matches_sampled_spread():
 def test_unknown_noise_source_is_rejected():
     with pytest.raises(ValueError, match="unknown noise source"):
         noise.parse_sources("decay,gremlins")
+
+
+# A sodium atom entangled with two caesium atoms through blockade, then imaged: the caesium
+# pair's numbers given each outcome of the sodium atom are a ratio of per-shot sums.
+CONDITIONED = """\
+use "millpond.rig"
+site d = na at (0, 0) um
+site e = cs at (4.0, 0) um
+site h = cs at (-4.0, 0) um
+sequence s {
+  together {
+    pulse mw_na area pi/2 phase -90 deg
+    pulse mw_cs area pi/2 phase -90 deg
+  }
+  pulse ryd_cs on e area pi
+  pulse ryd_na area 2pi
+  pulse ryd_cs on e area pi
+  pulse ryd_cs on h area pi
+  pulse ryd_na area 2pi
+  pulse ryd_cs on h area pi
+  pulse mw_na area pi/2 phase 90 deg
+  image na -> m
+}
+expect e, h as psi_plus
+"""
+
+
+def test_conditioned_error_bars_match_the_spread_over_seeds(tmp_path):
+    """The ratio estimator's delta-method error (textbook; e.g. Cochran, Sampling Techniques,
+    1977, ch. 6) against the spread of the conditioned fidelity over independent seeds."""
+    import shutil
+    from pathlib import Path
+    shutil.copy(Path(__file__).resolve().parent.parent / "programs" / "millpond.rig", tmp_path)
+    (tmp_path / "c.seq").write_text(CONDITIONED, encoding="utf-8")
+    program = seqlang.load(str(tmp_path / "c.seq"))
+    given = [seqlang.simulate(program, noise="intensity,doppler", shots=300, seed=seed)
+             .expectations[0]["conditioned"][1] for seed in range(1, 41)]
+    assert {g["outcome"] for g in given} == {1} and all(g["site"] == "d" for g in given)
+    spread = np.std([g["fidelity"] for g in given], ddof=1)
+    reported = np.mean([g["fidelity_error"] for g in given])
+    # 40 seeds: the sample spread itself is uncertain by about 1/√78 ≈ 11 %
+    assert spread == pytest.approx(reported, rel=0.35)
+    p_spread = np.std([g["probability"] for g in given], ddof=1)
+    assert p_spread == pytest.approx(np.mean([g["probability_error"] for g in given]), rel=0.35)
+    exact = seqlang.simulate(program).expectations[0]["conditioned"]
+    assert exact and not any("fidelity_error" in g or "probability_error" in g for g in exact), \
+        "no error bar on an exact number"

@@ -138,7 +138,17 @@ def _draw_entry(ax, checked: Checked, lane: Lane, entry, row: int, labels) -> No
     text = f"L{entry.source.rsplit(':', 1)[-1]}"
     if entry.kind == "pulse" and entry.phase_rad:
         text += f" φ{entry.phase_rad:+.2f}"  # a phase jump is easy to miss between back-to-back pulses
+    if event is not None and event.decision is not None:
+        _mark_conditioned(ax, start, length, row, lane)
+        text += f" ← {event.decision.selection.record}"  # played per shot from that image record
     labels.add(ax, start, row, text, entry.kind != "gate")
+
+
+def _mark_conditioned(ax, start: float, length: float, row: int, lane: Lane) -> None:
+    """A dashed frame: what plays here depends on a mid-sequence image in the same shot."""
+    from matplotlib.patches import Rectangle
+    ax.add_patch(Rectangle((start, row - LANE_HALF), max(length, 0.0), 2 * LANE_HALF, fill=False,
+                           edgecolor=style.INK, linestyle=(0, (3, 2)), linewidth=1.0, zorder=3))
 
 
 def _draw_level(ax, checked: Checked, lane: Lane, entry, start: float, row: int) -> None:
@@ -243,6 +253,9 @@ def _legend_handles(checked: Checked, rows: list[Lane]) -> list:
         handles.append(Line2D([], [], color=style.INK, label="switch / set level"))
     handles.append(Line2D([], [], linestyle="none", marker="$L$", color="#555555",
                           label="L12 φ+1.57: source line 12, phase (rad)"))
+    if checked.quantized.conditioned():
+        handles.append(Patch(fill=False, edgecolor=style.INK, linestyle=(0, (3, 2)),
+                             label="dashed: played per shot from an image record (← record)"))
     return handles
 
 

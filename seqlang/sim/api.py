@@ -395,7 +395,7 @@ def _expectation(program, clusters, expect) -> dict:
     if ghz:
         out["ghz"] = observables.ghz_numbers(block, count)
     out.update(_errors(clusters, expect, out, block, requested, ghz))
-    out["conditioned"] = _conditioned(program, clusters, expect)
+    out["conditioned"] = _conditioned(program, clusters, expect, out)
     return out
 
 
@@ -426,14 +426,13 @@ def _errors(clusters, expect, numbers: dict, block: np.ndarray, requested, ghz: 
     unit = np.conj(coherence) / abs(coherence) if abs(coherence) > 0 else 1.0
     paulis = [observables.pauli_string(p) for p in pairs]
 
+    linear = _linear_numbers(target, paulis)
+
     def functional(rho: np.ndarray) -> np.ndarray:
-        values = [np.real(np.einsum("i,sij,j->s", target.conj(), rho, target))[:, None],
-                  np.real(np.diagonal(rho, axis1=1, axis2=2))]
-        if paulis:
-            values.append(np.stack([np.real(np.einsum("sij,ji->s", rho, p)) for p in paulis], axis=1))
+        values = linear(rho)
         if ghz:  # C = 2|ρ₀…₀,₁…₁|, linearised about the mean coherence's phase
-            values.append(2 * np.real(unit * rho[:, 0, -1])[:, None])
-        return np.concatenate(values, axis=1)
+            values = np.concatenate([values, 2 * np.real(unit * rho[:, 0, -1])[:, None]], axis=1)
+        return values
 
     errors = statistics.product_errors(parts, functional, lambda rho: _reorder_batch(rho, order, want))
     out = {"fidelity_error": observables.clean(errors[0]),
@@ -451,6 +450,42 @@ def _errors(clusters, expect, numbers: dict, block: np.ndarray, requested, ghz: 
         error = statistics.any_level_error(parts, level)
         if error is not None:
             out[key + "_error"] = observables.clean(error)
+    return out
+
+
+def _linear_numbers(target: np.ndarray, paulis: list[np.ndarray]):
+    """Qubit blocks (S, d, d) → (S, m): fidelity, the populations, then the Pauli correlators
+    (all linear in the block, so that ratio and delta-method errors apply)."""
+    def numbers(rho: np.ndarray) -> np.ndarray:
+        values = [np.real(np.einsum("i,sij,j->s", target.conj(), rho, target))[:, None],
+                  np.real(np.diagonal(rho, axis1=1, axis2=2))]
+        if paulis:
+            values.append(np.stack([np.real(np.einsum("sij,ji->s", rho, p)) for p in paulis], axis=1))
+        return np.concatenate(values, axis=1)
+    return numbers
+
+
+def _conditioned_errors(clusters, expect, cluster, condition, numbers: dict) -> dict:
+    """Monte Carlo errors of the numbers given an outcome in the expectation's own cluster:
+    a ratio of per-shot sums (the outcome's weight varies from shot to shot)."""
+    if not (cluster.sampled and cluster.shots > 1) or not set(expect.sites) <= set(cluster.model.sites) \
+            or len(expect.sites) > statistics.MAX_ERROR_SITES:
+        return {}
+    keep = [i for i, site in enumerate(cluster.model.sites) if site in expect.sites]
+    order, want = [cluster.model.sites[i] for i in keep], list(expect.sites)
+    labels, pairs = list(numbers["populations"]), list(numbers.get("correlators", {}))
+    target = observables.target_vector(expect.state, expect.is_ket, len(want), getattr(expect, "phase_rad", 0.0))
+    errors = statistics.ratio_errors(cluster, keep, cluster.factors(condition),
+                                     _linear_numbers(target, [observables.pauli_string(p) for p in pairs]),
+                                     lambda rho: _reorder_batch(rho, order, want))
+    if errors is None:
+        return {}
+    out = {"fidelity_error": observables.clean(errors[0]),
+           "populations_error": {k: observables.clean(v) for k, v in zip(labels, errors[1:1 + len(labels)])}}
+    if pairs:
+        out["correlators_error"] = {k: observables.clean(v) for k, v in zip(pairs, errors[1 + len(labels):])}
+    weights = cluster.shot_weights(condition)
+    out["probability_error"] = observables.clean(np.std(weights, ddof=1) / math.sqrt(len(weights)))
     return out
 
 
@@ -473,13 +508,16 @@ def _any_level(clusters, sites, level: int) -> float:
     return 1.0 - none
 
 
-def _conditioned(program, clusters, expect) -> list[dict]:
+def _conditioned(program, clusters, expect, unconditioned_numbers: dict) -> list[dict]:
     """The expected sites' numbers given each reported imaging outcome of another site.
 
-    An outcome in an independent cluster leaves the numbers as they are (only its
-    probability is computed); those are listed for arrays of up to MAX_CONDITIONED_CLUSTERS
-    clusters, outcomes within the expectation's own clusters always.
+    An outcome in an independent cluster leaves the numbers (and their errors) as they are
+    (only its probability is computed); those are listed for arrays of up to
+    MAX_CONDITIONED_CLUSTERS clusters, outcomes within the expectation's own clusters always.
     """
+    same_errors = {k: v for k, v in unconditioned_numbers.items()
+                   if k in ("fidelity_error", "populations_error", "correlators_error",
+                            "residual_rydberg_error", "loss_error")}
     out = []
     unconditioned = None
     for cluster in clusters:
@@ -498,10 +536,17 @@ def _conditioned(program, clusters, expect) -> list[dict]:
                     rho = rho / np.trace(rho).real
                     numbers = observables.summarize(rho, len(expect.sites), expect.state, expect.is_ket,
                                                     getattr(expect, "phase_rad", 0.0))
+                    errors = (_conditioned_errors(clusters, expect, cluster, condition, numbers) if touching
+                              else same_errors)
+                    numbers = {**numbers, **errors}
                     if not touching:
                         unconditioned = numbers
                 else:
                     numbers = unconditioned
+                if not touching and cluster.sampled and cluster.shots > 1:
+                    weights = cluster.shot_weights(condition)
+                    numbers = {**numbers, "probability_error": observables.clean(
+                        np.std(weights, ddof=1) / math.sqrt(len(weights)))}
                 out.append({"record": record, "site": site, "outcome": bit,
                             "probability": observables.clean(weight), **numbers})
     return out

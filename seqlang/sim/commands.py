@@ -234,7 +234,8 @@ def _expectation_lines(e: dict, noise: dict) -> list[str]:
         lines += feed_forward_lines(e["feed_forward"])
     for cond in e["conditioned"]:
         lines.append(f"  given {cond['record']}[{cond['site']}] = {cond['outcome']} "
-                     f"(p = {cond['probability']:.4f}): fidelity {cond['fidelity']:.6f}")
+                     f"(p = {cond['probability']:.4f}{_pm(cond, 'probability_error', '.1g')}): "
+                     f"fidelity {cond['fidelity']:.6f}{_pm(cond, 'fidelity_error')}")
     return lines
 
 

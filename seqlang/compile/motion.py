@@ -54,6 +54,16 @@ def positions_at(program: Program, timeline: Timeline, t: float) -> dict[str, tu
     return where
 
 
+def position_at(program: Program, timeline: Timeline, name: str, t: float) -> tuple[float, float, float]:
+    """One site's position at time t (as `positions_at`, without building every site's)."""
+    where = program.sites[name].position_m
+    for move in moves(timeline):
+        if name in move.targets:
+            done = minimum_jerk((t - move.start_s) / move.duration_s) if move.duration_s else float(t >= move.start_s)
+            where = tuple(x + done * d for x, d in zip(where, move.displacement_m))
+    return where
+
+
 def moving_at(timeline: Timeline, start: float, end: float) -> set[str]:
     """Sites that are being moved at some time within [start, end)."""
     return {s for m in moves(timeline) if m.start_s < end and start < m.end_s for s in m.targets}
@@ -88,3 +98,75 @@ def peak_speed(move: Event) -> tuple[float, float]:
     """(peak velocity m/s, peak acceleration m/s²) of a move along its path."""
     distance = math.sqrt(sum(d * d for d in move.displacement_m))
     return PEAK_VELOCITY * distance / move.duration_s, PEAK_ACCELERATION * distance / move.duration_s**2
+
+
+def closest_approaches(program: Program, timeline: Timeline, limit: float, samples: int) -> dict[int, tuple]:
+    """For each move (by position in `moves(timeline)`) that brings one of its sites closer than
+    `limit` to another site: (site, other, distance) at the first of `samples` + 1 sample times.
+
+    Vectorised over sites and sample times: positions start from the sites settled by the
+    moves that ended before this one started, plus the partial progress of the moves that
+    overlap it, so thousands of moves (a rearrangement) are checked in well under a second.
+    """
+    all_moves = moves(timeline)
+    if not all_moves:
+        return {}
+    import numpy as np
+    names = list(program.sites)
+    where = {n: k for k, n in enumerate(names)}
+    settled = np.array([program.sites[n].position_m for n in names], dtype=float).reshape(-1, 3)
+    order = sorted(range(len(all_moves)), key=lambda k: (all_moves[k].start_s, k))
+    by_end = sorted(range(len(all_moves)), key=lambda k: (all_moves[k].end_s, k))
+    done, out, taus = 0, {}, np.linspace(0.0, 1.0, samples + 1)
+    for k in order:
+        move = all_moves[k]
+        while done < len(by_end) and all_moves[by_end[done]].end_s <= move.start_s:
+            m = all_moves[by_end[done]]
+            settled[[where[s] for s in m.targets]] += m.displacement_m
+            done += 1
+        pending = set(by_end[done:])
+        times = move.start_s + move.duration_s * taus
+        overlapping = [all_moves[j] for j in sorted(pending) if all_moves[j].start_s < move.end_s or j == k]
+        moving = sorted({where[s] for m in overlapping for s in m.targets})
+        near = _near_path(settled, [where[s] for s in move.targets], move.displacement_m, limit)
+        keep = np.array(sorted(set(moving) | set(near.tolist())), dtype=int)
+        local = {int(site): n for n, site in enumerate(keep)}
+        positions = np.repeat(settled[keep][None], len(times), axis=0)
+        for m in overlapping:
+            fraction = np.array([minimum_jerk((t - m.start_s) / m.duration_s) if m.duration_s
+                                 else float(t >= m.start_s) for t in times])
+            positions[:, [local[where[s]] for s in m.targets]] += fraction[:, None, None] * np.asarray(m.displacement_m)
+        found = _first_too_close(positions, [local[where[s]] for s in move.targets], limit)
+        if found is not None:
+            found = (int(keep[found[0]]), int(keep[found[1]]), found[2])
+        if found is not None:
+            a, b, distance = found
+            out[k] = (names[a], names[b], distance)
+    return out
+
+
+def _near_path(settled, targets: list[int], displacement, limit: float):
+    """Sites at rest within `limit` of the straight path of a moved site (a move is straight)."""
+    import numpy as np
+    d = np.asarray(displacement, dtype=float)
+    length2 = float(d @ d)
+    near = []
+    for a in targets:
+        rel = settled - settled[a]
+        tau = np.clip(rel @ d / length2, 0.0, 1.0) if length2 else np.zeros(len(settled))
+        gap = np.linalg.norm(rel - tau[:, None] * d, axis=1)
+        near.append(np.nonzero(gap < limit * (1 + 1e-9) + 1e-12)[0])
+    return np.unique(np.concatenate(near)) if near else np.zeros(0, dtype=int)
+
+
+def _first_too_close(positions, targets: list[int], limit: float):
+    """(moved site, other site, distance) of the first sample, target and site closer than `limit`."""
+    import numpy as np
+    gaps = np.linalg.norm(positions[:, targets, None, :] - positions[:, None, :, :], axis=-1)
+    for j, a in enumerate(targets):
+        gaps[:, j, a] = np.inf
+    close = gaps < limit
+    if not close.any():
+        return None
+    sample, j, b = (int(x) for x in np.argwhere(close)[0])
+    return targets[j], b, float(gaps[sample, j, b])

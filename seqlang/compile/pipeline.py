@@ -7,6 +7,7 @@ from __future__ import annotations
 from dataclasses import dataclass
 from typing import Mapping
 
+from ..arrays.stage import occupy
 from ..lang.diagnostics import ERROR, Diagnostic, SeqlangError
 from ..lang.parser import cyclic_gc_paused
 from ..program.model import Program
@@ -43,7 +44,10 @@ def check(path: str, sources: Mapping[str, str] | None = None, point: int | None
 
 
 def check_program(program: Program, diags: list[Diagnostic]) -> Checked:
-    """The passes after resolution (lowering, timing checks, quantization, hardware plan)."""
+    """The passes after resolution (the occupancy of a shot, lowering, timing checks,
+    quantization, hardware plan)."""
+    if not any(d.severity == ERROR for d in diags):
+        program = occupy(program)
     timeline = lower(program)
     diags = diags + check_timeline(program, timeline) + check_decisions(program, timeline)
     if not any(d.severity == ERROR for d in diags):

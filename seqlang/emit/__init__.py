@@ -9,7 +9,7 @@ from .waveforms import waveforms_npz
 
 
 def write_all(checked: Checked, directory: str) -> list[str]:
-    """Write the three tables into `directory` as one set; return their paths.
+    """Write the tables (three, and the branch and rearrangement tables where they apply) into `directory` as one set; return their paths.
 
     The folder is replaced as a whole (see :mod:`seqlang.emit.atomic`): a reader
     never finds a new `timing.csv` beside an old `timing.json`.
@@ -21,4 +21,8 @@ def write_all(checked: Checked, directory: str) -> list[str]:
     }
     if has_branches(checked):  # feed-forward: the branch table belongs to the same set
         outputs["branches.csv"] = branches_csv(checked).encode("utf-8")
+    state = checked.program.arrays
+    if state is not None and state.plans:  # rearrangement: the plan, leg by leg
+        from .arrays import rearrangement_csv
+        outputs["rearrangement.csv"] = rearrangement_csv(state).encode("utf-8")
     return write_set(directory, outputs)

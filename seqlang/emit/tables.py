@@ -134,8 +134,18 @@ def provenance(checked: Checked) -> dict:
         "sequence": _relative(checked, checked.program.path),
         "sources": {_relative(checked, p): h for p, h in sorted(checked.program.sources.items())},
         "rig": _relative(checked, checked.program.rig.path), "tick_ns": _num(checked.plan.tick_s * 1e9),
-        **_scan_point(checked.program),
+        **_scan_point(checked.program), **_occupancy(checked.program),
     }
+
+
+def _occupancy(program) -> dict:
+    """The load seed (or the occupancy file) of a program whose traps load with a probability."""
+    state = getattr(program, "arrays", None)
+    if state is None:
+        return {}
+    if state.occupancy.given is not None:
+        return {"occupancy": os.path.basename(state.occupancy.source or "")}
+    return {"load_seed": state.occupancy.seed}
 
 
 def _scan_point(program) -> dict:
@@ -175,6 +185,9 @@ def timing_json(checked: Checked) -> str:
         "ports": {port: [_port_entry(checked, e) for e in events] for port, events in plan.ports.items()},
         "timeline": [timeline_entry(checked, e) for e in checked.quantized.events],
     }
+    if checked.program.arrays is not None:  # loading and rearrangement (emit/arrays.py)
+        from .arrays import array_document
+        document["arrays"] = array_document(checked.program.arrays)
     if checked.quantized.conditioned():  # feed-forward: the branch table (emit/branches.py)
         from .branches import branch_rows
         document["branches"] = branch_rows(checked)

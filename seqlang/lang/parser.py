@@ -390,7 +390,36 @@ class _Builder(Transformer):
         return ast.SiteStmt(self._ident(name), self._ident(species), position, self._span(meta))
 
     def name_list(self, children):
-        return tuple(self._ident(c) for c in children)
+        return tuple(c if isinstance(c, ast.Indexed) else self._ident(c) for c in children)
+
+    @v_args(meta=True)
+    def indexed(self, meta, children):
+        return ast.Indexed(self._ident(children[0]), tuple(children[1:]), self._span(meta))
+
+    def index_one(self, children):
+        return children[0]
+
+    def index_span(self, children):
+        return (children[0], children[1])
+
+    def index_all(self, children):
+        return None
+
+    @v_args(meta=True)
+    def lattice_def(self, meta, children):
+        name, kind, *props = children
+        return ast.LatticeDecl(self._ident(name), self._ident(kind), tuple(props), self._span(meta))
+
+    @v_args(meta=True)
+    def lattice_file(self, meta, children):
+        name, path, *props = children
+        return ast.LatticeFile(self._ident(name), str(path)[1:-1], _token_span(path, self.path), tuple(props),
+                               self._span(meta))
+
+    @v_args(meta=True)
+    def fill_stmt(self, meta, children):
+        targets, sources, *props = children
+        return ast.FillStmt(targets, sources, tuple(props), self._span(meta))
 
     @v_args(meta=True)
     def group_stmt(self, meta, children):

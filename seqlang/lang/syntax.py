@@ -243,6 +243,37 @@ class GroupStmt:
 
 
 @node
+class Indexed:
+    """``d[3, 4]`` or ``d[0 .. 4, *]``: sites of a lattice by index (each index: an expr,
+    a ``(low, high)`` pair of exprs, ends included, or None for ``*``)."""
+
+    name: Ident
+    indices: tuple
+    span: Span
+
+
+@node
+class LatticeDecl:
+    """``lattice d = square { pitch 5 um  size (12, 10) ... }``."""
+
+    name: Ident
+    kind: Ident
+    props: tuple[Prop, ...]
+    span: Span
+
+
+@node
+class LatticeFile:
+    """``lattice t from "traps.csv" [props]``: positions from a CSV (x, y, species, name)."""
+
+    name: Ident
+    path: str
+    path_span: Span
+    props: tuple[Prop, ...]
+    span: Span
+
+
+@node
 class PulseStmt:
     """``pulse drive [on targets] key value ...``."""
 
@@ -356,6 +387,16 @@ class MoveStmt:
 
 
 @dataclass(frozen=True)
+class FillStmt:
+    """``fill targets [from sources]``: move loaded atoms onto the target sites."""
+
+    targets: tuple[Ident, ...]
+    sources: tuple[Ident, ...] | None
+    props: tuple[Prop, ...]
+    span: Span
+
+
+@dataclass(frozen=True)
 class OutcomeIs:
     """``mid[h] is bright`` (or ``dark``): a `when` condition on one site."""
 
@@ -375,7 +416,7 @@ class WhenStmt:
 
 
 Stmt = Union[PulseStmt, WaitStmt, TogetherStmt, RepeatStmt, DoStmt, ImageStmt,
-             SwitchStmt, SetStmt, TriggerStmt, LetStmt, FieldStmt, MoveStmt, WhenStmt]
+             SwitchStmt, SetStmt, TriggerStmt, LetStmt, FieldStmt, MoveStmt, WhenStmt, FillStmt]
 
 
 @node
@@ -485,7 +526,7 @@ class FreeDecl:
 
 
 Item = Union[UseStmt, ImportStmt, RigDef, LetStmt, SiteStmt, GroupStmt, BlockDef,
-             SequenceDef, ExpectStmt, ScanDecl, LockstepDecl, FreeDecl]
+             SequenceDef, ExpectStmt, ScanDecl, LockstepDecl, FreeDecl, LatticeDecl, LatticeFile]
 
 
 @node

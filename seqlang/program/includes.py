@@ -20,7 +20,8 @@ import stat
 
 RIG_PATH_VARIABLE = "SEQLANG_RIG_PATH"
 MAX_SOURCE_BYTES = 64 * 2**20
-_KINDS = {".rig": "`use` reads rig files (`*.rig`)", ".seq": "`import` reads sequence files (`*.seq`)"}
+_KINDS = {".rig": "`use` reads rig files (`*.rig`)", ".seq": "`import` reads sequence files (`*.seq`)",
+          ".csv": "`lattice … from` reads trap files (`*.csv`)"}
 
 
 class FileRefused(OSError):

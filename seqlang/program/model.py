@@ -127,6 +127,22 @@ class Site:
 
 
 @dataclass(frozen=True)
+class Layout:
+    """A named site set from `lattice` (generated, or read from a CSV file): its sites in index
+    order and each site's index (i, j), (i, j, k) for the honeycomb, (row,) for a file."""
+
+    name: str
+    kind: str  # square, rectangular, triangular, hexagonal, or file
+    pitch_m: tuple[float, float]  # nearest-neighbour distance along x, y (0 for a file)
+    size: tuple[int, ...]  # index range per axis
+    origin_m: tuple[float, float, float]
+    rotation_rad: float
+    sites: tuple[str, ...]
+    index: Mapping[tuple[int, ...], str]
+    span: Span
+
+
+@dataclass(frozen=True)
 class Shape:
     """A pulse envelope: kind and its parameters (seconds or fractions)."""
 
@@ -273,6 +289,17 @@ class MoveOp:
 
 
 @dataclass(frozen=True)
+class FillOp:
+    """``fill``: move loaded atoms of `sources` onto every site of `targets` (planned once the
+    occupancy is known, by seqlang.arrays.stage); `strategy` names the collision avoidance."""
+
+    targets: tuple[str, ...]
+    sources: tuple[str, ...]
+    strategy: str
+    span: Span
+
+
+@dataclass(frozen=True)
 class BranchOp:
     """``when``: `then` plays for the keys where `decision.enabled`, `otherwise` for the rest;
     both start together and last as long as the longer one (the shorter is padded)."""
@@ -283,7 +310,7 @@ class BranchOp:
     span: Span
 
 
-Op = Union[PulseOp, WaitOp, ImageOp, PortOp, SerialOp, TogetherOp, RepeatOp, BranchOp, FieldOp, MoveOp]
+Op = Union[PulseOp, WaitOp, ImageOp, PortOp, SerialOp, TogetherOp, RepeatOp, BranchOp, FieldOp, MoveOp, FillOp]
 
 
 @dataclass(frozen=True)
@@ -315,6 +342,8 @@ class Program:
     point: Mapping[str, float] = field(default_factory=dict)  # this point's scanned values (SI)
     point_index: int = 0
     free: tuple = ()  # program.scans.FreeParam of each `free` declaration
+    layouts: Mapping[str, Layout] = field(default_factory=dict)  # `lattice` declarations
+    arrays: object = None  # an arrays.stage.ArrayState once the occupancy is applied
 
     def sites_of(self, species: str) -> tuple[str, ...]:
         return tuple(n for n, s in self.sites.items() if s.species == species)

@@ -19,6 +19,7 @@ from . import includes
 from .evaluate import EvalError, Scope, evaluate, evaluate_any, expect_kind
 from .model import Expectation, Program, Rig, SerialOp, Site
 from .scans import bind_free, bind_point, override_rig, resolve_free, resolve_scans
+from .layouts import expand_refs, resolve_layouts
 from .sequence import SequenceResolver
 
 BELL_STATES = ("phi_plus", "phi_minus", "psi_plus", "psi_minus")
@@ -196,18 +197,40 @@ def _resolve_loaded(loaded: Loaded, diags: list[Diagnostic], failed: set[str], p
     files = loaded.imports + [loaded.main]
     _bind_lets(files, scope, diags, failed)
     sites = _sites(loaded.main, rig, scope, diags, failed)
-    groups = _groups(loaded.main, sites, diags)
+    main, files, layouts = _lattices(loaded, files, rig, sites, scope, diags, failed)
+    groups = _groups(main, sites, diags, {n: layout.sites for n, layout in layouts.items()})
     blocks = _blocks(files, diags)
-    sequences = [i for i in loaded.main.items if isinstance(i, ast.SequenceDef)]
+    sequences = [i for i in main.items if isinstance(i, ast.SequenceDef)]
     if len(sequences) > 1:
         diags.append(error("a file holds one `sequence`; this is a second", sequences[1].name.span))
     name = sequences[0].name.name if sequences else os.path.splitext(os.path.basename(loaded.main.path))[0]
     resolver = SequenceResolver(rig, sites, groups, blocks, diags)
     body = resolver.resolve_body(sequences[0].body, scope, sequences[0].span) if sequences \
         else SerialOp((), Span(loaded.main.path, 1, 1, 1, 1))
-    expects = _expects(loaded.main, sites, groups, diags, failed, scope)
+    expects = _expects(main, sites, groups, diags, failed, scope)
     return Program(name, loaded.main.path, rig, sites, groups, body, expects,
-                   dict(sorted(loaded.hashes.items())), dict(scope.values), space, values, point, free)
+                   dict(sorted(loaded.hashes.items())), dict(scope.values), space, values, point, free, layouts)
+
+
+def _lattices(loaded: Loaded, files, rig: Rig, sites: dict[str, Site], scope: Scope,
+              diags: list[Diagnostic], failed: set[str]):
+    """Lattice sites join `sites`; the files come back with every `d[3, 4]` spelt out."""
+    has = any(isinstance(i, (ast.LatticeDecl, ast.LatticeFile)) for i in loaded.main.items)
+    taken = set(sites) | {g.name.name for g in loaded.main.items if isinstance(g, ast.GroupStmt)}
+    layouts, new = resolve_layouts(loaded.main, rig, scope, taken, diags, loaded.hashes) if has else ({}, {})
+    failed.update(d.name.name for d in loaded.main.items
+                  if isinstance(d, (ast.LatticeDecl, ast.LatticeFile)) and d.name.name not in layouts)
+    sites.update(new)
+    _check_distinct_positions(sites, diags) if new else None
+    if not _mentions_index(loaded):
+        return loaded.main, files, layouts
+    files = [expand_refs(f, layouts, scope, diags) for f in files]
+    return files[-1], files, layouts
+
+
+def _mentions_index(loaded: Loaded) -> bool:
+    """Whether any `d[...]` may appear (a cheap look at the texts; expanding walks the whole tree)."""
+    return any("[" in f.text for f in loaded.imports + [loaded.main])
 
 
 def _failed_scans(source: ast.SourceFile, space) -> set[str]:
@@ -281,8 +304,9 @@ def _check_distinct_positions(sites: dict[str, Site], diags: list[Diagnostic]) -
         seen[key] = site.name
 
 
-def _groups(source: ast.SourceFile, sites: dict[str, Site], diags: list[Diagnostic]) -> dict[str, tuple[str, ...]]:
-    groups: dict[str, tuple[str, ...]] = {}
+def _groups(source: ast.SourceFile, sites: dict[str, Site], diags: list[Diagnostic],
+            lattices: dict[str, tuple[str, ...]] | None = None) -> dict[str, tuple[str, ...]]:
+    groups: dict[str, tuple[str, ...]] = dict(lattices or {})
     for stmt in (i for i in source.items if isinstance(i, ast.GroupStmt)):
         name = stmt.name.name
         if name in groups or name in sites:

@@ -70,6 +70,11 @@ SPECIES_KEYS = {
     "field_sensitivity": p.Key(p.quantity(_PER_FIELD), 0.0),
     # Light shift of the Rydberg level by the trap light while the traps are on.
     "trap_rydberg_shift": p.Key(p.frequency, 0.0),
+    # Arrays (docs/arrays.md): stochastic loading and the survival of rearrangement moves.
+    "loading": p.Key(p.fraction, 1.0, doc="probability that a trap of this species loads an atom"),
+    "move_survival": p.Key(p.fraction, 1.0, doc="probability that an atom survives one relocation"),
+    "move_loss_length": p.Key(p.positive(p.length, "loss length"), None,
+                              doc="1/e length of transport survival: exp(-L/length)"),
 }
 
 _COMMON_DRIVE_KEYS = {

@@ -15,7 +15,7 @@ from ..lang.units import format_quantity
 from . import props as p
 from .decisions import FeedForwardMixin
 from .evaluate import EvalError, Scope, SiteRef, evaluate, evaluate_any, expect_kind
-from .model import (Drive, FieldOp, ImageOp, MoveOp, PortOp, PulseOp, RepeatOp, Rig, SerialOp, Shape, Site,
+from .model import (Drive, FieldOp, FillOp, ImageOp, MoveOp, PortOp, PulseOp, RepeatOp, Rig, SerialOp, Shape, Site,
                     TogetherOp, WaitOp)
 
 MAX_REPEAT = 1_000_000
@@ -53,6 +53,11 @@ MOVE_PROFILES = ("minimum_jerk",)
 MOVE_KEYS = {
     "duration": p.Key(p.positive(p.duration, "duration"), None, required=True, doc="how long the move takes"),
     "profile": p.Key(p.choice(*MOVE_PROFILES), "minimum_jerk"),
+}
+FILL_STRATEGIES = ("corridors", "straight")
+FILL_KEYS = {
+    "strategy": p.Key(p.choice(*FILL_STRATEGIES), "corridors",
+                      doc="corridors: between the lattice rows and columns; straight: direct paths"),
 }
 E_FIELD = tuple(v - l for v, l in zip(units.VOLTAGE, units.LENGTH))
 
@@ -267,6 +272,25 @@ class SequenceResolver(FeedForwardMixin):
         for name in names:
             self.positions[name] = tuple(a + d for a, d in zip(self.positions[name], shift))
         return MoveOp(tuple(names), shift, v["duration"], v["profile"], stmt.span)
+
+    def _FillStmt(self, stmt: ast.FillStmt, scope: Scope) -> FillOp | None:
+        targets = self._names_of(stmt.targets, scope)
+        sources = self._names_of(stmt.sources, scope) if stmt.sources is not None else \
+            tuple(n for n, s in self.sites.items() if s.species in {self.sites[t].species for t in targets})
+        v = p.read_props(stmt.props, FILL_KEYS, scope, "a fill", stmt.span, self.diags)
+        if not targets:
+            return None
+        kinds = {self.sites[n].species for n in sources} - {self.sites[t].species for t in targets}
+        if kinds:
+            raise EvalError(error(f"the sources hold {', '.join(sorted(kinds))} atoms, which no target site "
+                                  "holds", stmt.sources[0].span, "fill each species from its own sites"))
+        return FillOp(targets, sources, v["strategy"], stmt.span)
+
+    def _names_of(self, idents, scope: Scope) -> tuple[str, ...]:
+        names: list[str] = []
+        for ident in idents:
+            names += [n for n in self._target_names(ident, scope) if n not in names]
+        return tuple(names)
 
     def _coordinates(self, expr: ast.Expr, scope: Scope) -> tuple[float, float, float]:
         value = evaluate_any(expr, scope)

@@ -18,7 +18,7 @@ from . import shared as shared_noise
 from .basis import Basis, full_basis, norms, partial_trace_density, partial_trace_kets, probabilities, site_populations
 from .clusters import CLUSTER_THRESHOLD, representatives, smallest_rydberg_rabi_hz
 from .clusters import clusters as find_clusters
-from .model import DIM, LOST, RYD, Model, build_model, leg_rabi, pair_interactions_hz
+from .model import DIM, LOST, RYD, Model, build_model, leg_rabi, pair_interactions_hz, with_latency_remainders
 from .runner import SHOT_CHUNK, TRUNCATION_TOLERANCE, Plan, Progress, Runner, final_states  # noqa: F401
 
 ENGINES = ("auto", "fast", "trajectories", "lindblad", "qutip")
@@ -27,7 +27,10 @@ OPTIONS = {"interactions_hz": None, "history": False, "ladder": False, "noise": 
            "memory_limit": limits.MEMORY_LIMIT, "shared_noise": True, "feed_forward": True}
 # Outcomes rarer than this are not worth a conditioned report.
 MIN_CONDITION_PROBABILITY = 1e-9
-FULL_DENSITY_SITES = 5  # expectations over more sites are read from the qubit block only
+# Expectations over more sites are read from the qubit block and level probabilities (the
+# same numbers without the 4ⁿ × 4ⁿ reduced density matrix: 16 MB for five atoms).
+FULL_DENSITY_SITES = 4
+CONDITIONED_SITES = 5  # expectations over more sites list no numbers given an imaging outcome
 MAX_CONDITIONED_CLUSTERS = 16  # larger arrays list conditions only within the expectation's clusters
 
 
@@ -150,6 +153,11 @@ class SimulationResult:
     reduction: dict = field(default_factory=dict)
     pair_models: dict = field(default_factory=dict)  # (a, b) -> atoms.pairs.PairShift, when computed here
     program: object = field(default=None, repr=False, compare=False)  # for array summaries
+    # (a, b) -> ((start_s, PairShift), ...): the pair's shift from each later Rydberg pulse at a new
+    # geometry (after a move) on; the first one is in pair_models.
+    pair_tracks: dict = field(default_factory=dict)
+    # Output → latency remainder (s) applied to its pulses and imagings (the nonzero ones).
+    latency_remainders_s: dict = field(default_factory=dict)
 
     def reduced_density(self, sites: tuple[str, ...], condition=None) -> np.ndarray:
         """Density matrix (4 levels per atom) of `sites`, optionally given one imaging outcome."""
@@ -222,27 +230,37 @@ def simulate(source, **options) -> SimulationResult:
         raise ValueError(f"unknown engine {options['engine']!r}; use one of {', '.join(ENGINES)}")
     from ..api import Sequence, load
     sequence = source if isinstance(source, Sequence) else load(str(source))
-    program, timeline = sequence.program, sequence.played
+    program = sequence.program
+    # What the atoms see: the played timeline with each output's sub-tick latency remainder.
+    remainders = {port: r for port, r in sequence.checked.plan.latency_remainder_s.items() if r}
+    timeline = with_latency_remainders(sequence.played, remainders)
     sources = noise.parse_sources(options["noise"]) if isinstance(options["noise"], str) else tuple(options["noise"])
     limits.check_shots(options["shots"])
     interactions = options["interactions_hz"]
-    warnings, pair_models = [], {}
+    warnings, pair_models, tracks = [], {}, {}
     if interactions is None:
-        # Near pairs only (one C6 per species pair), then the pair model of each near
-        # Rydberg pair at its geometry (perturbative or diagonalised; atoms.pairs).
-        from ..compile.geometry import pair_shifts
-        cutoff = CLUSTER_THRESHOLD * smallest_rydberg_rabi_hz(program, timeline)
+        # Near pairs only (one C6 per species pair; every pair when sites move), then the pair
+        # model of each near Rydberg pair at each of its geometries (atoms.pairs).
+        from ..compile.geometry import pair_shift_track
+        moving = any(e.kind == "move" for e in timeline.events)
+        cutoff = 0.0 if moving else CLUSTER_THRESHOLD * smallest_rydberg_rabi_hz(program, timeline)
         interactions = pair_interactions_hz(program, tuple(program.sites), cutoff)
-        pair_models = pair_shifts(program, timeline, pairs=set(interactions))
+        tracks = pair_shift_track(program, timeline, pairs=set(interactions))
+        pair_models = {pair: track[0][1] for pair, track in tracks.items()}
         interactions.update({pair: model.shift_hz for pair, model in pair_models.items()})
         warnings = _forster_warnings(program)
+    hz_tracks = {pair: tuple((t, shift.shift_hz, r) for t, shift, r in track) for pair, track in tracks.items()}
+    # Clusters by each pair's strongest shift over the sequence (a move can bring atoms together).
+    strongest = {**interactions, **{pair: max((v for _, v, _ in track), key=abs)
+                                    for pair, track in hz_tracks.items()}}
     if options["ladder"] and not any(leg_rabi(d, 1.0) for d in program.rig.drives.values()):
         warnings.append(warning("ladder mode: no Rydberg drive declares `intermediate`, `lower_rabi` and "
                                 "`upper_rabi`, so the explicit ladder is the effective model", program.rig.span))
     if timeline.conditioned():  # measurement-conditioned operations: the feed-forward path
-        return _feed_forward(program, timeline, options, sources, interactions, warnings)
-    models = [build_model(program, timeline, group, interactions, ladder=options["ladder"])
-              for group in find_clusters(program, timeline, interactions)]
+        result = _feed_forward(program, timeline, options, sources, interactions, warnings, strongest, hz_tracks)
+        return replace(result, latency_remainders_s=remainders)
+    models = [build_model(program, timeline, group, interactions, ladder=options["ladder"], tracks=hz_tracks)
+              for group in find_clusters(program, timeline, strongest)]
     # Identical clusters share one run; not yet when the sequence images (records are
     # read per cluster from its own outcomes).
     images = any(e.kind == "image" for e in timeline.events)
@@ -286,10 +304,17 @@ def simulate(source, **options) -> SimulationResult:
         info["shared_noise"] = bool(options["shared_noise"])
     engines = sorted({r.engine for r in results})
     return SimulationResult(program.name, results, expectations, _records(results), interactions,
-                            tuple(warnings), info, "+".join(engines), runner.reduction, pair_models, program)
+                            tuple(warnings), info, "+".join(engines), runner.reduction, pair_models, program,
+                            pair_tracks=_later_shifts(tracks), latency_remainders_s=remainders)
 
 
-def _feed_forward(program, timeline, options, sources, interactions, warnings) -> SimulationResult:
+def _later_shifts(tracks: dict) -> dict:
+    """(a, b) → ((start_s, PairShift), ...) of the pairs whose shift changes after the first pulse."""
+    return {pair: tuple((t, shift) for t, shift, _ in track[1:]) for pair, track in tracks.items() if len(track) > 1}
+
+
+def _feed_forward(program, timeline, options, sources, interactions, warnings, strongest=None,
+                  tracks=None) -> SimulationResult:
     """Programs with measurement-conditioned operations (seqlang/sim/feedforward.py): every
     cluster shot by shot with sampled imaging outcomes, with and without feed-forward."""
     from . import feedforward
@@ -297,8 +322,8 @@ def _feed_forward(program, timeline, options, sources, interactions, warnings) -
     runner = _ClusterRunner(program, options, sources, shots, np.random.default_rng(options["seed"]))
     if options["shared_noise"]:
         runner.shared = shared_noise.draw_shared(list(program.rig.drives), shots, options["seed"])
-    groups = find_clusters(program, timeline, interactions)
-    ff = feedforward.run(runner, timeline, groups, interactions)
+    groups = find_clusters(program, timeline, strongest if strongest is not None else interactions)
+    ff = feedforward.run(runner, timeline, groups, interactions, tracks)
     results = tuple(replace(r, sampled=True) for r in (ff.with_ff if options["feed_forward"] else ff.without))
     expectations = tuple(_expectation(program, results, e) for e in program.expects)
     expectations = tuple({**e, "conditioned": ff.conditioned(program, x) if options["feed_forward"]
@@ -525,7 +550,7 @@ def _conditioned(program, clusters, expect, unconditioned_numbers: dict) -> list
         if not touching and len(clusters) > MAX_CONDITIONED_CLUSTERS:
             continue
         labels = sorted({lab[:2] for o in cluster.outcomes for lab in o if lab[1] not in expect.sites})
-        for record, site in labels if len(expect.sites) <= FULL_DENSITY_SITES else ():
+        for record, site in labels if len(expect.sites) <= CONDITIONED_SITES else ():
             for bit in (0, 1):
                 condition = (record, site, bit)
                 weight = cluster.weight(condition)

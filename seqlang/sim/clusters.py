@@ -52,7 +52,7 @@ def cluster_key(program: Program, model) -> tuple:
     origin = program.sites[model.sites[0]].position_m
     geometry = tuple(tuple(round(x - o, 15) for x, o in zip(program.sites[s].position_m, origin))
                      for s in model.sites)
-    segments = tuple((seg.start_s, seg.duration_s, seg.couplings, seg.shifts,
+    segments = tuple((seg.start_s, seg.duration_s, seg.couplings, seg.shifts, seg.interactions,
                       None if seg.image is None else (seg.image.record, tuple(s in seg.image.targets
                                                                                 for s in model.sites)))
                      for seg in model.segments)

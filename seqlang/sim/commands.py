@@ -27,6 +27,9 @@ def register(sub) -> None:
                    help="draw the field and beam noise per cluster instead of once per shot for the array")
     p.add_argument("--sample", type=int, metavar="N",
                    help="error bars for N repetitions of the experiment, and a sampled histogram of N outcomes")
+    p.add_argument("--load-shots", type=_count, default=1000, metavar="N",
+                   help="for traps that load with a probability: loading statistics over N seeded draws "
+                        "(default 1000; the first is the simulated shot)")
     p.set_defaults(run=cmd_simulate)
 
     b = sub.add_parser("budget", help="infidelity of each expected state with all noise, none, and each source alone")
@@ -92,7 +95,7 @@ def cmd_simulate(args) -> int:
         raise UsageError(str(exc)) from None
     for diagnostic in sort_diagnostics(result.warnings):
         print(render(diagnostic), file=sys.stderr)
-    document = as_document(result)
+    document = as_document(result, load_shots=args.load_shots)
     print(json.dumps(document, indent=1, allow_nan=False) if args.json else summary(document))
     return 0
 
@@ -105,8 +108,9 @@ def _check_counts(args) -> None:
         raise UsageError("--sample must be at least 1")
 
 
-def as_document(result) -> dict:
-    """The JSON form: expectations, records, final level populations, interactions."""
+def as_document(result, load_shots: int = 1000) -> dict:
+    """The JSON form: expectations, records, final level populations, interactions (and, for an
+    array that loads stochastically, the occupancy, the fill plans and the loading statistics)."""
     from .api import record_errors
     from .model import LEVELS
     from .observables import clean
@@ -126,14 +130,40 @@ def as_document(result) -> dict:
         "site_populations": sites,
         **extra,
         "interactions_hz": {f"{a}-{b}": clean(v) for (a, b), v in sorted(result.interactions_hz.items())},
-        "interactions": {f"{a}-{b}": pair_entry(m) for (a, b), m in sorted(result.pair_models.items())},
+        "interactions": {f"{a}-{b}": _pair_entries(m, result.pair_tracks.get((a, b), ()))
+                         for (a, b), m in sorted(result.pair_models.items())},
         "clusters": [list(c.model.sites) for c in result.clusters],
+        "latency_remainder_ns": {port: clean(r * 1e9) for port, r in sorted(result.latency_remainders_s.items())},
         "noise": result.noise,
         "engine": result.engine,
         "reduction": result.reduction,
         "note": "model prediction for the played (tick-quantized) timeline; not a guarantee of the apparatus",
         "array_summary": _array_summary(result, sites),
+        **_arrays(result, load_shots),
     }
+
+
+def _arrays(result, shots: int) -> dict:
+    program = result.program
+    if program is None or program.arrays is None:
+        return {}
+    from ..arrays.loading import statistics
+    from ..emit.arrays import array_document
+    state = program.arrays
+    document = array_document(state)
+    document["statistics"] = statistics(program, state.occupancy.seed, shots, state.traps, state.plans) \
+        if state.occupancy.given is None else None
+    return {"arrays": document}
+
+
+def _pair_entries(first, later) -> dict:
+    """A pair's model at its first Rydberg pulse and, under `later`, from each pulse at a new
+    geometry on (after a move), with the time it starts."""
+    from .observables import clean
+    entry = pair_entry(first)
+    if later:
+        entry["later"] = [{"from_s": clean(t), **pair_entry(shift)} for t, shift in later]
+    return entry
 
 
 def pair_entry(shift) -> dict:
@@ -172,6 +202,7 @@ def summary(document: dict) -> str:
         lines.append(f"interrupted: {noise['interrupted']}; the numbers use the finished shots")
     for note in noise.get("notes", []):
         lines.append(f"note: {note}")
+    lines += _array_lines(document.get("arrays"))
     for e in document["expectations"]:
         lines += _expectation_lines(e, noise)
     if many and document.get("array_summary"):
@@ -190,6 +221,27 @@ def summary(document: dict) -> str:
         lines.append(f"record {record}: P(bright) " + ", ".join(f"{s} {p:.5f}" for s, p in shown[:MAX_LISTED])
                      + (f", ... {len(shown) - MAX_LISTED} more" if len(shown) > MAX_LISTED else ""))
     return "\n".join(lines)
+
+
+def _array_lines(arrays: dict | None) -> list[str]:
+    """Occupancy, fills and loading statistics: the simulated atoms are the loaded ones."""
+    if not arrays:
+        return []
+    occ = arrays["occupancy"]
+    where = f"given by {occ['given']}" if "given" in occ else f"drawn with load seed {occ['load_seed']}"
+    lines = [f"atoms of this shot (occupancy {where}; results over the loaded atoms only): " + ", ".join(
+        f"{sp} {v['loaded']} of {v['traps']} traps" for sp, v in arrays["loading"].items())]
+    for fill in arrays["fills"]:
+        lines.append(f"fill {fill['species']}: {fill['targets']} targets, {fill['carried']} carried in "
+                     f"{fill['duration_us'] / 1e3:.4g} ms; expected filling {fill['expected_filling']:.4f}")
+    stats = arrays.get("statistics")
+    if stats:
+        lines.append(f"loading over {stats['shots']} draws (seed {stats['seed']}): " + ", ".join(
+            f"{sp} {v['mean_loaded']:.2f} ± {v['std_loaded']:.2f} (binomial {v['binomial_mean']:.2f} ± "
+            f"{v['binomial_std']:.2f})" for sp, v in stats["species"].items()))
+        for fill in stats["fills"]:
+            lines.append(f"  enough {fill['species']} atoms for the fill in {fill['enough_atoms']:.1%} of draws")
+    return lines + [""]
 
 
 MAX_LISTED = 12  # clusters and sites listed one by one on the terminal (all of them in --json)

@@ -16,8 +16,8 @@ x(t) = x₀ + v₀t, and the phase grows without bound. For a thermal atom
 
 This module is the isolated physics: a per-shot track through segments marked
 trapped or free, and the mean Doppler detuning of each segment, k·Δx/Δt, whose
-integral over the segment is the exact phase. The simulator does not call it yet
-(see docs/simulation.md, "Known limits").
+integral over the segment is the exact phase. The noise sampler plays `segment_offsets`
+when the rig declares a trap switch (`noise._doppler_tracks`).
 """
 from __future__ import annotations
 

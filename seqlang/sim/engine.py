@@ -210,7 +210,7 @@ class _Stepper:
     def parameters(self, k: int):
         """Segment k and its per-shot arrays (one row when shared by every shot)."""
         sh = self.shots
-        return sh.model.segments[k], sh.couplings[k], sh.shifts[k], sh.shift_levels[k], sh.pairs, sh.interactions
+        return sh.model.segments[k], sh.couplings[k], sh.shifts[k], sh.shift_levels[k], sh.pairs, sh.interactions_at(k)
 
     def diagonal(self, seg: Segment, couplings, shifts, levels, pairs, interactions):
         """(diagonal of H_eff, drive frame), rad/s, with as many rows as the widest parameter."""

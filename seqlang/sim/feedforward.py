@@ -126,7 +126,7 @@ class FeedForwardRun:
                 "fixed_key_without": self.fixed[selection], "keys": rows}
 
 
-def run(runner, timeline: Timeline, groups, interactions) -> FeedForwardRun:
+def run(runner, timeline: Timeline, groups, interactions, tracks=None) -> FeedForwardRun:
     """Every cluster shot by shot, with and without feed-forward.
 
     A cluster steered only by records of other clusters runs both ways in one
@@ -135,7 +135,8 @@ def run(runner, timeline: Timeline, groups, interactions) -> FeedForwardRun:
     """
     program = runner.program
     conditioned = timeline.conditioned()
-    models = [build_model(program, timeline, g, interactions, ladder=runner.options["ladder"]) for g in groups]
+    models = [build_model(program, timeline, g, interactions, ladder=runner.options["ladder"], tracks=tracks)
+              for g in groups]
     outcomes, unused = Outcomes(runner.shots, {}, {}), Outcomes(runner.shots, {}, {})
     fixed: dict = {}
     with_ff, without, prepared = {}, {}, {}
@@ -259,6 +260,7 @@ def _stacked(shots, lanes: int):
     tile = lambda a: np.concatenate([a] * lanes) if a.shape[0] > 1 else a
     return replace(shots, couplings=tuple(map(tile, shots.couplings)), shifts=tuple(map(tile, shots.shifts)),
                    interactions=tile(shots.interactions), initial=shots.initial * lanes,
+                   segment_interactions=tuple(None if a is None else tile(a) for a in shots.segment_interactions),
                    image_draws=tuple(np.concatenate([d] * lanes) for d in shots.image_draws))
 
 

@@ -18,7 +18,7 @@ from dataclasses import dataclass, replace
 import numpy as np
 
 from ..compile import envelopes
-from ..compile.timeline import IMAGE, PULSE, Event, Timeline
+from ..compile.timeline import IMAGE, PULSE, SWITCH, Event, Timeline
 from ..program.model import Program
 
 LEVELS = ("0", "1", "r", "x")
@@ -73,6 +73,9 @@ class Segment:
     couplings: tuple[Drive1, ...]
     image: Event | None = None
     shifts: tuple[LevelShift, ...] = ()
+    # Pair shifts in force during this segment when they differ from the model's (after a move):
+    # ((i, j), V rad/s, separation r_j − r_i in m) for every pair of the model; None: the model's.
+    interactions: tuple[tuple[tuple[int, int], float, tuple[float, ...]], ...] | None = None
 
 
 @dataclass(frozen=True)
@@ -85,6 +88,12 @@ class Model:
     segments: tuple[Segment, ...]
     dim: int = DIM
     images: tuple[Event, ...] = ()  # every imaging of the timeline, of either species (for crosstalk)
+    # (time_s, traps_on) of every switch of a port declared `role traps`, in time order; None when
+    # the rig declares no trap switch (the Doppler source is then free flight all along).
+    traps: tuple[tuple[float, bool], ...] | None = None
+    # Separation r_j − r_i (m) of each pair at the geometry of its pair shift in `interactions`
+    # (the first Rydberg pulse reaching it); pairs missing here use the declared site positions.
+    separations: dict[tuple[int, int], tuple[float, ...]] | None = None
 
     @property
     def size(self) -> int:
@@ -137,11 +146,15 @@ def _candidate_pairs(program: Program, sites: tuple[str, ...], cutoff_hz: float)
 
 
 def build_model(program: Program, timeline: Timeline, sites: tuple[str, ...],
-                interactions_hz: dict[tuple[str, str], float], ladder: bool = False) -> Model:
+                interactions_hz: dict[tuple[str, str], float], ladder: bool = False,
+                tracks: dict | None = None) -> Model:
     """The model of the atoms in `sites` under the played `timeline`.
 
     With ``ladder`` the intermediate state of every Rydberg drive with declared
     legs is kept explicit (five levels per atom) instead of being eliminated.
+    ``tracks`` (pair of names → ((start_s, V/h in Hz, separation m), ...), from
+    `compile.geometry.pair_shift_track`) gives the pair shifts that change during the
+    sequence (after a move): each segment from a change's start on plays its V.
     """
     index = {name: i for i, name in enumerate(sites)}
     pairs = {(index[a], index[b]): 2 * math.pi * v for (a, b), v in interactions_hz.items()
@@ -149,9 +162,62 @@ def build_model(program: Program, timeline: Timeline, sites: tuple[str, ...],
     relevant = [e for e in timeline.events if e.kind in (PULSE, IMAGE) and set(e.targets) & set(sites)]
     segments = _stark_shifted(program, timeline, sites,
                               _segments(program, relevant, index, timeline.duration_s, ladder))
+    local = {(index[a], index[b]): track for (a, b), track in (tracks or {}).items()
+             if a in index and b in index and (index[a], index[b]) in pairs}
+    segments = _moved_pairs(segments, pairs, local, program.rig.tick_s)
     species = tuple(program.sites[s].species for s in sites)
     images = tuple(e for e in timeline.events if e.kind == IMAGE)
-    return Model(tuple(sites), species, pairs, tuple(segments), LADDER_DIM if ladder else DIM, images)
+    separations = {p: tuple(track[0][2]) for p, track in local.items()} or None
+    return Model(tuple(sites), species, pairs, tuple(segments), LADDER_DIM if ladder else DIM, images,
+                 trap_switches(program, timeline), separations)
+
+
+def _moved_pairs(segments: list[Segment], pairs: dict, tracks: dict, tick: float) -> list[Segment]:
+    """Segments from a later entry of a pair's track on carry every pair's V in force then."""
+    if not any(len(t) > 1 for t in tracks.values()):
+        return segments
+    out = []
+    for seg in segments:
+        now = seg.start_s + 1e-3 * tick
+        values, changed = [], False
+        for pair in sorted(pairs):
+            entries = [e for e in tracks.get(pair, ()) if e[0] <= now]
+            if len(entries) > 1:
+                changed = True
+                values.append((pair, 2 * math.pi * entries[-1][1], tuple(entries[-1][2])))
+            else:
+                first = tracks.get(pair)
+                values.append((pair, pairs[pair], tuple(first[0][2]) if first else ()))
+        out.append(replace(seg, interactions=tuple(values)) if changed else seg)
+    return out
+
+
+def segment_interactions(model: Model, segment: Segment) -> dict[tuple[int, int], float]:
+    """V_ij (rad/s) in force during `segment`."""
+    if segment.interactions is None:
+        return model.interactions
+    return {pair: v for pair, v, _ in segment.interactions}
+
+
+def weakest_interactions(model: Model) -> dict[tuple[int, int], float]:
+    """Per pair, the V (rad/s) of smallest magnitude over the segments (for blockade truncation)."""
+    out = dict(model.interactions)
+    for seg in model.segments:
+        for pair, v, _ in seg.interactions or ():
+            if abs(v) < abs(out[pair]):
+                out[pair] = v
+    return out
+
+
+def trap_switches(program: Program, timeline: Timeline) -> tuple[tuple[float, bool], ...] | None:
+    """(time_s, on) of each `switch` of a port declared `role traps` (the traps are on at t = 0,
+    as in `compile.checks`), or None when the rig declares no trap switch."""
+    ports = {q.name for q in program.rig.ports.values() if q.role == "traps"}
+    ports |= {q.channel for q in program.rig.ports.values() if q.role == "traps"}
+    if not ports:
+        return None
+    return tuple((e.start_s, e.value > 0.5) for e in sorted(timeline.events, key=lambda e: (e.start_s, e.index))
+                 if e.kind == SWITCH and e.port in ports)
 
 
 def _stark_shifted(program: Program, timeline: Timeline, sites, segments: list[Segment]) -> list[Segment]:
@@ -169,12 +235,39 @@ def _stark_shifted(program: Program, timeline: Timeline, sites, segments: list[S
     return out
 
 
+# Segment boundaries are kept in 1/SUBTICKS of a tick: the played timeline is on the tick grid,
+# except for the latency remainders of the outputs (`with_latency_remainders`).
+SUBTICKS = 1000
+
+
+def with_latency_remainders(timeline: Timeline, remainders: dict[str, float]) -> Timeline:
+    """The played timeline with every pulse and imaging of an output moved by that output's
+    latency remainder (compile/hardware.py: what whole ticks do not compensate; positive is
+    late), resolved to 1/SUBTICKS of a tick.
+
+    >>> # latency 81 ns at a 2 ns tick: 40 ticks compensated, the output's pulses play 1 ns late
+    """
+    from ..compile.timeline import evolve
+    if not any(remainders.values()):
+        return timeline
+    moved = tuple(evolve(e, start_s=e.start_s + remainders.get(e.port, 0.0))
+                  if e.kind in (PULSE, IMAGE) and remainders.get(e.port) else e for e in timeline.events)
+    end = max([timeline.duration_s] + [e.end_s for e in moved])
+    return Timeline(moved, end, timeline.tick_s, timeline.quantized, timeline.shift_s)
+
+
 def _tick(t: float, tick: float) -> int:
-    return round(t / tick)
+    return round(t / tick * SUBTICKS)
+
+
+def _seconds(k: int, tick: float) -> float:
+    """A boundary in seconds; whole ticks exactly as k·tick."""
+    whole, part = divmod(k, SUBTICKS)
+    return whole * tick if not part else k * tick / SUBTICKS
 
 
 def _boundaries(events: list[Event], total: int, tick: float) -> list[int]:
-    """Every start and end, in ticks (the played timeline is on the tick grid)."""
+    """Every start and end, in 1/SUBTICKS ticks."""
     times = {0, total}
     for e in events:
         times.add(_tick(e.start_s, tick))
@@ -191,11 +284,12 @@ def _segments(program: Program, events: list[Event], index: dict[str, int], tota
     times = _boundaries(events, _tick(total_s, tick), tick)
     out: list[Segment] = []
     for k0, k1 in zip(times, times[1:] + [None]):
-        out += [Segment(k0 * tick, 0.0, (), e) for e, k in sorted(images, key=lambda x: x[0].index) if k == k0]
+        out += [Segment(_seconds(k0, tick), 0.0, (), e) for e, k in sorted(images, key=lambda x: x[0].index)
+                if k == k0]
         if k1 is None:
             break
         active = [e for e, a, b in pulses if a <= k0 and b >= k1]
-        out += _pulse_steps(program, active, index, k0 * tick, k1 * tick, ladder)
+        out += _pulse_steps(program, active, index, _seconds(k0, tick), _seconds(k1, tick), ladder)
     return out
 
 
@@ -337,13 +431,14 @@ def hamiltonian(model: Model, segment: Segment) -> np.ndarray:
         single[c.lower, c.upper] = 0.5 * c.omega * np.exp(-1j * c.phase)
         single[c.upper, c.upper] -= c.delta
         h += embed(single, c.site, n)
-    return h + interaction_hamiltonian(model)
+    return h + interaction_hamiltonian(model, segment)
 
 
-def interaction_hamiltonian(model: Model) -> np.ndarray:
-    """Σ V_ij |rr⟩⟨rr| (diagonal, rad/s)."""
+def interaction_hamiltonian(model: Model, segment: Segment | None = None) -> np.ndarray:
+    """Σ V_ij |rr⟩⟨rr| (diagonal, rad/s), with the V in force during `segment` if given."""
     n, dim = model.size, model.dim
     diag = np.zeros(dim**n)
-    for (i, j), v in model.interactions.items():
+    values = model.interactions if segment is None else segment_interactions(model, segment)
+    for (i, j), v in values.items():
         diag += v * np.real(np.diag(embed(projector(RYD, dim), i, n) @ embed(projector(RYD, dim), j, n)))
     return np.diag(diag).astype(complex)

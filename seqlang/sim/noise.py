@@ -19,7 +19,9 @@ sources see the same samples (common random numbers make budgets fair):
   Gaussian beam profile exp(−ρ²/w²) at the atom's thermal offset ρ from the
   beam axis (drive ``waist``; beams taken centred on the trap, along its axis);
 * ``doppler``: Rydberg detuning + k_eff·v, v ~ N(0, k_B T/m),
-  k_eff = |k₁ − k₂| (counter-propagating legs) or k₁ + k₂ (co-propagating);
+  k_eff = |k₁ − k₂| (counter-propagating legs) or k₁ + k₂ (co-propagating); with a
+  trap switch in the rig, per segment along a harmonic (traps on) or ballistic
+  (traps off) track, laser phase −k_eff·(x(t) − x₀) (``_doppler_tracks``);
 * ``motion``: thermal position spread in the trap, σ = √(k_B T/m)/ω (radial,
   axial trap frequencies), moves pair distances and so V = C6/R⁶;
 * ``detuning_error``: microwave/Raman detuning off by ε·ξ per shot (ε the drive's
@@ -258,6 +260,8 @@ class Shots:
     interactions: np.ndarray
     initial: tuple[tuple[int, ...], ...]
     image_draws: tuple[np.ndarray, ...] = ()
+    # Per segment, None or (rows, P) pair shifts replacing `interactions` there (after a move).
+    segment_interactions: tuple[np.ndarray | None, ...] = ()
 
     @property
     def count(self) -> int:
@@ -269,7 +273,7 @@ class Shots:
             return a[lo:hi] if a.shape[0] > 1 else a
         return Shots(self.model, tuple(map(cut, self.couplings)), tuple(map(cut, self.shifts)), self.shift_levels,
                      self.pairs, cut(self.interactions), self.initial[lo:hi],
-                     tuple(d[lo:hi] for d in self.image_draws))
+                     tuple(d[lo:hi] for d in self.image_draws), _cut_each(self.segment_interactions, cut))
 
     def take(self, indices: np.ndarray) -> "Shots":
         """The shots at `indices` (shared parameters stay shared)."""
@@ -277,20 +281,34 @@ class Shots:
             return a[indices] if a.shape[0] > 1 else a
         return Shots(self.model, tuple(map(cut, self.couplings)), tuple(map(cut, self.shifts)), self.shift_levels,
                      self.pairs, cut(self.interactions), tuple(self.initial[k] for k in indices),
-                     tuple(d[indices] for d in self.image_draws))
+                     tuple(d[indices] for d in self.image_draws), _cut_each(self.segment_interactions, cut))
+
+    def interactions_at(self, k: int) -> np.ndarray:
+        """(rows, P) pair shifts in force during segment k."""
+        if self.segment_interactions and self.segment_interactions[k] is not None:
+            return self.segment_interactions[k]
+        return self.interactions
 
     def shot_model(self, k: int) -> Model:
         """The model of shot k, for the reference path."""
         def row(a):
             return a[k] if a.shape[0] > 1 else a[0]
         segments = []
-        for seg, c, sh, levels in zip(self.model.segments, self.couplings, self.shifts, self.shift_levels):
+        for index, (seg, c, sh, levels) in enumerate(zip(self.model.segments, self.couplings, self.shifts,
+                                                         self.shift_levels)):
             couplings = tuple(replace(x, omega=float(v[0]), delta=float(v[1]), phase=float(v[2]))
                               for x, v in zip(seg.couplings, row(c)))
             shifts = tuple(LevelShift(site, level, float(v[0]), float(v[1])) for (site, level), v in zip(levels, row(sh)))
-            segments.append(replace(seg, couplings=couplings, shifts=shifts))
+            pairs = seg.interactions
+            if pairs is not None:
+                pairs = tuple((p, float(v), r) for (p, _, r), v in zip(pairs, row(self.interactions_at(index))))
+            segments.append(replace(seg, couplings=couplings, shifts=shifts, interactions=pairs))
         interactions = dict(zip(self.pairs, map(float, row(self.interactions))))
         return replace(self.model, segments=tuple(segments), interactions=interactions)
+
+
+def _cut_each(arrays: tuple, cut) -> tuple:
+    return tuple(None if a is None else cut(a) for a in arrays)
 
 
 def nominal_shots(model: Model) -> Shots:
@@ -306,6 +324,7 @@ def sample(program: Program | None, model: Model, sources: tuple[str, ...], draw
     displaced = _displacements(program, model, draws) if on & {"motion", "intensity"} else None
     scale = _rabi_scales(program, model, draws, displaced) if "intensity" in on else None
     offsets = _detuning_offsets(program, model, on, draws) if on & {"doppler", "detuning_error"} else None
+    doppler = _doppler_tracks(program, model, draws) if "doppler" in on and model.traps is not None else None
     qubit = _qubit_offsets(program, model, draws) if "t2_star" in on else None
     field = _field(program, model, draws) if "field_noise" in on else None
     if "crosstalk" in on and model.images:
@@ -316,7 +335,7 @@ def sample(program: Program | None, model: Model, sources: tuple[str, ...], draw
     phases = _laser_phases(program, model, draws) if "laser_noise" in on else {}
     drives = {d: i for i, d in enumerate(model_drives(model))}
     couplings, shifts, levels = [], [], []
-    for seg in model.segments:
+    for k, seg in enumerate(model.segments):
         c = np.tile(np.array([[x.omega, x.delta, x.phase] for x in seg.couplings]).reshape(1, -1, 3), (rows, 1, 1))
         t_mid = seg.start_s + seg.duration_s / 2
         for j, x in enumerate(seg.couplings):
@@ -325,6 +344,9 @@ def sample(program: Program | None, model: Model, sources: tuple[str, ...], draw
                 c[:, j, 0] *= scale[:, d, x.site]
             if offsets is not None:
                 c[:, j, 1] += offsets[:, d, x.site]
+            if doppler is not None and k in doppler[0] and program.rig.drives[x.drive].kind == "rydberg":
+                c[:, j, 1] += doppler[0][k][:, x.site]
+                c[:, j, 2] += doppler[1][k][:, x.site]
             if x.drive in phases:
                 c[:, j, 2] += phases[x.drive](t_mid)
         sh = [np.tile([[x.shift, x.loss_rate] for x in seg.shifts], (rows, 1)).reshape(rows, -1, 2)]
@@ -340,9 +362,24 @@ def sample(program: Program | None, model: Model, sources: tuple[str, ...], draw
     v = np.tile([[model.interactions[p] for p in pairs]], (rows, 1)).reshape(rows, len(pairs))
     if "motion" in on:
         v = _interactions(program, model, pairs, displaced)
+    moved = tuple(None if seg.interactions is None else _shared(_moved(program, model, seg, pairs, rows, displaced,
+                                                                       "motion" in on))
+                  for seg in model.segments)
     initial = _initial_levels(program, model, on, draws)
     image_draws = draws.imaging if "imaging" in on else ()
-    return Shots(model, tuple(couplings), tuple(shifts), tuple(levels), pairs, _shared(v), initial, image_draws)
+    return Shots(model, tuple(couplings), tuple(shifts), tuple(levels), pairs, _shared(v), initial, image_draws,
+                 moved if any(m is not None for m in moved) else ())
+
+
+def _moved(program, model: Model, seg: Segment, pairs, rows: int, displaced, motion: bool) -> np.ndarray:
+    """(rows, P) pair shifts of a segment after a move, each scaled by (R/R')⁶ for the thermal
+    offsets when the motion source is on."""
+    table = {p: (v, r) for p, v, r in seg.interactions}
+    out = np.tile([[table[p][0] for p in pairs]], (rows, 1)).reshape(rows, len(pairs))
+    if motion:
+        for k, p in enumerate(pairs):
+            out[:, k] *= _distance_factor(program, model, p, table[p][1], displaced)
+    return out
 
 
 def _shared(a: np.ndarray) -> np.ndarray:
@@ -381,12 +418,42 @@ def _detuning_offsets(program, model, on: set, draws: Draws) -> np.ndarray:
     out = np.zeros((draws.count, len(model_drives(model)), model.size))
     for k, drive in enumerate(model_drives(model)):
         d = program.rig.drives[drive]
-        if d.kind == "rydberg" and "doppler" in on:
+        if d.kind == "rydberg" and "doppler" in on and model.traps is None:  # else _doppler_tracks
             sigma = np.array([doppler_sigma_rad_s(program, sp) for sp in model.species])
             out[:, k, :] += sigma[None] * draws.velocity
         if d.kind != "rydberg" and "detuning_error" in on:
             out[:, k, :] += 2 * math.pi * d.extra.get("detuning_error", 0.0) * draws.detuning[:, k:k + 1]
     return out
+
+
+def _doppler_tracks(program, model: Model, draws: Draws) -> tuple[dict, dict]:
+    """Doppler detuning and extra coupling phase, (shots, sites) in rad/s and rad, of every
+    segment k with a coupling: ({k: detuning}, {k: phase}).
+
+    Each atom follows one track through the whole sequence (sim/doppler_track.py): harmonic
+    while the traps are on (along the radial trap frequency; free flight when the species
+    declares none), ballistic while they are off, with its position and velocity continuous
+    at every switch. It starts thermal: x₀ = σ_x·ξ (the same number as the `motion` source's
+    offset along x), v₀ = σ_v·ξ'. The engine's coupling phase is φ − Δt (docs/simulation.md),
+    so the laser phase −k_eff·(x(t) − x₀) takes the opposite sign of the track's phase.
+    """
+    from . import doppler_track
+    driven = [k for k, seg in enumerate(model.segments) if seg.couplings]
+    spans = [(model.segments[k].start_s, model.segments[k].duration_s) for k in driven]
+    detuning = np.zeros((len(driven), draws.count, model.size))
+    phase = np.zeros_like(detuning)
+    for species in set(model.species):
+        columns = [i for i, sp in enumerate(model.species) if sp == species]
+        k_eff, sigma_v = _k_eff(program, species), _sigma_velocity(program, species)
+        if not k_eff or not sigma_v:
+            continue
+        omega = 2 * math.pi * program.rig.species[species].extra.get("trap_radial", 0.0)
+        x0 = _sigma_position(program, species)[0] * draws.offsets[:, columns, 0]
+        v0 = sigma_v * draws.velocity[:, columns]
+        switches = list(model.traps) if omega > 0 else [(0.0, False)]
+        d, p = doppler_track.segment_offsets(k_eff, x0, v0, omega or 1.0, switches, spans)
+        detuning[:, :, columns], phase[:, :, columns] = d, -p
+    return dict(zip(driven, detuning)), dict(zip(driven, phase))
 
 
 def _qubit_offsets(program, model, draws: Draws) -> np.ndarray:
@@ -451,25 +518,42 @@ def servo_psd(drive, f: np.ndarray) -> np.ndarray:
 def _interactions(program: Program, model: Model, pairs, displaced: np.ndarray) -> np.ndarray:
     """(shots, pairs): V_ij·(R₀/R)⁶ with each atom moved by its thermal offset."""
     out = np.empty((displaced.shape[0], len(pairs)))
-    for k, (i, j) in enumerate(pairs):
-        a = np.array(program.sites[model.sites[i]].position_m)
-        b = np.array(program.sites[model.sites[j]].position_m)
-        r0 = np.linalg.norm(a - b)
-        r = np.linalg.norm(a + displaced[:, i] - b - displaced[:, j], axis=1)
-        out[:, k] = model.interactions[(i, j)] * (r0 / r) ** 6
+    for k, pair in enumerate(pairs):
+        separation = (model.separations or {}).get(pair, ())
+        out[:, k] = model.interactions[pair] * _distance_factor(program, model, pair, separation, displaced)
     return out
+
+
+def _distance_factor(program: Program, model: Model, pair, separation, displaced: np.ndarray) -> np.ndarray:
+    """(shots,) (R₀/R)⁶ for the separation r_j − r_i (the declared sites' when not given)."""
+    i, j = pair
+    if not len(separation):
+        separation = np.subtract(program.sites[model.sites[j]].position_m, program.sites[model.sites[i]].position_m)
+    separation = np.asarray(separation, float)
+    r = np.linalg.norm(separation + displaced[:, j] - displaced[:, i], axis=1)
+    return (np.linalg.norm(separation) / r) ** 6
 
 
 def doppler_sigma_rad_s(program: Program, species: str) -> float:
     """k_eff·σ_v (rad/s): the rms Doppler shift of the two-photon transition."""
-    sp = program.rig.species[species]
+    return _k_eff(program, species) * _sigma_velocity(program, species)
+
+
+def _k_eff(program: Program, species: str) -> float:
+    """|k₁ − k₂| (counter-propagating legs) or k₁ + k₂ (1/m) of the species' first Rydberg drive
+    with legs; 0 without one."""
     drives = [d for d in program.rig.drives.values() if d.kind == "rydberg" and d.species == species and d.legs]
-    if not drives or sp.temperature_k <= 0:
+    if not drives:
         return 0.0
     legs = drives[0].legs
     k1, k2 = 2 * math.pi / legs.lower_wavelength_m, 2 * math.pi / legs.upper_wavelength_m
-    k_eff = abs(k1 - k2) if legs.counter_propagating else k1 + k2
-    return k_eff * math.sqrt(BOLTZMANN * sp.temperature_k / sp.data.mass_kg)
+    return abs(k1 - k2) if legs.counter_propagating else k1 + k2
+
+
+def _sigma_velocity(program: Program, species: str) -> float:
+    """√(k_B T/m) (m/s), thermal rms velocity along one axis; 0 at T = 0."""
+    sp = program.rig.species[species]
+    return math.sqrt(BOLTZMANN * sp.temperature_k / sp.data.mass_kg) if sp.temperature_k > 0 else 0.0
 
 
 def _initial_levels(program, model: Model, on: set, draws: Draws | None) -> tuple:

@@ -19,7 +19,7 @@ import numpy as np
 from . import engine as fast
 from . import limits, noise, observables
 from .basis import Basis, full_basis, reduced_basis
-from .model import INTERMEDIATE, LOST, RYD, Model
+from .model import INTERMEDIATE, LOST, RYD, Model, weakest_interactions
 from .solve import propagate
 
 SHOT_CHUNK = 100  # shots propagated together; an interrupt keeps every finished chunk
@@ -148,7 +148,7 @@ class Runner:
             lossy |= {x.site for seg in model.segments for x in seg.shifts if x.loss_rate > 0}
         allowed = [(0, 1) + ((RYD,) if i in rydberg else ()) + ((LOST,) if i in lossy else ())
                    + ((INTERMEDIATE,) if i in ladder else ()) for i in range(model.size)]
-        candidates = replace(model, interactions={p: v for p, v in model.interactions.items()
+        candidates = replace(model, interactions={p: v for p, v in weakest_interactions(model).items()
                                                   if p[0] in rydberg and p[1] in rydberg})
         pairs, bound = (fast.blockade_truncation(candidates, TRUNCATION_TOLERANCE) if self.options["truncate"]
                         else ((), 0.0))

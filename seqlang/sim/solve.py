@@ -69,7 +69,9 @@ def propagate(model: Model, c_ops: list[np.ndarray] | None = None, record_histor
                 history.append((segment.start_s, level_populations(model, branches)))
         elif segment.duration_s > 0:
             for piece in _pieces(segment, record_history):
-                branches = [Branch(b.outcomes, _evolve(model, piece, b.state, h_int, c_ops)) for b in branches]
+                h_pairs = h_int if segment.interactions is None else \
+                    np.diag(interaction_hamiltonian(model, segment)).real
+                branches = [Branch(b.outcomes, _evolve(model, piece, b.state, h_pairs, c_ops)) for b in branches]
                 if record_history:
                     history.append((piece.start_s + piece.duration_s, level_populations(model, branches)))
     return branches, history
@@ -80,8 +82,8 @@ def _pieces(segment: Segment, fine: bool) -> list[Segment]:
     if not fine or not segment.couplings:
         return [segment]
     step = segment.duration_s / HISTORY_STEPS
-    return [Segment(segment.start_s + k * step, step, segment.couplings, shifts=segment.shifts)
-            for k in range(HISTORY_STEPS)]
+    return [Segment(segment.start_s + k * step, step, segment.couplings, shifts=segment.shifts,
+                    interactions=segment.interactions) for k in range(HISTORY_STEPS)]
 
 
 def _evolve(model: Model, segment: Segment, state: np.ndarray, h_int: np.ndarray, c_ops) -> np.ndarray:

@@ -124,6 +124,7 @@ def test_fit_then_calibrate_the_rig(rabi_scan):
     data = ROOT / "programs/measured/rydberg_rabi.csv"
     fitted = _cli("fit", "out", "--data", str(data), "--model", "rabi", cwd=tmp)
     assert fitted.returncode == 0, fitted.stderr
+    assert "weighted least squares" in fitted.stdout  # 200 repetitions per point: auto keeps least squares
     assert "chi2 against the simulation" in fitted.stdout and (tmp / "out/fit/bright_bright_a.png").exists()
     # The invented measurement was drawn at 1.24 MHz (programs/measured/rydberg_rabi.csv).
     dry = _cli("calibrate", "out/fit/fit.json", "--rig", "millpond.rig", "--drive", "ryd_na", cwd=tmp)
@@ -152,3 +153,154 @@ def test_fit_rejects_a_malformed_measurement_with_a_caret(rabi_scan, tmp_path):
 def test_command_line_model_list_matches_the_models():
     from seqlang.fit import commands, models
     assert commands.MODELS == models.MODELS
+
+
+# ---- the binomial likelihood ----------------------------------------------------------------------
+# Coverage windows: with M seeded repetitions the fraction of 1σ intervals that hold the truth is
+# Binomial(M, 0.683)/M, standard deviation √(0.683·0.317/M): 0.047 for M = 100, 0.015 for M = 1000;
+# the windows allow three of them (0.54 .. 0.82 and 0.64 .. 0.73). The inverse-Hessian (Wald)
+# interval is asymptotic: at 20–25 repetitions per point it holds the truth less often (0.585 for
+# the Rabi frequency, 0.63 for the Ramsey detuning over 1000 draws; docs/fits.md), so that slow
+# check's window starts lower, at 0.55 (the shortfall and three standard deviations).
+def _coverage(model, x, p, truth, names, repetitions, draws, seed):
+    rng = np.random.default_rng(seed)
+    inside = {n: [] for n in names}
+    for _ in range(draws):
+        fit = fit_counts(model, x, rng.binomial(repetitions, p), repetitions, likelihood="binomial")
+        assert fit.likelihood == "binomial"
+        for n in names:
+            inside[n].append(abs(fit.values[n] - truth[n]) <= fit.errors[n])
+    return {n: float(np.mean(v)) for n, v in inside.items()}
+
+
+RAMSEY_TRUTH = {"detuning": 0.8, "t2": 3.0, "contrast": 0.9, "offset": 0.05, "phase": 0.3}
+RAMSEY_X = np.linspace(0, 6, 40)
+
+
+def _rabi_case(rabi_scan):
+    """The simulated Rabi scan at the drive's 1.3 MHz (Rabi formula, Foot 2005), read out with a
+    3 % error each way (so no point is exactly 0 or 1)."""
+    _, t, bright = rabi_scan
+    return t, 0.03 + 0.94 * np.clip(bright, 0, 1)
+
+
+def _ramsey_case():
+    """A Ramsey fringe with a Gaussian decay (Ramsey formula)."""
+    from seqlang.fit import models
+    return RAMSEY_X, models.ramsey_gaussian(RAMSEY_X, **RAMSEY_TRUTH)
+
+
+def test_binomial_rabi_fit_covers_the_truth(rabi_scan):
+    covered = _coverage("rabi", *_rabi_case(rabi_scan), {"frequency": 1.3}, ["frequency"], 100, 100, 7)
+    assert 0.54 <= covered["frequency"] <= 0.82, covered
+
+
+def test_binomial_ramsey_fit_covers_the_truth():
+    covered = _coverage("ramsey", *_ramsey_case(), RAMSEY_TRUTH, ["detuning", "t2"], 100, 100, 2)
+    assert all(0.54 <= c <= 0.82 for c in covered.values()), covered
+
+
+@pytest.mark.slow
+@pytest.mark.parametrize("model,repetitions,low", [("rabi", 100, 0.64), ("ramsey", 100, 0.64),
+                                                   ("rabi", 20, 0.55), ("ramsey", 25, 0.55)])
+def test_binomial_coverage_over_a_thousand_draws(model, repetitions, low, rabi_scan):
+    if model == "rabi":
+        covered = _coverage("rabi", *_rabi_case(rabi_scan), {"frequency": 1.3}, ["frequency"], repetitions,
+                            1000, 8)
+    else:
+        covered = _coverage("ramsey", *_ramsey_case(), RAMSEY_TRUTH, ["detuning", "t2"], repetitions, 1000, 9)
+    assert all(low <= c <= 0.73 for c in covered.values()), covered
+
+
+def test_binomial_fit_is_the_maximum_of_the_likelihood():
+    """The fitted curve maximises Σ log Binom(k; n, p) (scipy.stats.binom): nudging any parameter by
+    a tenth of its error lowers it; the errors match √diag of the inverse of a plain
+    finite-difference Hessian."""
+    from scipy.stats import binom
+    from seqlang.fit import models
+    x = np.linspace(0, 6, 40)
+    truth = {"detuning": 0.8, "t2": 3.0, "contrast": 0.9, "offset": 0.05, "phase": 0.3}
+    k = np.random.default_rng(5).binomial(12, models.ramsey_gaussian(x, **truth))
+    fit = fit_counts("ramsey", x, k, 12, likelihood="binomial")
+    names = list(fit.values)
+    best = np.array([fit.values[n] for n in names])
+    step = np.array([fit.errors[n] for n in names]) * 0.1
+
+    def nll(theta):
+        return -binom.logpmf(k, 12, models.ramsey_gaussian(x, **dict(zip(names, theta)))).sum()
+
+    for i in range(len(names)):
+        assert nll(best) < nll(best + np.eye(len(names))[i] * step[i])
+        assert nll(best) < nll(best - np.eye(len(names))[i] * step[i])
+    e = np.eye(len(names)) * step
+    h = np.array([[(nll(best + e[i] + e[j]) - nll(best + e[i] - e[j]) - nll(best - e[i] + e[j])
+                    + nll(best - e[i] - e[j])) / (4 * step[i] * step[j]) for j in range(len(names))]
+                  for i in range(len(names))])
+    assert np.sqrt(np.diag(np.linalg.inv(h))) == pytest.approx([fit.errors[n] for n in names], rel=2e-2)
+
+
+def test_auto_likelihood_is_binomial_for_small_counts_only():
+    from seqlang.fit.fitting import SMALL_COUNTS, choose_likelihood
+    assert choose_likelihood("auto", [SMALL_COUNTS - 1, 200]) == "binomial"
+    assert choose_likelihood("auto", [SMALL_COUNTS, 200]) == "least_squares"
+    assert choose_likelihood("least_squares", [3]) == "least_squares"
+    with pytest.raises(ValueError):
+        fit_counts("sqrt_n", [1, 2, 3], [1, 2, 3], 10, likelihood="binomial")
+
+
+# ---- resonance → line_offset, blockade → C6 ----------------------------------------------------------
+def test_resonance_fit_calibrates_the_line_offset_and_tables_play_it(tmp_path):
+    """The invented resonance measurement (programs/measured/microwave_resonance.csv) was drawn with
+    the line 3.2 kHz above nominal (Rabi formula line shape, Foot 2005): the Lorentzian's centre finds
+    it within its 1σ; calibrate inserts `line_offset`, and the compiled table then plays the written
+    detuning + the offset while the atoms (timeline, simulation) keep the written one."""
+    import json
+    from seqlang.fit.calibrate import apply, proposal
+    measured = read_measured(str(ROOT / "programs/measured/microwave_resonance.csv"))
+    unit, delta = measured.parameters["delta"]
+    fit = fit_counts("resonance", delta, measured.counts["bright_bright_c0"], measured.repetitions)
+    assert fit.likelihood == "binomial"  # 40 repetitions per point
+    assert abs(fit.values["centre"] - 3.2) <= fit.errors["centre"]
+    document = {"parameter": "delta", "unit": unit, "si_factor": 1e3, "records": {"bright_bright_c0": {"fit": {
+        "model": "resonance", "values": fit.values, "errors": fit.errors}}}}
+    rig = tmp_path / "millpond.rig"
+    rig.write_text((ROOT / "programs/millpond.rig").read_text())
+    change = proposal(json.loads(json.dumps(document)), str(rig), drive="mw_cs")
+    assert change.old is None and "+    line_offset 2.8" in change.diff
+    apply(change)
+    seq = tmp_path / "line.seq"
+    seq.write_text('use "millpond.rig"\nsite c = cs at (0, 0) um\nsequence s {\n  pulse mw_cs area pi detuning 1 kHz\n}\n')
+    checked = seqlang.load(str(seq))
+    offset = checked.program.rig.drives["mw_cs"].extra["line_offset"]
+    assert offset == pytest.approx(fit.values["centre"] * 1e3, rel=1e-5)
+    played = [e for e in checked.compile().rows() if e.kind == "pulse"]
+    assert played[0].detuning_hz == pytest.approx(1e3 + offset, rel=1e-5)  # tick rounding scales Δ a little
+    assert checked.timeline.events[0].detuning_hz == pytest.approx(1e3, rel=1e-5)
+    again = proposal(json.loads(json.dumps(document)), str(rig), drive="mw_cs")  # a second round adds up
+    assert again.new.startswith("5.6") and again.old.startswith("2.8")
+
+
+def test_blockade_fit_gives_c6_from_the_crossover(tmp_path):
+    """C6/h = (Ω/2π)·R_b⁶ (R_b = (C6/hΩ)^(1/6), common practice): 1.3 MHz · (8 µm)⁶ = 340.8 GHz·µm⁶,
+    with 6·σR/R relative error."""
+    from seqlang.fit.calibrate import blockade_c6
+    rig = tmp_path / "millpond.rig"
+    rig.write_text((ROOT / "programs/millpond.rig").read_text())
+    document = {"parameter": "r", "unit": "um", "si_factor": 1e-6, "records": {"fidelity": {"fit": {
+        "model": "blockade", "values": {"radius": 8.0}, "errors": {"radius": 0.1}}}}}
+    text = blockade_c6(document, str(rig), "ryd_na")
+    assert "C6/h = (Ω/2π)·R_b⁶ = 340.8 ± 26 GHz·um^6" in text
+    document["unit"] = "us"
+    with pytest.raises(ValueError, match="scan of a distance"):
+        blockade_c6(document, str(rig), "ryd_na")
+
+
+def test_calibrate_rejects_a_file_that_is_not_a_fit(tmp_path):
+    bad = tmp_path / "fit.json"
+    bad.write_text("{\n  \"records\": [1,\n")
+    rig = ROOT / "programs/millpond.rig"
+    result = _cli("calibrate", str(bad), "--rig", str(rig), "--drive", "ryd_na", cwd=tmp_path)
+    assert result.returncode == 2 and "fit.json:3:1: not a fit file" in result.stderr
+    bad.write_text('{"records": {"x": {"fit": {"model": "rabi"}}}}')
+    result = _cli("calibrate", str(bad), "--rig", str(rig), "--drive", "ryd_na", cwd=tmp_path)
+    assert result.returncode == 2 and "Traceback" not in result.stderr, result.stderr

@@ -68,3 +68,68 @@ def test_optimum_at_finite_blockade_beats_the_published_parameters(tmp_path):
     assert best.fidelity >= best.start_fidelity
     assert best.fidelity > best.start_fidelity + 1e-3  # 4.5 um: V/h ≈ 25 MHz, a few % of the gate is lost
     assert sequence_at(path, best.values).program.free == seqlang.load(path).program.free
+
+
+# Two independent qubits, each flipped by a microwave pulse of free area: P(|1>) = sin²(A/2)
+# (Rabi formula, Foot, Atomic Physics, OUP 2005), so each expect's optimum is A = π.
+TWO_FLIPS = """use "bench.rig"
+site a = na at (0, 0) um
+site c = cs at (40, 0) um
+free na_area = 2 rad .. 4 rad start 2.5 rad
+free cs_area = 2 rad .. 4 rad start 3.6 rad
+sequence flips {
+  pulse mw_na area na_area
+  pulse mw_cs area cs_area
+}
+expect a as |1>
+expect c as |1>
+"""
+
+
+def test_optimise_a_chosen_expect_or_all_of_them(tmp_path):
+    import math
+    path = write_program(tmp_path, TWO_FLIPS)
+    first = optimise(path, expect=1, tolerance=1e-6)
+    assert first.values["na_area"] == pytest.approx(math.pi, abs=1e-3) and "expect a as" in first.objective
+    second = optimise(path, expect="c", tolerance=1e-6)
+    assert second.values["cs_area"] == pytest.approx(math.pi, abs=1e-3) and "expect c as" in second.objective
+    both = optimise(path, tolerance=1e-6)
+    assert both.objective == "the mean of all 2 expects"
+    assert [both.values[n] for n in ("na_area", "cs_area")] == pytest.approx([math.pi] * 2, abs=1e-3)
+    # the mean fidelity at the start: sin²(1.25) and sin²(1.8), averaged
+    assert both.start_fidelity == pytest.approx((math.sin(1.25) ** 2 + math.sin(1.8) ** 2) / 2, abs=1e-4)
+    with pytest.raises(ValueError, match="no single expect `3`"):
+        optimise(path, expect=3)
+
+
+def test_evolution_gives_the_same_optimum_serially_and_on_a_process_pool(tmp_path):
+    """Deterministic trials (one seed for all) and a seeded population: the executor does not matter."""
+    path = write_program(tmp_path, TWO_FLIPS)
+    options = dict(method="evolution", generations=4, population=4, tolerance=1e-6)
+    serial = optimise(path, workers=1, **options)
+    pooled = optimise(path, workers=2, **options)
+    assert serial == pooled
+    assert serial.fidelity > 1 - 1e-9 and serial.method == "evolution"
+
+
+@pytest.mark.slow
+def test_evolution_on_a_dask_cluster_gives_the_same_optimum(tmp_path):
+    path = write_program(tmp_path, TWO_FLIPS)
+    options = dict(method="evolution", generations=3, population=4, tolerance=1e-6)
+    assert optimise(path, **options) == optimise(path, scheduler="local", workers=2, **options)
+
+
+def test_optimise_command_says_what_it_optimised_and_rejects_bad_options(tmp_path):
+    import subprocess
+    import sys
+    path = write_program(tmp_path, TWO_FLIPS)
+    run = lambda *a: subprocess.run([sys.executable, "-m", "seqlang", "optimise", path, "--no-budget", *a],
+                                    capture_output=True, text=True, timeout=300)
+    done = run("--expect", "2", "--tolerance", "1e-6")
+    assert done.returncode == 0, done.stderr
+    assert "objective: the fidelity of the expect c as |1> (line 11)" in done.stdout
+    assert "simplex" in done.stdout and "in this process" in done.stdout
+    for bad, message in ((("--expect", "a,c"), "no single expect `a,c`"), (("--workers", "0"), "--workers must"),
+                         (("--population", "0"), "--population must")):
+        wrong = run(*bad)
+        assert wrong.returncode == 2 and message in wrong.stderr and "Traceback" not in wrong.stderr

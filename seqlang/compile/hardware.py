@@ -184,6 +184,13 @@ def _shift_needed(program: Program, timeline: Timeline, tick: float, latency: di
     return max(0, -earliest)
 
 
+def played_detuning(drive, detuning_hz: float) -> float:
+    """The detuning a table plays: the written one (what the atoms see) plus the drive's measured
+    `line_offset`, so that a calibrated line shift never reaches the atoms."""
+    offset = drive.extra.get("line_offset", 0.0) if drive.extra else 0.0
+    return detuning_hz + offset if offset else detuning_hz
+
+
 def _port_events(program: Program, event: Event, tick: float, latency: dict[str, int],
                  shift: int) -> list[PortEvent]:
     start, length = _ticks(event.start_s, tick) + shift, _ticks(event.duration_s, tick)
@@ -191,7 +198,8 @@ def _port_events(program: Program, event: Event, tick: float, latency: dict[str,
         drive = program.rig.drives[event.drive]
         amplitude = event.rabi_hz / drive.max_rabi_hz
         out = [PortEvent(drive.port, start - latency[drive.port], length, PULSE, event.index, _source(event),
-                         drive.name, event.rabi_hz, amplitude, event.detuning_hz, event.phase_rad,
+                         drive.name, event.rabi_hz, amplitude, played_detuning(drive, event.detuning_hz),
+                         event.phase_rad,
                          event.shape.kind, event.targets)]
         if drive.gate is not None:
             lead, lag = _ticks(drive.gate_lead_s, tick), _ticks(drive.gate_lag_s, tick)

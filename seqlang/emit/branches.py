@@ -13,6 +13,7 @@ import io
 
 from .. import __version__
 from ..compile.decisions import ready_time, variant_of, writer_of
+from ..compile.hardware import played_detuning
 from ..compile.pipeline import Checked
 from ..compile.timeline import PULSE
 from .tables import CAUTION, _num, _source
@@ -43,7 +44,7 @@ def branch_rows(checked: Checked) -> list[dict]:
                 "enabled": int(played),
                 "rabi_hz": _num(variant.rabi_hz) if played and drive else 0,
                 "amplitude": _num(variant.rabi_hz / drive.max_rabi_hz) if played and drive else 0,
-                "detuning_hz": _num(variant.detuning_hz) if played and drive else 0,
+                "detuning_hz": _num(played_detuning(drive, variant.detuning_hz)) if played and drive else 0,
                 "phase_rad": _num(variant.phase_rad) if played and drive else 0,
                 "area_rad": _num(variant.area_rad) if played and drive else 0,
                 "ready_tick": ready, "deadline_tick": issue.get(event.index, 0),

@@ -1,9 +1,19 @@
 """The rig change a fit implies: one property's new value, as a diff of the rig file.
 
-A Rabi fit of a drive's scan calibrates the drive's `rabi` (the fitted oscillation
-frequency is Ω/2π: P = (1 − cos Ωt)/2, Rabi formula); a Ramsey fit calibrates a
-species' `t2_star`. The value is replaced in the rig's text where the parser found
-it (other lines untouched); written only on request, atomically, the old file kept.
+* a Rabi fit of a drive's scan calibrates the drive's `rabi` (the fitted oscillation
+  frequency is Ω/2π: P = (1 − cos Ωt)/2, Rabi formula);
+* a Ramsey fit calibrates a species' `t2_star`;
+* a resonance fit of a detuning scan calibrates the drive's `line_offset`: the line
+  was found at the fitted centre of the written detuning, so the new offset is the
+  old one plus the centre (the tables then play detuning + offset, and a written
+  detuning 0 sits on the line);
+* a blockade-versus-distance fit gives C6 from the crossover, C6/h = (Ω/2π)·R_b⁶
+  (R_b = (C6/hΩ)^(1/6), common practice), with Ω the drive's `rabi` in the rig.
+  The rig takes C6 from the atomic data, so this is reported beside that value,
+  never written.
+
+The value is replaced in the rig's text where the parser found it (other lines
+untouched); written only on request, atomically, the old file kept.
 """
 from __future__ import annotations
 
@@ -16,9 +26,25 @@ from ..lang import syntax as ast
 from ..lang import units
 from ..lang.parser import parse_text
 
-# model → (owner kind, rig property, fitted parameter, dimension of the property, unit of x → value)
-RULES = {"rabi": ("drive", "rabi", "frequency", units.FREQUENCY),
-         "ramsey": ("species", "t2_star", "t2", units.DURATION)}
+
+@dataclass(frozen=True)
+class Rule:
+    """How a fitted parameter becomes a rig property."""
+
+    owner: str  # `drive` or `species`
+    key: str  # the rig property
+    parameter: str  # the fitted parameter
+    dim: tuple  # the property's dimension
+    per_x: bool  # the parameter is in 1/(x's unit) (a frequency from a time scan), else in x's unit
+    added: bool = False  # the new value is the old one plus the fitted parameter
+
+
+RULES = {"rabi": Rule("drive", "rabi", "frequency", units.FREQUENCY, per_x=True),
+         "ramsey": Rule("species", "t2_star", "t2", units.DURATION, per_x=False),
+         "resonance": Rule("drive", "line_offset", "centre", units.FREQUENCY, per_x=False, added=True)}
+SCANNED = {"rabi": units.DURATION, "ramsey": units.DURATION, "resonance": units.FREQUENCY,
+           "blockade": units.LENGTH}  # what each curve's scan must vary
+HZ_UM6 = 1e-36  # C6/h in Hz·µm⁶ → Hz·m⁶
 
 
 @dataclass(frozen=True)
@@ -33,32 +59,55 @@ class Change:
     error: str
     text: str
     diff: str
+    note: str = ""
 
     def describe(self) -> str:
         was = f"{self.old}" if self.old is not None else "not set"
-        return f"{self.owner} {self.key}: {was} -> {self.new} (± {self.error}, 1 sigma from the fit)"
+        line = f"{self.owner} {self.key}: {was} -> {self.new} (± {self.error}, 1 sigma from the fit)"
+        return line + (f"\n{self.note}" if self.note else "")
 
 
 def proposal(document: dict, rig_path: str, drive: str | None = None, species: str | None = None,
              record: str | None = None) -> Change:
+    """The change of `rig_path` that the fit in `document` (a fit.json) implies."""
     fit = _pick_fit(document, record)
-    kind, key, parameter, dim = RULES.get(fit["model"], (None,) * 4)
-    if kind is None:
-        raise ValueError(f"a {fit['model']} fit calibrates nothing in the rig yet (rabi: a drive's `rabi`; "
-                         "ramsey: a species' `t2_star`)")
-    owner = drive if kind == "drive" else species
+    rule = RULES.get(fit["model"])
+    if rule is None:
+        raise ValueError(f"a {fit['model']} fit calibrates nothing in the rig (rabi: a drive's `rabi`; ramsey: "
+                         "a species' `t2_star`; resonance: a drive's `line_offset`; blockade: reports C6)")
+    _check_scan(document, fit["model"])
+    owner = drive if rule.owner == "drive" else species
     if owner is None:
-        raise ValueError(f"a {fit['model']} fit calibrates a {kind}: name it with --{kind}")
-    si = _to_si(fit["values"][parameter], document["si_factor"], dim)
-    error = _to_si(fit["errors"][parameter], document["si_factor"], dim)
+        raise ValueError(f"a {fit['model']} fit calibrates a {rule.owner}: name it with --{rule.owner}")
+    value, error = _fitted(fit, rule.parameter, document["si_factor"], rule.per_x)
     with open(rig_path, encoding="utf-8") as handle:
         text = handle.read()
-    new_value = units.format_quantity(si, dim)
-    changed, old = _replace(text, rig_path, kind, owner, key, new_value)
+    note = ""
+    if rule.added:
+        old_si = _resolved(rig_path, rule.owner, owner).extra.get(rule.key, 0.0)
+        note = (f"(the line was found at {units.format_quantity(value, rule.dim)} of written detuning; "
+                f"the new offset is the old {units.format_quantity(old_si, rule.dim)} plus that)")
+        value += old_si
+    new_value = units.format_quantity(value, rule.dim)
+    changed, old = _replace(text, rig_path, rule.owner, owner, rule.key, new_value)
     diff = "".join(difflib.unified_diff(text.splitlines(True), changed.splitlines(True), rig_path,
                                         rig_path + " (calibrated)"))
-    return Change(rig_path, f"{kind} `{owner}`", key, old, new_value, units.format_quantity(error, dim),
-                  changed, diff)
+    return Change(rig_path, f"{rule.owner} `{owner}`", rule.key, old, new_value,
+                  units.format_quantity(error, rule.dim), changed, diff, note)
+
+
+def blockade_c6(document: dict, rig_path: str, drive: str, record: str | None = None) -> str:
+    """C6 from the crossover radius of a blockade fit and the drive's Rabi frequency, in words."""
+    fit = _pick_fit(document, record)
+    _check_scan(document, "blockade")
+    radius, error = _fitted(fit, "radius", document["si_factor"], per_x=False)
+    rabi_hz = _resolved(rig_path, "drive", drive).max_rabi_hz
+    c6 = rabi_hz * radius ** 6
+    return (f"blockade crossover R_b = {units.format_quantity(radius, units.LENGTH)} ± "
+            f"{units.format_quantity(error, units.LENGTH)}: with Ω/2π = {units.format_quantity(rabi_hz, units.FREQUENCY)} "
+            f"(`{drive}` in the rig), C6/h = (Ω/2π)·R_b⁶ = {c6 / HZ_UM6 / 1e9:.4g} ± "
+            f"{6 * c6 * error / radius / HZ_UM6 / 1e9:.2g} GHz·um^6 (1 sigma from R_b alone; R_b = (C6/hΩ)^(1/6), "
+            "common practice). The rig takes C6 from the atomic data: compare, nothing is written.")
 
 
 def _pick_fit(document: dict, record: str | None) -> dict:
@@ -74,9 +123,37 @@ def _pick_fit(document: dict, record: str | None) -> dict:
     return fitted[record]
 
 
-def _to_si(value: float, si_factor: float, dim) -> float:
-    """x was in units of si_factor seconds: a frequency in 1/x, a time in x."""
-    return value / si_factor if dim == units.FREQUENCY else value * si_factor
+def _check_scan(document: dict, model: str) -> None:
+    unit = document.get("unit") or ""
+    dim = units.UNITS[unit][1] if unit in units.UNITS else units.DIMENSIONLESS
+    if model in SCANNED and dim != SCANNED[model]:
+        raise ValueError(f"a {model} fit calibrates from a scan of a {_kind(SCANNED[model])}; this scan of "
+                         f"`{document.get('parameter')}` is in [{unit or 'no unit'}]")
+
+
+def _kind(dim) -> str:
+    return {units.DURATION: "duration", units.FREQUENCY: "frequency", units.LENGTH: "distance"}.get(dim, "value")
+
+
+def _fitted(fit: dict, parameter: str, si_factor: float, per_x: bool) -> tuple[float, float]:
+    """The fitted value and its 1σ in SI: x was in units of si_factor (seconds, Hz, metres)."""
+    if fit["errors"].get(parameter) is None:
+        raise ValueError(f"the fit left `{parameter}` without an uncertainty (the likelihood is flat there): "
+                         "nothing to calibrate from")
+    scale = 1 / si_factor if per_x else si_factor
+    return fit["values"][parameter] * scale, fit["errors"][parameter] * scale
+
+
+def _resolved(rig_path: str, kind: str, owner: str):
+    """The resolved drive or species `owner` of the rig file (for its current values)."""
+    from ..program.resolve import resolve
+    folder, name = os.path.split(os.path.abspath(rig_path))
+    probe = os.path.join(folder, "__calibrate__.seq")
+    program, _ = resolve(probe, {probe: f'use "{name}"\nsequence calibrate {{\n}}\n'})
+    found = (program.rig.drives if kind == "drive" else program.rig.species).get(owner)
+    if found is None:
+        raise ValueError(f"no {kind} `{owner}` in {rig_path}")
+    return found
 
 
 def _replace(text: str, path: str, kind: str, owner: str, key: str, value: str) -> tuple[str, str | None]:
@@ -88,11 +165,21 @@ def _replace(text: str, path: str, kind: str, owner: str, key: str, value: str) 
         raise ValueError(f"no {kind} `{owner}` in {path}")
     decl = decls[owner]
     prop = next((p for p in decl.props if p.key.name == key), None)
-    if prop is None:  # insert before the declaration's closing brace
-        end = decl.span.end - 1
-        return text[:end].rstrip(" ") + f"  {key} {value}\n  " + text[end:].lstrip(" "), None
+    if prop is None:
+        return _insert(text, decl, f"{key} {value}"), None
     start, end = prop.value.span.start, prop.value.span.end
     return text[:start] + value + text[end:], text[start:end]
+
+
+def _insert(text: str, decl, item: str) -> str:
+    """`item` added as the declaration's last property: on a line of its own, indented like the
+    others, or before the `}` of a one-line declaration."""
+    brace = decl.span.end - 1
+    line_start = text.rfind("\n", 0, brace) + 1
+    if text[line_start:brace].strip():  # `{ ... }` on one line
+        return text[:brace].rstrip(" ") + f"  {item} " + text[brace:]
+    indent = " " * (decl.props[-1].key.span.column - 1) if decl.props else text[line_start:brace] + "  "
+    return text[:line_start] + indent + item + "\n" + text[line_start:]
 
 
 def apply(change: Change) -> str:

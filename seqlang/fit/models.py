@@ -19,6 +19,7 @@ from __future__ import annotations
 import numpy as np
 
 MODELS = ("rabi", "ramsey", "resonance", "blockade", "sqrt_n")
+PROBABILITIES = ("rabi", "ramsey", "resonance", "blockade")  # curves of a probability (binomial likelihood)
 
 
 def rabi(x, frequency, contrast, offset, damping, phase):
@@ -43,6 +44,13 @@ def blockade(x, radius, near, far):
 
 def sqrt_n(x, single, exponent):
     return single * x ** exponent
+
+
+def function(name: str, envelope: str = "gaussian"):
+    """The curve's function f(x, **parameters)."""
+    if name == "ramsey":
+        return ramsey_gaussian if envelope == "gaussian" else ramsey_exponential
+    return {"rabi": rabi, "resonance": resonance, "blockade": blockade, "sqrt_n": sqrt_n}[name]
 
 
 def build(name: str, x: np.ndarray, y: np.ndarray, envelope: str = "gaussian"):

@@ -23,7 +23,7 @@ def plot_overlay(ds, x, measured, record: str, fit, path: str) -> None:
         axes.plot(ds[dim].values, ds[record].values, "-", lw=1.2, label="simulated")
     if fit is not None:
         grid = np.linspace(np.min(x), np.max(x), 400)
-        axes.plot(grid, fit.result.eval(x=grid), "--", lw=1.2, label=f"{fit.model} fit")
+        axes.plot(grid, fit.curve(grid), "--", lw=1.2, label=f"{fit.model} fit ({fit.likelihood})")
     axes.set_xlabel(_label(ds[dim]))
     axes.set_ylabel(f"{record}")
     axes.grid(alpha=0.3)

@@ -94,6 +94,8 @@ _COMMON_DRIVE_KEYS = {
     "linewidth": p.Key(p.non_negative(p.frequency), 0.0),
     "intensity_noise": p.Key(p.fraction, 0.0),
     "detuning_error": p.Key(p.frequency, 0.0),
+    "line_offset": p.Key(p.frequency, 0.0, doc="where the drive's resonance was measured, from its nominal "
+                                               "frequency: tables play detuning + line_offset"),
     "waist": p.Key(p.non_negative(p.length), 0.0),
     "servo_bump": p.Key(p.non_negative(p.frequency), 0.0),
     "servo_width": p.Key(p.non_negative(p.frequency), 0.0),
@@ -282,7 +284,7 @@ def _drive(decl: ast.DriveDecl, species: dict, scope: Scope, tick: float | None,
     if v["rabi"] is None or v["port"] is None:
         return None
     legs = _legs(v, decl, species[decl.species.name], diags) if kind == "rydberg" else None
-    extra = {k: v[k] for k in ("linewidth", "intensity_noise", "detuning_error", "waist",
+    extra = {k: v[k] for k in ("linewidth", "intensity_noise", "detuning_error", "line_offset", "waist",
                                "servo_bump", "servo_width", "servo_height")}
     return Drive(decl.name.name, kind, decl.species.name, v["reach"], v["rabi"], v["detuning"],
                  v["port"], v["gate"], v["gate_lead"], v["gate_lag"], v["latency"], v["rise"],

@@ -108,3 +108,48 @@ def _dask(job: Job, indices: list[int], scheduler: str, workers: int, processes:
         client.close()
         if cluster is not None:
             cluster.close()
+
+
+@contextlib.contextmanager
+def mapper(workers: int = 1, scheduler: str | None = None, preload: tuple[str, ...] = ()):
+    """A `map(function, items) -> list` in the items' order, over the same executors as the points:
+    this process (`workers` 1), a local process pool, or a Dask cluster (`scheduler` an address or
+    `local`). The pool or cluster lives as long as the context, so repeated maps (an optimiser's
+    generations) pay its start once. `function` and the items must pickle."""
+    if scheduler is not None:
+        with _dask_client(scheduler, workers or default_workers(), True) as client:
+            yield lambda function, items: client.gather(client.map(function, list(items), pure=False))
+        return
+    workers = workers or default_workers()
+    if workers == 1:
+        yield lambda function, items: [function(item) for item in items]
+        return
+    context = multiprocessing.get_context("forkserver")
+    context.set_forkserver_preload(list(preload) or ["seqlang.sim.api"])
+    with _workers_skip_main():
+        pool = context.Pool(workers, initializer=_ignore_interrupts)
+    try:
+        yield lambda function, items: pool.map(function, list(items), chunksize=1)
+        pool.close()
+    except BaseException:
+        pool.terminate()
+        raise
+    finally:
+        pool.join()
+
+
+@contextlib.contextmanager
+def _dask_client(scheduler: str, workers: int, processes: bool):
+    from distributed import Client, LocalCluster
+    cluster = None
+    if scheduler == "local":
+        with _workers_skip_main():
+            cluster = LocalCluster(n_workers=workers, threads_per_worker=1, processes=processes,
+                                   dashboard_address=None)
+    client = Client(cluster if cluster is not None else scheduler)
+    try:
+        yield client
+    finally:
+        client.close()
+        if cluster is not None:
+            cluster.close()

@@ -216,6 +216,9 @@ def qubit_frequency_hz(
 
 
 _LEVEL_PATTERN = re.compile(r"^\s*(\d+)\s*([A-Za-z])\s*(\d+)\s*/\s*2\s*$")
+# Rydberg levels used in the lab lie well below this (common practice: n of 30 to 150); the
+# quantum defects and matrix elements of the atomic-data library are not meant far beyond.
+MAX_RYDBERG_N = 200
 
 
 def parse_level(text: str, species: str | SpeciesData | None = None) -> RydbergLevel:
@@ -228,6 +231,11 @@ def parse_level(text: str, species: str | SpeciesData | None = None) -> RydbergL
     if not match:
         raise ValueError(f"cannot read level {text!r}: expected e.g. '58S1/2' or '43D5/2'")
     letter = match.group(2).upper()
+    if len(match.group(1)) > 4 or int(match.group(1)) > MAX_RYDBERG_N:
+        raise ValueError(f"level {text[:40]!r}{'...' if len(text) > 40 else ''}: n above {MAX_RYDBERG_N} "
+                         "is beyond the atomic data (Rydberg levels in use have n of about 30 to 150)")
+    if len(match.group(3)) > 4:
+        raise ValueError(f"level {text[:40]!r}...: j is not a half-integer of the level's l ± 1/2")
     if letter not in _L_LETTERS:
         raise ValueError(f"unknown orbital letter {match.group(2)!r} in {text!r}; use one of {_L_LETTERS}")
     level = RydbergLevel(int(match.group(1)), _L_LETTERS.index(letter), int(match.group(3)) / 2)

@@ -32,8 +32,8 @@ def _pitch(expr: ast.Expr, scope: Scope) -> tuple[float, float]:
     if len(values) != 2:
         raise EvalError(error("expected one pitch, or two for x and y such as `(5, 6) um`", expr.span))
     pitch = tuple(expect_kind(q, units.LENGTH, expr.span) for q in values)
-    if not min(pitch) > 0:
-        raise EvalError(error("the pitch must be positive", expr.span))
+    if not min(pitch) > 0 or not all(math.isfinite(q) for q in pitch):
+        raise EvalError(error("the pitch must be positive and finite", expr.span))
     return pitch
 
 
@@ -42,10 +42,12 @@ def _size(expr: ast.Expr, scope: Scope) -> tuple[int, int]:
     if not isinstance(value, tuple) or len(value) != 2:
         raise EvalError(error("expected a size in cells along x and y, such as `(12, 10)`", expr.span))
     size = tuple(expect_kind(q, units.DIMENSIONLESS, expr.span) for q in value)
-    if any(n != int(n) or n < 1 for n in size):
+    if any(not math.isfinite(n) or n != int(n) or n < 1 for n in size):
         raise EvalError(error("expected whole numbers of at least 1, such as `(12, 10)`", expr.span))
-    if size[0] * size[1] > lat.MAX_SITES:
-        raise EvalError(error(f"{int(size[0] * size[1]):,} cells; a lattice may have at most "
+    cells = size[0] * size[1]  # 1e308 squared is inf: said in words, never passed to int()
+    if cells > lat.MAX_SITES:
+        counted = f"{cells:,.0f}" if math.isfinite(cells) else "more than 10^308"
+        raise EvalError(error(f"{counted} cells; a lattice may have at most "
                               f"{lat.MAX_SITES:,}", expr.span))
     return (int(size[0]), int(size[1]))
 
@@ -353,7 +355,7 @@ class _Expander:
 
     def _integer(self, expr, size: int, layout: Layout, axis: int) -> int:
         value = expect_kind(evaluate(expr, self.scope), units.DIMENSIONLESS, expr.span)
-        if value != int(value):
+        if not math.isfinite(value) or value != int(value):
             raise EvalError(error(f"an index is a whole number, got {value:g}", expr.span))
         if not 0 <= value < size:
             raise EvalError(error(f"index {int(value)} is outside lattice `{layout.name}`: "

@@ -99,6 +99,19 @@ def non_negative(reader: Reader, what: str = "value") -> Reader:
     return read
 
 
+def latency(expr: ast.Expr, scope: Scope) -> float:
+    """An output latency: non-negative and at most MAX_LATENCY_S (it shifts the whole table)."""
+    value = non_negative(duration)(expr, scope)  # "`latency` cannot be negative", as other keys
+    if value > MAX_LATENCY_S:
+        raise EvalError(error(f"a latency of {value:g} s is longer than {MAX_LATENCY_S:g} s; the whole table "
+                              "is shifted by the largest latency", expr.span,
+                              "output latencies are nanoseconds to milliseconds (common practice)"))
+    return value
+
+
+MAX_LATENCY_S = 1.0
+
+
 def fraction(expr: ast.Expr, scope: Scope) -> float:
     """A plain number or percentage between 0 and 1."""
     value = expect_kind(evaluate(expr, scope), units.DIMENSIONLESS, expr.span)

@@ -86,7 +86,7 @@ _COMMON_DRIVE_KEYS = {
     "gate": p.Key(p.channel, None),
     "gate_lead": p.Key(p.non_negative(p.duration), 0.0),
     "gate_lag": p.Key(p.non_negative(p.duration), 0.0),
-    "latency": p.Key(p.non_negative(p.duration), 0.0),
+    "latency": p.Key(p.latency, 0.0),
     "rise": p.Key(p.non_negative(p.duration), 0.0),
     "sample_rate": p.Key(p.positive(p.frequency, "sample rate"), None),
     "amplitude_bits": p.Key(p.integer(1, 32), 16),
@@ -116,7 +116,7 @@ IMAGE_KEYS = {
     "duration": p.Key(p.positive(p.duration, "imaging time"), required=True),
     "fidelity": p.Key(p.fraction, 1.0),
     "loss": p.Key(p.fraction, 0.0),
-    "latency": p.Key(p.non_negative(p.duration), 0.0),
+    "latency": p.Key(p.latency, 0.0),
     "false_positive": p.Key(p.fraction, 0.0),
     "false_negative": p.Key(p.fraction, 0.0),
     # Feed-forward: camera read-out plus processing, from the end of the imaging to
@@ -131,7 +131,7 @@ IMAGE_KEYS = {
 
 PORT_KEYS = {
     "kind": p.Key(p.choice("digital", "analog", "deflector"), "digital"),
-    "latency": p.Key(p.non_negative(p.duration), 0.0),
+    "latency": p.Key(p.latency, 0.0),
     "width": p.Key(p.positive(p.duration, "trigger width"), 1e-6),
     "range": p.Key(p.any_range, None),
     # electrodes (analog) and deflectors: see PORT_EXTRA_KEYS and docs/language.md

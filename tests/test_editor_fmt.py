@@ -132,6 +132,14 @@ def test_comments_stay_beside_their_statements():
     assert format_text(text, "x.seq") == "sequence s {\n  # first\n  wait 1 us  # one\n  wait 2 us\n}\n"
 
 
+
+def test_lattices_indices_and_fills_are_formatted():
+    text = ('lattice t   from "traps.csv"\nlattice d = square {  pitch 5 um   size (4,3) }\n'
+            "group g = d[ 0..1 , *],d[3,2]\nsequence s {\n  fill   g  from d[*, 0]  strategy straight\n}\n")
+    assert format_text(text, "x.seq") == (
+        'lattice t from "traps.csv"\nlattice d = square { pitch 5 um  size (4, 3) }\n'
+        "group g = d[0 .. 1, *], d[3, 2]\nsequence s {\n  fill g from d[*, 0] strategy straight\n}\n")
+
 def test_operators_keep_their_grouping():
     # (a - b) - c and a - (b - c) are different numbers: the parentheses must survive.
     text = "let x = 1 - (2 - 3)\nlet y = (1 - 2) - 3\nlet z = 2^3^2\nlet w = (2^3)^2\n"

@@ -9,6 +9,7 @@ import glob
 import json
 import os
 import re
+from pathlib import Path
 
 import pytest
 from pygments.lexers import get_lexer_by_name, get_lexer_for_filename
@@ -73,3 +74,13 @@ def test_textmate_grammar_is_valid_and_covers_the_keywords():
     patterns = [re.compile(p) for p in _textmate_patterns(grammar)]  # Python re reads these Oniguruma patterns
     words = ("pulse", "together", "repeat", "expect", "trigger")
     assert all(any(p.fullmatch(w) for p in patterns) for w in words)
+
+
+def test_every_word_of_the_grammar_is_highlighted():
+    """A word the grammar adds (a new statement, say) must reach the highlighting lists."""
+    from seqlang.editor.lexer import CONSTANTS, FUNCTIONS, KEYWORDS
+    grammar = re.sub(r"//.*", "", (Path(__file__).resolve().parent.parent / "grammar" / "seqlang.lark")
+                     .read_text(encoding="utf-8"))
+    words = set(re.findall(r'"([a-z_]+)"', grammar))
+    assert {"pulse", "lattice", "fill"} <= words
+    assert words - set(KEYWORDS) - set(CONSTANTS) - set(FUNCTIONS) == set()

@@ -68,7 +68,7 @@ def tree_shape(node):
     if isinstance(node, ast.SourceFile):
         return tree_shape(node.items)
     if is_dataclass(node):
-        kept = [f.name for f in fields(node) if f.name not in ("span", "unit_span")]
+        kept = [f.name for f in fields(node) if f.name != "span" and not f.name.endswith("_span")]
         return (type(node).__name__,) + tuple(tree_shape(getattr(node, n)) for n in kept)
     if isinstance(node, (tuple, list)):
         return tuple(tree_shape(x) for x in node)
@@ -198,7 +198,7 @@ def _compound(expr, text: str) -> str:
     if isinstance(expr, ast.StatePair):
         return f"{_kwtuple(expr.lower, text)} <-> {_kwtuple(expr.upper, text)}"
     if isinstance(expr, ast.RecordSel):
-        return f"{expr.record.name}[{_names(expr.sites)}]"
+        return f"{expr.record.name}[{_names(expr.sites, text)}]"
     raise TypeError(f"cannot format {type(expr).__name__}")
 
 
@@ -243,8 +243,21 @@ def _prop(prop: ast.Prop, text: str) -> str:
     return f"{prop.key.name} {expression(prop.value, text)}"
 
 
-def _names(idents) -> str:
-    return ", ".join(i.name for i in idents)
+def _names(idents, text: str = "") -> str:
+    return ", ".join(_site_ref(i, text) for i in idents)
+
+
+def _site_ref(ref, text: str) -> str:
+    """A name, or a lattice's sites by index: `d[3, 4]`, `d[0 .. 4, *]`."""
+    if not isinstance(ref, ast.Indexed):
+        return ref.name
+    def index(ix) -> str:
+        if ix is None:
+            return "*"
+        if isinstance(ix, tuple):
+            return f"{expression(ix[0], text)} .. {expression(ix[1], text)}"
+        return expression(ix, text)
+    return f"{ref.name.name}[{', '.join(index(ix) for ix in ref.indices)}]"
 
 
 # ---- statements -----------------------------------------------------------------
@@ -295,7 +308,7 @@ def _print_scan(printer, item: ast.ScanDecl, depth):
 
 
 def _print_lockstep(printer, item: ast.LockstepDecl, depth):
-    _line(printer, item, f"scan lockstep {_names(item.names)}", depth)
+    _line(printer, item, f"scan lockstep {_names(item.names, printer.text)}", depth)
 
 
 def _print_free(printer, item: ast.FreeDecl, depth):
@@ -311,12 +324,12 @@ def _print_site(printer, item: ast.SiteStmt, depth):
 
 
 def _print_group(printer, item: ast.GroupStmt, depth):
-    _line(printer, item, f"group {item.name.name} = {_names(item.members)}", depth)
+    _line(printer, item, f"group {item.name.name} = {_names(item.members, printer.text)}", depth)
 
 
 def _print_expect(printer, item: ast.ExpectStmt, depth):
     state = " * ".join(f.name for f in item.factors) if item.factors else item.state.name
-    words = f"expect {_names(item.sites)} as {state}{_inline_props(item.props, printer.text)}"
+    words = f"expect {_names(item.sites, printer.text)} as {state}{_inline_props(item.props, printer.text)}"
     _line(printer, item, words, depth)
 
 
@@ -352,6 +365,21 @@ def _print_block(printer, item: ast.BlockDef, depth):
     _braced(printer, item, f"block {item.name.name}({params})", header_end, item.body, depth)
 
 
+def _print_lattice(printer, item: ast.LatticeDecl, depth):
+    _prop_block(printer, item, f"lattice {item.name.name} = {item.kind.name}", item.kind.span.end, item.props, depth)
+
+
+def _print_lattice_file(printer, item: ast.LatticeFile, depth):
+    words = f'lattice {item.name.name} from "{item.path}"{_inline_props(item.props, printer.text)}'
+    _line(printer, item, words, depth)
+
+
+def _print_fill(printer, stmt: ast.FillStmt, depth):
+    sources = f" from {_names(stmt.sources, printer.text)}" if stmt.sources else ""
+    words = f"fill {_names(stmt.targets, printer.text)}{sources}{_inline_props(stmt.props, printer.text)}"
+    _line(printer, stmt, words, depth)
+
+
 def _print_sequence(printer, item: ast.SequenceDef, depth):
     _braced(printer, item, f"sequence {item.name.name}", item.name.span.end, item.body, depth)
 
@@ -361,7 +389,7 @@ def _inline_props(props, text: str) -> str:
 
 
 def _print_pulse(printer, stmt: ast.PulseStmt, depth):
-    targets = f" on {_names(stmt.targets)}" if stmt.targets else ""
+    targets = f" on {_names(stmt.targets, printer.text)}" if stmt.targets else ""
     _line(printer, stmt, f"pulse {stmt.drive.name}{targets}{_inline_props(stmt.props, printer.text)}", depth)
 
 
@@ -407,7 +435,7 @@ def _print_field(printer, stmt: ast.FieldStmt, depth):
 
 
 def _print_move(printer, stmt: ast.MoveStmt, depth):
-    words = f"move {_names(stmt.sites)} {'by' if stmt.relative else 'to'} {expression(stmt.target, printer.text)}"
+    words = f"move {_names(stmt.sites, printer.text)} {'by' if stmt.relative else 'to'} {expression(stmt.target, printer.text)}"
     _line(printer, stmt, words + _inline_props(stmt.props, printer.text), depth)
 
 
@@ -444,7 +472,7 @@ _STATEMENT_PRINTERS = {
     ast.LetStmt: _print_let, ast.Prop: _print_prop, ast.SpeciesDecl: _print_species,
     ast.DriveDecl: _print_drive, ast.ImageDecl: _print_image_decl, ast.PortDecl: _print_port,
     ast.FieldStmt: _print_field, ast.MoveStmt: _print_move,
-    ast.WhenStmt: _print_when,
+    ast.WhenStmt: _print_when, ast.FillStmt: _print_fill,
 }
 
 _ITEM_PRINTERS = {
@@ -452,4 +480,5 @@ _ITEM_PRINTERS = {
     ast.SiteStmt: _print_site, ast.GroupStmt: _print_group, ast.BlockDef: _print_block,
     ast.SequenceDef: _print_sequence, ast.ExpectStmt: _print_expect,
     ast.ScanDecl: _print_scan, ast.LockstepDecl: _print_lockstep, ast.FreeDecl: _print_free,
+    ast.LatticeDecl: _print_lattice, ast.LatticeFile: _print_lattice_file,
 }

@@ -17,11 +17,13 @@ from pygments.token import (Comment, Keyword, Name, Number, Operator, Punctuatio
 KEYWORDS = ("use", "import", "rig", "species", "drive", "image", "port", "let", "site", "group",
             "at", "block", "sequence", "pulse", "on", "off", "wait", "together", "align", "repeat",
             "do", "switch", "set", "trigger", "expect", "as", "when", "otherwise", "is", "scan", "points",
-            "spacing", "lockstep", "free", "field", "move", "to", "by")
+            "spacing", "lockstep", "free", "field", "move", "to", "by", "lattice", "from", "fill")
 # Values that are words: drive kinds, reach, alignments, qubit encodings, shapes, states.
 CONSTANTS = ("microwave", "raman", "rydberg", "all", "each", "start", "end", "center", "clock",
              "digital", "analog", "counter", "co", "square", "ramped", "gaussian", "blackman",
-             "phi_plus", "phi_minus", "psi_plus", "psi_minus", "electrode", "deflector", "minimum_jerk")
+             "phi_plus", "phi_minus", "psi_plus", "psi_minus", "electrode", "deflector", "minimum_jerk",
+             "rectangular", "triangular", "hexagonal", "checkerboard", "rows", "columns", "sublattice",
+             "corridors", "straight")
 FUNCTIONS = ("sqrt", "sin", "cos", "tan", "exp", "log", "abs", "asin", "acos", "atan", "atan2", "clip", "round",
              "floor", "ceil", "min", "max", "bright", "fraction", "outcome")
 UNIT_PATTERN = (r"(THz|GHz|MHz|kHz|Hz|ps|ns|us|µs|ms|s|cm|mm|um|µm|nm|m|nK|uK|µK|mK|K|mrad|rad|deg|"

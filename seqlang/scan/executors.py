@@ -84,14 +84,8 @@ def _pool(job: Job, indices: list[int], workers: int) -> Iterator[dict]:
 
 
 def _dask(job: Job, indices: list[int], scheduler: str, workers: int, processes: bool) -> Iterator[dict]:
-    from distributed import Client, LocalCluster, as_completed
-    cluster = None
-    if scheduler == "local":
-        with _workers_skip_main():
-            cluster = LocalCluster(n_workers=workers, threads_per_worker=1, processes=processes,
-                                   dashboard_address=None)
-    client = Client(cluster if cluster is not None else scheduler)
-    try:
+    from distributed import as_completed
+    with _dask_client(scheduler, workers, processes) as client:
         limit = max(1, IN_FLIGHT_PER_WORKER * len(client.scheduler_info()["workers"]))
         pending = iter(indices)
         submit = lambda i: client.submit(run_point, job, i, key=f"seqlang-point-{job.fingerprint[:12]}-{i}",
@@ -104,10 +98,6 @@ def _dask(job: Job, indices: list[int], scheduler: str, workers: int, processes:
             if following is not None:
                 queue.add(submit(following))
             yield result
-    finally:
-        client.close()
-        if cluster is not None:
-            cluster.close()
 
 
 @contextlib.contextmanager

@@ -21,6 +21,7 @@ RIG = """rig passbench {
   drive mw microwave na { rabi 25 kHz  port awg0.1  latency 100 ns }
   drive ryd rydberg na { rabi 1 MHz  port awg1.1  gate ttl.4  gate_lead 100 ns  gate_lag 40 ns
                          latency 400 ns  rise 20 ns }
+  drive ram raman na { rabi 200 kHz  port awg0.3 }
   port trig = ttl.7 { kind digital }
 }
 """
@@ -163,3 +164,15 @@ def test_quantization_keeps_the_pulse_area(tmp_path):
     played = sequence.played.events[0]
     assert played.duration_s == pytest.approx(round(20.001e-6 / 2e-9) * 2e-9)
     assert played.area_rad == pytest.approx(wanted, abs=1e-3)
+
+
+def test_two_drives_on_one_transition_at_once_are_warned(tmp_path):
+    """Microwave and Raman both drive the qubit transition: played together the simulator (one
+    drive frame per transition) would add their detunings, so check says so."""
+    together = _load(tmp_path, "  together {\n    pulse mw area pi detuning 5 kHz\n    pulse ram area pi\n  }")
+    messages = [w.message for w in together.warnings]
+    assert any("`ram` and `mw` (line 5) drive the same transition of `a` at once" in m for m in messages), messages
+    after = _load(tmp_path, "  pulse mw area pi detuning 5 kHz\n  pulse ram area pi")
+    assert not any("same transition" in w.message for w in after.warnings)
+    other = _load(tmp_path, "  together {\n    pulse mw area pi\n    pulse ryd area pi\n  }")
+    assert not any("same transition" in w.message for w in other.warnings), "qubit and Rydberg ladder differ"

@@ -21,7 +21,37 @@ TOUCH_S = 1e-15
 
 def check_timeline(program: Program, timeline: Timeline) -> list[Diagnostic]:
     """Every timing conflict of the timeline, in source order."""
-    return _overlaps(timeline) + _pulses_during_imaging(timeline) + _rydberg_pulses_in_trap_light(program, timeline)
+    return (_overlaps(timeline) + _pulses_during_imaging(timeline)
+            + _rydberg_pulses_in_trap_light(program, timeline) + _one_transition_two_drives(program, timeline))
+
+
+def _transition(program: Program, pulse: Event) -> tuple[str, str]:
+    """(species, transition) a pulse drives: microwave and Raman the qubit, Rydberg the ladder."""
+    kind = program.rig.drives[pulse.drive].kind
+    return pulse.species, "rydberg" if kind == "rydberg" else "qubit"
+
+
+def _one_transition_two_drives(program: Program, timeline: Timeline) -> list[Diagnostic]:
+    """Two drives on one transition of one atom at once: the lab plays both, but the simulator
+    follows one drive frame per transition and would add their detunings."""
+    out, playing = [], []
+    for pulse in sorted(timeline.pulses(), key=lambda e: (e.start_s, e.index)):
+        playing = [p for p in playing if p.end_s > pulse.start_s + TOUCH_S]
+        for other in playing:
+            if other.drive == pulse.drive or _transition(program, other) != _transition(program, pulse) \
+                    or exclusive(pulse, other):
+                continue
+            shared = set(pulse.targets or program.sites_of(pulse.species)) & \
+                set(other.targets or program.sites_of(other.species))
+            if shared:
+                out.append(warning(
+                    f"`{pulse.drive}` and `{other.drive}` (line {other.span.line}) drive the same transition of "
+                    f"`{sorted(shared)[0]}` at once; the simulator follows one drive per transition at a time, so "
+                    "its numbers for this stretch are not to be trusted (the tables are)", pulse.span,
+                    "play them one after the other"))
+                break
+        playing.append(pulse)
+    return _first_per_statement(out)
 
 
 def _rydberg_pulses_in_trap_light(program: Program, timeline: Timeline) -> list[Diagnostic]:

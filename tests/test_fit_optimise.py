@@ -3,6 +3,8 @@ blockade and no noise; at finite blockade the optimum is at least as good as the
 parameters."""
 from __future__ import annotations
 
+from pathlib import Path
+
 import pytest
 
 import seqlang
@@ -133,3 +135,19 @@ def test_optimise_command_says_what_it_optimised_and_rejects_bad_options(tmp_pat
                          (("--population", "0"), "--population must")):
         wrong = run(*bad)
         assert wrong.returncode == 2 and message in wrong.stderr and "Traceback" not in wrong.stderr
+
+
+def test_a_changed_rig_is_read_again(tmp_path):
+    """The per-process cache of parsed files follows the rig too, not only the program."""
+    import os
+    import shutil
+    from seqlang.fit import optimise
+    for name in ("cz_optimise.seq", "millpond.rig"):
+        shutil.copy(Path(__file__).resolve().parent.parent / "programs" / name, tmp_path / name)
+    path = str(tmp_path / "cz_optimise.seq")
+    first = optimise._loaded(path)
+    assert optimise._loaded(path) is first
+    rig = tmp_path / "millpond.rig"
+    rig.write_text(rig.read_text(encoding="utf-8") + "\n", encoding="utf-8")
+    os.utime(rig, ns=(rig.stat().st_mtime_ns + 10**9,) * 2)
+    assert optimise._loaded(path) is not first

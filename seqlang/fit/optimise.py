@@ -137,14 +137,28 @@ _LOADED: dict = {}  # per process: the parsed files of each optimised path (a wo
 
 
 def _loaded(path: str):
+    """The parsed files, read again when any of them (the program, its rig, its imports) changed."""
     import os
     from ..program.resolve import load_files
-    stat = os.stat(path)
-    key = (os.path.abspath(path), stat.st_mtime_ns, stat.st_size)
-    if key not in _LOADED:
+    key = os.path.abspath(path)
+    kept = _LOADED.get(key)
+    if kept is None or kept[0] != _stamps(kept[1].hashes or {path: ""}):
+        loaded = load_files(path)
         _LOADED.clear()
-        _LOADED[key] = load_files(path)
-    return _LOADED[key]
+        _LOADED[key] = kept = (_stamps(loaded.hashes or {path: ""}), loaded)
+    return kept[1]
+
+
+def _stamps(files) -> tuple:
+    import os
+    out = []
+    for name in sorted(files):
+        try:
+            stat = os.stat(name)
+            out.append((name, stat.st_mtime_ns, stat.st_size))
+        except OSError:
+            out.append((name, None, None))
+    return tuple(out)
 
 
 class _Search:

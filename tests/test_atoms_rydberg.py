@@ -278,6 +278,18 @@ def test_cache_computes_once_per_key(tmp_path, monkeypatch):
     assert compute.calls == 2
 
 
+
+def test_a_symmetric_pair_is_found_under_either_order(tmp_path, monkeypatch):
+    """V(R, θ) of Na + Cs equals that of Cs + Na: a stored table serves both orders."""
+    monkeypatch.setenv(cache.CACHE_DIR_ENV, str(tmp_path))
+    compute = Counter({"v": [1.5]})
+    forward, backward = {"a": "Na23", "b": "Cs133"}, {"a": "Cs133", "b": "Na23"}
+    assert cache.cached_either("demo", forward, backward, compute) == {"v": [1.5]}
+    assert cache.cached_either("demo", backward, forward, compute) == {"v": [1.5]}
+    assert compute.calls == 1
+    cache.cached_either("demo", {"a": "Rb87", "b": "Cs133"}, {"a": "Cs133", "b": "Rb87"}, compute)
+    assert compute.calls == 2
+
 def test_cache_uses_the_environment_directory_and_leaves_no_temporary_files(tmp_path, monkeypatch):
     monkeypatch.setenv(cache.CACHE_DIR_ENV, str(tmp_path / "nested"))
     cache.cached("demo", {"n": 1}, Counter([1.5, 2.5]))

@@ -58,6 +58,15 @@ def cached(kind: str, key: dict[str, Any], compute: Callable[[], Any]) -> Any:
     return value
 
 
+def cached_either(kind: str, key: dict[str, Any], other_key: dict[str, Any], compute: Callable[[], Any]) -> Any:
+    """As `cached`, but a value stored under `other_key` (the same quantity asked another way,
+    e.g. a symmetric pair with its atoms named the other way round) is taken too."""
+    stored = _read(cache_path(kind, key), _canonical(kind, key))
+    if stored is None:
+        stored = _read(cache_path(kind, other_key), _canonical(kind, other_key))
+    return stored["value"] if stored is not None else cached(kind, key, compute)
+
+
 def _read(path: Path, identity: str) -> dict[str, Any] | None:
     try:
         stored = json.loads(path.read_text(encoding="utf-8"))

@@ -35,7 +35,7 @@ import math
 from dataclasses import dataclass
 
 from . import rydberg, stark
-from .cache import cached
+from .cache import cached, cached_either
 from .species import RydbergLevel, SpeciesData
 
 VALIDITY_FACTOR = 2.0
@@ -95,6 +95,14 @@ def _pair_key(p: _Pair, **more) -> dict:
     return rydberg._key(a=p.a.name, level_a=p.la.label, b=p.b.name, level_b=p.lb.label, **more)
 
 
+def _cached_symmetric(kind: str, p: _Pair, compute, **more):
+    """A quantity that does not change when the two atoms swap names (V(R, θ), C6, the Le Roy
+    radius): a value stored for the pair written the other way round is used, so reordering
+    two `site` lines does not cost a new diagonalisation."""
+    swapped = _Pair(p.b, p.lb, p.a, p.la)
+    return cached_either(kind, _pair_key(p, **more), _pair_key(swapped, **more), compute)
+
+
 # ---------------------------------------------------------------- radii and channels
 
 
@@ -102,7 +110,7 @@ def le_roy_radius_m(species_a, level_a, species_b, level_b) -> float:
     """Le Roy radius of the pair in metres (ARC ``getLeRoyRadius``)."""
     p = _pair(species_a, level_a, species_b, level_b)
     compute = lambda: float(rydberg._arc_pair(p.a, p.la, p.b, p.lb).getLeRoyRadius()) * 1e-6  # noqa: E731
-    return cached("leroy", _pair_key(p), compute)
+    return _cached_symmetric("leroy", p, compute)
 
 
 def _levels_with_defect(p: _Pair, defect_hz: float) -> list[list[str]]:
@@ -199,8 +207,8 @@ def _c6_at_angle_hz_m6(p: _Pair, theta: float) -> float:
         pair = rydberg._arc_pair(p.a, p.la, p.b, p.lb)
         arc_c6 = rydberg._arc_c6_at(pair, theta)
         return -arc_c6 * rydberg.HZ_M6_PER_GHZ_UM6
-    return cached("c6angle", _pair_key(p, theta=round(theta, 9), n_range=rydberg.C6_N_RANGE,
-                                       window_hz=rydberg.C6_ENERGY_WINDOW_HZ), compute)
+    return _cached_symmetric("c6angle", p, compute, theta=round(theta, 9), n_range=rydberg.C6_N_RANGE,
+                             window_hz=rydberg.C6_ENERGY_WINDOW_HZ)
 
 
 def c6_at_hz_m6(species_a, level_a, species_b, level_b, theta_rad: float = 0.0, field_v_m: float = 0.0) -> float:
@@ -281,10 +289,10 @@ def diagonalised_table(species_a, level_a, species_b, level_b, theta_rad: float 
     """V(R) and overlap on the fixed R grid, from the pair-state diagonalisation (cached)."""
     p = _pair(species_a, level_a, species_b, level_b)
     theta, field = round(theta_rad, 6), round(field_v_m, 4)
-    key = _pair_key(p, theta=theta, field=field, n_range=PAIR_N_RANGE, l_max=PAIR_L_MAX,
-                    window_hz=PAIR_WINDOW_HZ, stark_window_hz=STARK_WINDOW_HZ, tie=TIE_SHARE,
-                    grid=[GRID_MIN_M, GRID_MAX_M, GRID_POINTS])
-    return cached("pairtable", key, lambda: _compute_table(p, theta, field))
+    return _cached_symmetric("pairtable", p, lambda: _compute_table(p, theta, field), theta=theta, field=field,
+                             n_range=PAIR_N_RANGE, l_max=PAIR_L_MAX, window_hz=PAIR_WINDOW_HZ,
+                             stark_window_hz=STARK_WINDOW_HZ, tie=TIE_SHARE,
+                             grid=[GRID_MIN_M, GRID_MAX_M, GRID_POINTS])
 
 
 def _interpolate(table: dict, distance_m: float) -> tuple[float, float]:

@@ -18,22 +18,15 @@ import seqlang
 from seqlang.sim.commands import as_document
 
 from conftest import ROOT
+from test_physics_tight import RIG as TIGHT_RIG
 from test_physics_tight import (JAKSCH_BODY, _arc_c6_hz_m6, _segment, _segments, reference_propagation,
                                 simulated_ket3)
 
-# tightbench of test_physics_tight with a caesium deflector (invented numbers).
-RIG = """
-rig movebench {
-  tick 2 ns
-  species na = Na23 { rydberg 58S1/2 }
-  species cs = Cs133 { rydberg 62S1/2 }
-  drive mw_na microwave na { rabi 2 MHz  port awg0.1  amplitude_bits 32 }
-  drive mw_cs microwave cs { rabi 2 MHz  port awg0.2  amplitude_bits 32 }
-  drive ryd_na rydberg na { rabi 1.3 MHz  reach each  port awg1.1  amplitude_bits 32 }
-  drive ryd_cs rydberg cs { rabi 1.0 MHz  reach each  port awg1.2  amplitude_bits 32 }
-  port aod_cs_x = awg2.1 { kind deflector  steers cs  axis x  scale 0.5 MHz / um  center 75 MHz  sample_rate 2 MHz }
-}
-"""
+# tightbench of test_physics_tight (at its default 300 K) with a caesium deflector (invented numbers).
+DEFLECTOR = ("  port aod_cs_x = awg2.1 { kind deflector  steers cs  axis x  scale 0.5 MHz / um  center 75 MHz  "
+             "sample_rate 2 MHz }\n")
+RIG = (TIGHT_RIG % {"environment": "300 K"}).replace("rig tightbench", "rig movebench") \
+    .replace("\n}\n", "\n" + DEFLECTOR + "}\n")
 START_UM, END_UM = 15.0, 7.0  # both beyond twice the crossover radius: perturbative C6/R⁶ (atomic-data.md)
 MOVE = f"move c to ({END_UM}, 0) um duration 100 us"
 # Both atoms in |r⟩ for a while before the move (in superposition with the other inputs), so that

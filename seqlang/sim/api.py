@@ -490,7 +490,7 @@ def _linear_numbers(target: np.ndarray, paulis: list[np.ndarray]):
     return numbers
 
 
-def _conditioned_errors(clusters, expect, cluster, condition, numbers: dict) -> dict:
+def _conditioned_errors(expect, cluster, condition, numbers: dict) -> dict:
     """Monte Carlo errors of the numbers given an outcome in the expectation's own cluster:
     a ratio of per-shot sums (the outcome's weight varies from shot to shot)."""
     if not (cluster.sampled and cluster.shots > 1) or not set(expect.sites) <= set(cluster.model.sites) \
@@ -509,9 +509,15 @@ def _conditioned_errors(clusters, expect, cluster, condition, numbers: dict) -> 
            "populations_error": {k: observables.clean(v) for k, v in zip(labels, errors[1:1 + len(labels)])}}
     if pairs:
         out["correlators_error"] = {k: observables.clean(v) for k, v in zip(pairs, errors[1 + len(labels):])}
-    weights = cluster.shot_weights(condition)
-    out["probability_error"] = observables.clean(np.std(weights, ddof=1) / math.sqrt(len(weights)))
     return out
+
+
+def _probability_error(cluster, condition) -> float | None:
+    """Monte Carlo standard error of a reported outcome's probability (None when exact)."""
+    if not (cluster.sampled and cluster.shots > 1):
+        return None
+    per_shot = cluster.shot_weights(condition)
+    return observables.clean(np.std(per_shot, ddof=1) / math.sqrt(len(per_shot)))
 
 
 def _reorder_batch(rho: np.ndarray, have: list[str], want: list[str], dim: int = 2) -> np.ndarray:
@@ -561,19 +567,15 @@ def _conditioned(program, clusters, expect, unconditioned_numbers: dict) -> list
                     rho = rho / np.trace(rho).real
                     numbers = observables.summarize(rho, len(expect.sites), expect.state, expect.is_ket,
                                                     getattr(expect, "phase_rad", 0.0))
-                    errors = (_conditioned_errors(clusters, expect, cluster, condition, numbers) if touching
-                              else same_errors)
+                    errors = _conditioned_errors(expect, cluster, condition, numbers) if touching else same_errors
                     numbers = {**numbers, **errors}
                     if not touching:
                         unconditioned = numbers
                 else:
                     numbers = unconditioned
-                if not touching and cluster.sampled and cluster.shots > 1:
-                    weights = cluster.shot_weights(condition)
-                    numbers = {**numbers, "probability_error": observables.clean(
-                        np.std(weights, ddof=1) / math.sqrt(len(weights)))}
-                out.append({"record": record, "site": site, "outcome": bit,
-                            "probability": observables.clean(weight), **numbers})
+                error = _probability_error(cluster, condition)
+                out.append({"record": record, "site": site, "outcome": bit, "probability": observables.clean(weight),
+                            **numbers, **({"probability_error": error} if error is not None else {})})
     return out
 
 
@@ -594,8 +596,7 @@ def record_errors(clusters) -> dict:
         if not (cluster.sampled and cluster.shots > 1):
             continue
         for record, site in sorted({lab[:2] for o in cluster.outcomes for lab in o}):
-            per_shot = cluster.shot_weights((record, site, 1))
-            out.setdefault(record, {})[site] = observables.clean(np.std(per_shot, ddof=1) / math.sqrt(len(per_shot)))
+            out.setdefault(record, {})[site] = _probability_error(cluster, (record, site, 1))
     return out
 
 

@@ -45,7 +45,6 @@ def test_resonant_pair_scales_as_r_to_the_minus_three_over_a_decade():
     assert slope / math.log(10) == pytest.approx(-3, abs=0.05)
 
 
-@pytest.mark.slow
 def test_crossover_radius_matches_arcs_van_der_waals_radius():
     """Rb87 43D5/2 + 43D5/2 (8.3 MHz from 45P3/2 + 41F7/2): ARC's diagonalisation fitted by its
     getVdwFromLevelDiagram gives r_vdW with E ∝ 1 − √(1 + (r_vdW/R)⁶); the two-level form of

@@ -137,7 +137,6 @@ def test_interactions_after_a_move_use_the_new_distance():
     assert document["expectations"][0]["fidelity"] > 0.99
 
 
-@pytest.mark.slow
 @pytest.mark.parametrize("distance", [8, 12])
 def test_partial_blockade_warns_with_ratio_and_radius(tmp_path, distance):
     import shutil

@@ -174,18 +174,48 @@ def _plans(lark: Lark) -> tuple:
     """Per rule: its name, what to do with each symbol, placeholders, and how to build it."""
     plans = []
     table_rules = _fast_table(lark)[1]
+    transparent = _transparent_rules(lark)
     for rule in lark.rules:
         if rule not in table_rules:
             continue  # a rule the parser never reduces
         name = rule.alias or rule.origin.name
         modes = [_DROP if sym.is_term and sym.filter_out
-                 else _SPLICE if (not sym.is_term and sym.name.startswith("_")) else _KEEP
+                 else _SPLICE if (not sym.is_term and sym.name.startswith("_") and sym.name not in transparent)
+                 else _KEEP
                  for sym in rule.expansion]
+        if name in transparent:
+            plans.append((table_rules[rule], (name, (_KEEP,), (), "expand1", False)))
+            continue
         nones = _placeholders(rule)
         kind = "splice" if name.startswith("_") else \
             "expand1" if rule.options.expand1 and not rule.alias else "node"
         plans.append((table_rules[rule], (name, tuple(modes), nones, kind, name in _NESTING_RULES)))
     return tuple(plans)
+
+
+def _transparent_rules(lark: Lark) -> frozenset:
+    """Inlined rules (``_stmt: pulse_stmt | wait_stmt ...``) whose every alternative is one kept
+    symbol: splicing their one value equals passing it on, so they reduce with no call and
+    their parents keep them like any other child (a statement line saves several steps)."""
+    alternatives: dict = {}
+    for rule in lark.rules:
+        alternatives.setdefault(rule.origin.name, []).append(rule)
+    found: set = set()
+    while True:
+        more = {name for name, rules in alternatives.items()
+                if name.startswith("_") and name not in found
+                and all(len(r.expansion) == 1 and not r.alias and not r.options.empty_indices
+                        and _passes_on(r.expansion[0], found) for r in rules)}
+        if not more:
+            return frozenset(found)
+        found |= more
+
+
+def _passes_on(symbol, transparent: set) -> bool:
+    """A kept terminal, a rule that builds one value, or a transparent rule."""
+    if symbol.is_term:
+        return not symbol.filter_out
+    return not symbol.name.startswith("_") or symbol.name in transparent
 
 
 def _placeholders(rule) -> tuple[int, ...]:
@@ -297,6 +327,11 @@ def _builder_method(builder: "_Builder", name: str):
     return lambda meta, children: bound(children)
 
 
+# Span is a named tuple: its generated __new__ is one more Python call per span, and a
+# generated program makes a dozen spans per line.
+_new_span = tuple.__new__
+
+
 # ---- the Transformer: builds nodes, checks nothing --------------------------
 class _Builder(Transformer):
     """Builds :mod:`syntax` nodes, one method per grammar rule (named after the rule or
@@ -312,12 +347,13 @@ class _Builder(Transformer):
         first, last = meta.first, meta.last
         if first is None:
             return Span(self.path, 1, 1, 1, 1)
-        return Span(self.path, first.line, first.column, last.end_line, last.end_column,
-                    first.start_pos, last.end_pos)
+        return _new_span(Span, (self.path, first.line, first.column, last.end_line, last.end_column,
+                                first.start_pos, last.end_pos))
 
     def _ident(self, token: Token) -> ast.Ident:
         # Interned: a long program repeats a few names many times, each copy ~50 bytes.
-        return ast.Ident(sys.intern(str(token)), _token_span(token, self.path))
+        return ast.Ident(sys.intern(str(token)), _new_span(Span, (
+            self.path, token.line, token.column, token.end_line, token.end_column, token.start_pos, token.end_pos)))
 
     # expressions
     @v_args(meta=True)

@@ -6,6 +6,8 @@ numbers in radians, as in SI: ``pi``, ``rad`` and ``deg`` are factors, so that
 """
 from __future__ import annotations
 
+import functools
+
 import math
 from dataclasses import dataclass
 
@@ -110,7 +112,9 @@ class Quantity:
         return format_quantity(self.value, self.dim)
 
 
+@functools.lru_cache(maxsize=1024)
 def _combine(a: tuple[int, ...], b: tuple[int, ...], sign: int) -> tuple[int, ...]:
+    # Cached: a program uses a handful of dimensions, and every `3pi/8` multiplies two.
     return tuple(x + sign * y for x, y in zip(a, b))
 
 

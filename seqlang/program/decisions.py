@@ -57,23 +57,32 @@ def _for_key(diagnostic: Diagnostic, selection: Selection, key: int) -> Diagnost
 
 
 def record_calls(expr, scope: Scope) -> list[tuple[ast.Call, Scope]]:
-    """Every `bright/fraction/outcome(…)` an expression reads, through `let`s that depend on records."""
-    if isinstance(expr, ast.Call):
-        if expr.func.name in RECORD_FUNCTIONS:
-            return [(expr, scope)]
-        return [c for a in expr.args for c in record_calls(a.value, scope)]
-    if isinstance(expr, ast.BinOp):
-        return record_calls(expr.left, scope) + record_calls(expr.right, scope)
-    if isinstance(expr, (ast.Neg, ast.WithUnit)):
-        return record_calls(expr.operand, scope)
-    if isinstance(expr, ast.TupleExpr):
-        return [c for item in expr.items for c in record_calls(item, scope)]
-    if isinstance(expr, ast.NameRef):
-        value = scope.lookup(expr.name)
-        return record_calls(value.expr, value.scope) if isinstance(value, Deferred) else []
-    if isinstance(expr, (ast.Compare,)):
-        return record_calls(expr.left, scope) + record_calls(expr.right, scope)
-    return []
+    """Every `bright/fraction/outcome(…)` an expression reads, through `let`s that depend on records,
+    in reading order. A loop rather than recursion: every pulse line of a generated
+    program passes here, and most of its nodes are numbers."""
+    out: list[tuple[ast.Call, Scope]] = []
+    stack = [(expr, scope)]
+    while stack:
+        expr, scope = stack.pop()
+        kind = expr.__class__
+        if kind is ast.Number or kind is ast.UnitRef:
+            continue
+        if kind is ast.WithUnit or kind is ast.Neg:
+            stack.append((expr.operand, scope))
+        elif kind is ast.BinOp or kind is ast.Compare:
+            stack += ((expr.right, scope), (expr.left, scope))
+        elif kind is ast.Call:
+            if expr.func.name in RECORD_FUNCTIONS:
+                out.append((expr, scope))
+            else:
+                stack += ((a.value, scope) for a in reversed(expr.args))
+        elif kind is ast.TupleExpr:
+            stack += ((item, scope) for item in reversed(expr.items))
+        elif kind is ast.NameRef:
+            value = scope.lookup(expr.name)
+            if isinstance(value, Deferred):
+                stack.append((value.expr, value.scope))
+    return out
 
 
 class _KeyReader:

@@ -252,7 +252,10 @@ def _with_unit(expr: ast.WithUnit, scope: Scope) -> object:
         raise EvalError(error(f"a unit cannot follow {_what(operand)}", expr.span))
     if operand.dim != DIMENSIONLESS:
         raise EvalError(error(f"`{expr.unit}` follows a value that already has units", expr.unit_span))
-    return _in_range(operand * Quantity(factor, dim), f"this value in {expr.unit}", expr.span)
+    value = operand * Quantity(factor, dim)
+    if math.isfinite(value.value):  # the message is formatted only when it is needed
+        return value
+    return _in_range(value, f"this value in {expr.unit}", expr.span)
 
 
 def _in_range(q: Quantity, what: str, span: Span) -> Quantity:

@@ -223,3 +223,27 @@ def test_spans_match_lark_position_propagation(name):
     ours: list = []
     _our_spans(parse_text(text, name).items, ours)
     assert len(expected) > 10 and Counter(ours) == Counter(expected)
+
+
+_EDGE_TEXTS = [
+    "",
+    "# only a comment",
+    "\n\n  # comments and blanks at the end\n\t\f\v  \n",
+    "let t = 2 ns # a comment with no line end",
+    "let t = 2ns\nlet u=t*3+ -1 us\n\n\n# x\nlet w = (1, 2) um",
+    'use "a.rig"\r\nsite a = na at (0, 0) um\r\n',
+]
+
+
+@pytest.mark.parametrize("name", sorted(p.name for p in PROGRAMS.glob("*.*") if p.suffix in (".seq", ".rig"))
+                         + [f"edge{i}" for i in range(len(_EDGE_TEXTS))])
+def test_fast_driver_builds_the_tree_of_larks_own_driver(name):
+    """Independent reference: lark's own LALR driver and lexer over the same table and callbacks
+    (the fast loop in seqlang/lang/lalr.py re-implements both) give equal trees, spans included."""
+    from seqlang.lang import parser, source_text
+    text = _EDGE_TEXTS[int(name[4:])] if name.startswith("edge") else (PROGRAMS / name).read_text(encoding="utf-8")
+    text = source_text.normalise(text)
+    lark = parser._lark()
+    driver = parser._LalrDriver(parser._fast_table(lark)[0], parser._callbacks(lark, parser._Builder(name)))
+    reference = parser._source_file(name, text, driver.parse(lark.parser._make_lexer_thread(text), "start"))
+    assert parse_text(text, name) == reference

@@ -22,7 +22,7 @@ from typing import Mapping
 
 from ..compile import motion
 from ..lang.diagnostics import Diagnostic, SeqlangError, error
-from ..program.model import FillOp, MoveOp, Program, SerialOp, Site
+from ..program.model import BranchOp, FieldOp, FillOp, MoveOp, Program, RepeatOp, SerialOp, Site, TogetherOp
 from . import rearrange
 from .loading import Occupancy, loaded_sites, probabilities, read_pattern
 
@@ -79,18 +79,17 @@ def occupy(program: Program, occupancy: Occupancy | None = None) -> Program:
 
 
 def _fills(op) -> list[FillOp]:
+    """Every `fill` under `op`, in order; only the containers of statements are searched
+    (a generated sequence has 10⁵ pulses whose fields need no look)."""
     if isinstance(op, FillOp):
         return [op]
-    out = []
-    for f in dataclasses.fields(op) if dataclasses.is_dataclass(op) else ():
-        value = getattr(op, f.name)
-        if dataclasses.is_dataclass(value) and not isinstance(value, type):
-            out += _fills(value)
-        elif isinstance(value, tuple):
-            for item in value:
-                if dataclasses.is_dataclass(item):
-                    out += _fills(item)
-    return out
+    if isinstance(op, (SerialOp, TogetherOp)):
+        return [f for child in op.body for f in _fills(child)]
+    if isinstance(op, (RepeatOp, FieldOp)):
+        return _fills(op.body)
+    if isinstance(op, BranchOp):
+        return _fills(op.then) + _fills(op.otherwise)
+    return []
 
 
 def _placement(body: SerialOp) -> list[Diagnostic]:

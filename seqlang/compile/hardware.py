@@ -35,7 +35,7 @@ HOLD, SEQUENCER = "hold", "sequencer"
 LATENCY_REMAINDER_WARN = 0.25  # of a tick
 
 
-@dataclass(frozen=True)
+@dataclass(frozen=True, slots=True)
 class PortEvent:
     """One entry of an output's table: issue tick, length in ticks, what to play."""
 

@@ -104,14 +104,13 @@ def _needs_stretch(program: Program, event: Event, start: int, end: int, tick: f
     if event.kind != PULSE or end <= start:
         return False
     drive = program.rig.drives[event.drive]
-    return _rabi_for_area(evolve(event, area_rad=largest_area(event)), (end - start) * tick) \
-        > drive.max_rabi_hz * (1 + 1e-12)
+    return _rabi_for_area(largest_area(event), event.shape, (end - start) * tick) > drive.max_rabi_hz * (1 + 1e-12)
 
 
 def _pulse(drive: Drive, event: Event, start: int, end: int, tick: float) -> tuple[Event, float]:
     """Rescale amplitude and detuning so that the pulse keeps its rotation over its played ticks."""
     duration = (end - start) * tick
-    wanted = _rabi_for_area(event, duration)
+    wanted = _rabi_for_area(event.area_rad, event.shape, duration)
     played = _amplitude_rounded(wanted, drive)
     area = envelopes.pulse_area(event.shape, duration, played)
     # Ω·T and Δ·T both set a detuned pulse's rotation: Δ follows Ω's scale factor (not its DAC rounding).
@@ -132,8 +131,8 @@ def _detuning_in_range(drive: Drive, written: Event, played: Event) -> list[Diag
                   "of whole ticks")]
 
 
-def _rabi_for_area(event: Event, duration: float) -> float:
-    return event.area_rad / (2 * math.pi * envelopes.area_factor(event.shape, duration))
+def _rabi_for_area(area_rad: float, shape, duration: float) -> float:
+    return area_rad / (2 * math.pi * envelopes.area_factor(shape, duration))
 
 
 def _amplitude_rounded(rabi: float, drive: Drive) -> float:

@@ -5,6 +5,8 @@ quantize.quantize`), which holds what the hardware will play.
 """
 from __future__ import annotations
 
+import dataclasses
+import functools
 from dataclasses import dataclass
 
 from ..lang.diagnostics import Span
@@ -14,7 +16,7 @@ PULSE, IMAGE, SWITCH, SET, TRIGGER = "pulse", "image", "switch", "set", "trigger
 FIELD, MOVE = "field", "move"  # an electric-field stretch (value in V/m); sites moving (displacement_m)
 
 
-@dataclass(frozen=True)
+@dataclass(frozen=True, slots=True)
 class Event:
     """One drive-level event: a pulse, an imaging, or a plain port action."""
 
@@ -66,8 +68,20 @@ def evolve(obj, **changes):
 
     Same result as :func:`dataclasses.replace` for these plain dataclasses (no
     ``__post_init__``, no init-only fields), several times faster, which matters
-    for programs of 10⁵ events.
+    for programs of 10⁵ events. Slotted classes (``Event``: a third of the memory
+    of one with a ``__dict__``) are copied slot by slot through the slot descriptors.
     """
-    new = object.__new__(type(obj))
-    object.__setattr__(new, "__dict__", {**obj.__dict__, **changes})  # one copy of the fields
+    cls = type(obj)
+    new = object.__new__(cls)
+    if not hasattr(cls, "__slots__"):
+        object.__setattr__(new, "__dict__", {**obj.__dict__, **changes})  # one copy of the fields
+        return new
+    for name, slot in _slot_descriptors(cls):
+        slot.__set__(new, changes[name] if name in changes else slot.__get__(obj))
     return new
+
+
+@functools.lru_cache(maxsize=None)
+def _slot_descriptors(cls) -> tuple:
+    """(name, member descriptor) of each slot of a dataclass; the descriptors set frozen fields."""
+    return tuple((f.name, cls.__dict__[f.name]) for f in dataclasses.fields(cls))

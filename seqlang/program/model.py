@@ -142,7 +142,7 @@ class Layout:
     span: Span
 
 
-@dataclass(frozen=True)
+@dataclass(frozen=True, slots=True)
 class Shape:
     """A pulse envelope: kind and its parameters (seconds or fractions)."""
 
@@ -200,7 +200,7 @@ class Decision:
 
 
 # ---- operations of the sequence ---------------------------------------------
-@dataclass(frozen=True)
+@dataclass(frozen=True, slots=True)
 class PulseOp:
     """One coherent pulse, with duration, area and amplitude all resolved."""
 
@@ -216,13 +216,13 @@ class PulseOp:
     decision: Decision | None = None
 
 
-@dataclass(frozen=True)
+@dataclass(frozen=True, slots=True)
 class WaitOp:
     duration_s: float
     span: Span
 
 
-@dataclass(frozen=True)
+@dataclass(frozen=True, slots=True)
 class ImageOp:
     species: str
     record: str
@@ -230,7 +230,7 @@ class ImageOp:
     span: Span
 
 
-@dataclass(frozen=True)
+@dataclass(frozen=True, slots=True)
 class PortOp:
     """A plain port action: switch (value 1/0), set (value) or trigger."""
 

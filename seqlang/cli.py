@@ -136,10 +136,10 @@ def cmd_show(args) -> int:
         print("\narrays (docs/arrays.md):\n" + "\n".join(arrays))
     if not args.no_pairs and len(sequence.program.sites) > MAX_PAIR_TABLE_SITES:
         print(f"\nRydberg pairs: {len(sequence.program.sites)} sites; the table of every pair is printed for "
-              f"at most {MAX_PAIR_TABLE_SITES} (the pair models used at the pulses follow)")
+              f"at most {MAX_PAIR_TABLE_SITES} (the pair models used follow)")
         models = pair_models_table(sequence.program, sequence.played)
         if models:
-            print("\nPair models used at the Rydberg pulses (seqlang.atoms.pairs):")
+            print("\nPair models used from the first Rydberg pulse on (seqlang.atoms.pairs):")
             print(models)
     elif not args.no_pairs and len(sequence.program.sites) > 1:
         table = pair_table(sequence.program)
@@ -148,7 +148,7 @@ def cmd_show(args) -> int:
             print(table)
         models = pair_models_table(sequence.program, sequence.played)
         if models:
-            print("\nPair models used at the Rydberg pulses (seqlang.atoms.pairs):")
+            print("\nPair models used from the first Rydberg pulse on (seqlang.atoms.pairs):")
             print(models)
     return EXIT_OK
 

@@ -87,16 +87,23 @@ def _total_parts(checked: Checked) -> str:
 
 def pair_models_table(program: Program, timeline) -> str:
     """Per Rydberg pair: the model used (perturbative/diagonalised/resonant), V, overlap, channel defect,
-    radii; then each field in use with the Stark shifts and the pair defects at that field."""
-    from .compile.geometry import pair_shifts
+    radii at its first Rydberg pulse, and indented, the same from each change of geometry on (through
+    and after a move, at a field edge); then each field in use with the Stark shifts and the pair
+    defects at that field."""
+    from .compile.geometry import pair_shift_track
     rows = []
-    for (a, b), m in pair_shifts(program, timeline).items():
-        rows.append(f"{a}-{b}: R = {_f(m.distance_m, units.LENGTH)}, θ = {math.degrees(m.theta_rad):.1f} deg, "
-                    f"E = {m.field_v_m:.4g} V/m: {m.model}, V/h = {_f(m.shift_hz, units.FREQUENCY)}, "
-                    f"overlap {m.overlap:.3f}, dominant channel defect {_f(m.defect_hz, units.FREQUENCY)}, "
-                    f"crossover radius {_f(m.crossover_radius_m, units.LENGTH)}, "
-                    f"Le Roy radius {_f(m.le_roy_radius_m, units.LENGTH)}")
+    for (a, b), ((_, first, _), *later) in pair_shift_track(program, timeline).items():
+        rows.append(f"{a}-{b}: {_pair_model(first)}")
+        rows += [f"  from {_f(t, units.DURATION)}: {_pair_model(m)}" for t, m, _ in later]
     return "\n".join(rows + _field_rows(program, timeline))
+
+
+def _pair_model(m) -> str:
+    return (f"R = {_f(m.distance_m, units.LENGTH)}, θ = {math.degrees(m.theta_rad):.1f} deg, "
+            f"E = {m.field_v_m:.4g} V/m: {m.model}, V/h = {_f(m.shift_hz, units.FREQUENCY)}, "
+            f"overlap {m.overlap:.3f}, dominant channel defect {_f(m.defect_hz, units.FREQUENCY)}, "
+            f"crossover radius {_f(m.crossover_radius_m, units.LENGTH)}, "
+            f"Le Roy radius {_f(m.le_roy_radius_m, units.LENGTH)}")
 
 
 def _field_rows(program: Program, timeline) -> list[str]:

@@ -153,8 +153,8 @@ class SimulationResult:
     reduction: dict = field(default_factory=dict)
     pair_models: dict = field(default_factory=dict)  # (a, b) -> atoms.pairs.PairShift, when computed here
     program: object = field(default=None, repr=False, compare=False)  # for array summaries
-    # (a, b) -> ((start_s, PairShift), ...): the pair's shift from each later Rydberg pulse at a new
-    # geometry (after a move) on; the first one is in pair_models.
+    # (a, b) -> ((start_s, PairShift), ...): the pair's shift from each later change of geometry on
+    # (through and after a move, at a field edge); the first one is in pair_models.
     pair_tracks: dict = field(default_factory=dict)
     # Output → latency remainder (s) applied to its pulses and imagings (the nonzero ones).
     latency_remainders_s: dict = field(default_factory=dict)

@@ -157,8 +157,8 @@ def _arrays(result, shots: int) -> dict:
 
 
 def _pair_entries(first, later) -> dict:
-    """A pair's model at its first Rydberg pulse and, under `later`, from each pulse at a new
-    geometry on (after a move), with the time it starts."""
+    """A pair's model at its first Rydberg pulse and, under `later`, from each later change of
+    geometry on (through and after a move, at a field edge), with the time it starts."""
     from .observables import clean
     entry = pair_entry(first)
     if later:

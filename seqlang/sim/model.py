@@ -18,7 +18,7 @@ from dataclasses import dataclass, replace
 import numpy as np
 
 from ..compile import envelopes
-from ..compile.timeline import IMAGE, PULSE, SWITCH, Event, Timeline
+from ..compile.timeline import FIELD, IMAGE, PULSE, SWITCH, Event, Timeline
 from ..program.model import Program
 
 LEVELS = ("0", "1", "r", "x")
@@ -73,7 +73,7 @@ class Segment:
     couplings: tuple[Drive1, ...]
     image: Event | None = None
     shifts: tuple[LevelShift, ...] = ()
-    # Pair shifts in force during this segment when they differ from the model's (after a move):
+    # Pair shifts in force during this segment when they differ from the model's (a move, a field):
     # ((i, j), V rad/s, separation r_j − r_i in m) for every pair of the model; None: the model's.
     interactions: tuple[tuple[tuple[int, int], float, tuple[float, ...]], ...] | None = None
 
@@ -154,16 +154,20 @@ def build_model(program: Program, timeline: Timeline, sites: tuple[str, ...],
     legs is kept explicit (five levels per atom) instead of being eliminated.
     ``tracks`` (pair of names → ((start_s, V/h in Hz, separation m), ...), from
     `compile.geometry.pair_shift_track`) gives the pair shifts that change during the
-    sequence (after a move): each segment from a change's start on plays its V.
+    sequence (through and after a move, at a field edge): the segments split at each
+    change, and each segment from a change on plays its V.
     """
     index = {name: i for i, name in enumerate(sites)}
     pairs = {(index[a], index[b]): 2 * math.pi * v for (a, b), v in interactions_hz.items()
              if a in index and b in index}
-    relevant = [e for e in timeline.events if e.kind in (PULSE, IMAGE) and set(e.targets) & set(sites)]
-    segments = _stark_shifted(program, timeline, sites,
-                              _segments(program, relevant, index, timeline.duration_s, ladder))
     local = {(index[a], index[b]): track for (a, b), track in (tracks or {}).items()
              if a in index and b in index and (index[a], index[b]) in pairs}
+    relevant = [e for e in timeline.events if e.kind in (PULSE, IMAGE) and set(e.targets) & set(sites)]
+    # Pair shifts and Stark shifts change between pulses too (an atom may sit in |r⟩ then).
+    changes = [t for track in local.values() for t, _, _ in track[1:]]
+    changes += [t for e in timeline.events if e.kind == FIELD for t in (e.start_s, e.end_s)]
+    segments = _stark_shifted(program, timeline, sites,
+                              _segments(program, relevant, index, timeline.duration_s, ladder, changes))
     segments = _moved_pairs(segments, pairs, local, program.rig.tick_s)
     species = tuple(program.sites[s].species for s in sites)
     images = tuple(e for e in timeline.events if e.kind == IMAGE)
@@ -221,9 +225,10 @@ def trap_switches(program: Program, timeline: Timeline) -> tuple[tuple[float, bo
 
 
 def _stark_shifted(program: Program, timeline: Timeline, sites, segments: list[Segment]) -> list[Segment]:
-    """Each site's Rydberg level moved by its DC Stark shift where a `field` stretch runs (at segment midpoints)."""
+    """Each site's Rydberg level moved by its DC Stark shift where a `field` stretch runs (the segments
+    split at the field edges, so the field at a segment's midpoint holds through it)."""
     from ..compile.geometry import field_at, stark_shift_hz
-    if not any(e.kind == "field" for e in timeline.events):
+    if not any(e.kind == FIELD for e in timeline.events):
         return segments
     out = []
     for seg in segments:
@@ -266,9 +271,9 @@ def _seconds(k: int, tick: float) -> float:
     return whole * tick if not part else k * tick / SUBTICKS
 
 
-def _boundaries(events: list[Event], total: int, tick: float) -> list[int]:
-    """Every start and end, in 1/SUBTICKS ticks."""
-    times = {0, total}
+def _boundaries(events: list[Event], total: int, tick: float, changes=()) -> list[int]:
+    """Every start and end, and the times in `changes`, in 1/SUBTICKS ticks."""
+    times = {0, total} | {_tick(t, tick) for t in changes}
     for e in events:
         times.add(_tick(e.start_s, tick))
         if e.kind == PULSE:
@@ -277,11 +282,11 @@ def _boundaries(events: list[Event], total: int, tick: float) -> list[int]:
 
 
 def _segments(program: Program, events: list[Event], index: dict[str, int], total_s: float,
-              ladder: bool) -> list[Segment]:
+              ladder: bool, changes=()) -> list[Segment]:
     tick = program.rig.tick_s
     pulses = [(e, _tick(e.start_s, tick), _tick(e.end_s, tick)) for e in events if e.kind == PULSE]
     images = [(e, _tick(e.start_s, tick)) for e in events if e.kind == IMAGE]
-    times = _boundaries(events, _tick(total_s, tick), tick)
+    times = _boundaries(events, _tick(total_s, tick), tick, changes)
     out: list[Segment] = []
     for k0, k1 in zip(times, times[1:] + [None]):
         out += [Segment(_seconds(k0, tick), 0.0, (), e) for e, k in sorted(images, key=lambda x: x[0].index)

@@ -260,7 +260,7 @@ class Shots:
     interactions: np.ndarray
     initial: tuple[tuple[int, ...], ...]
     image_draws: tuple[np.ndarray, ...] = ()
-    # Per segment, None or (rows, P) pair shifts replacing `interactions` there (after a move).
+    # Per segment, None or (rows, P) pair shifts replacing `interactions` there (a move, a field).
     segment_interactions: tuple[np.ndarray | None, ...] = ()
 
     @property

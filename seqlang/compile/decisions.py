@@ -81,8 +81,9 @@ def check_decisions(program: Program, timeline: Timeline) -> list[Diagnostic]:
 # ---- tick and amplitude rounding per key --------------------------------------------
 def largest_area(event: Event) -> float:
     """The largest area any key asks of a pulse (what the duration must allow)."""
-    variants = event.decision.variants if event.decision and event.decision.variants else ()
-    return max([event.area_rad] + [v.area_rad for v in variants])
+    if event.decision is None or not event.decision.variants:
+        return event.area_rad  # most pulses: no list to build
+    return max([event.area_rad] + [v.area_rad for v in event.decision.variants])
 
 
 def quantize_variants(drive: Drive, event: Event, rounded) -> Event:

@@ -20,12 +20,13 @@ from __future__ import annotations
 
 from collections import defaultdict
 from dataclasses import dataclass, field
+from operator import attrgetter
 
 from ..lang.diagnostics import Diagnostic, Span, warning
 from ..program.model import Program
 from .quantize import QuantizeReport
 from . import motion
-from .timeline import FIELD, IMAGE, MOVE, PULSE, SET, Event, Timeline, evolve
+from .timeline import FIELD, IMAGE, MOVE, PULSE, SET, Event, Timeline, copier, direct_init, evolve
 
 GATE = "gate"
 HOLD, SEQUENCER = "hold", "sequencer"
@@ -35,6 +36,7 @@ HOLD, SEQUENCER = "hold", "sequencer"
 LATENCY_REMAINDER_WARN = 0.25  # of a tick
 
 
+@direct_init
 @dataclass(frozen=True, slots=True)
 class PortEvent:
     """One entry of an output's table: issue tick, length in ticks, what to play."""
@@ -78,7 +80,12 @@ class HardwarePlan:
     def rows(self) -> list[PortEvent]:
         """All port events in issue order (tick, then port, then kind)."""
         every = [e for events in self.ports.values() for e in events]
-        return sorted(every, key=lambda e: (e.tick, e.port, e.kind, e.event))
+        return sorted(every, key=_ISSUE_ORDER)
+
+
+# Sort keys of the tables, as C-level getters (cheaper than a lambda per entry).
+_ISSUE_ORDER = attrgetter("tick", "port", "kind", "event")
+_PORT_ORDER = attrgetter("tick", "kind", "event")
 
 
 def plan(program: Program, timeline: Timeline, report: QuantizeReport) -> HardwarePlan:
@@ -86,23 +93,31 @@ def plan(program: Program, timeline: Timeline, report: QuantizeReport) -> Hardwa
     tick = program.rig.tick_s
     latencies = _latencies(program)
     shift = _shift_needed(program, timeline, tick, latencies)
-    raw: list[PortEvent] = []
-    for event in timeline.events:
-        if event.kind == MOVE:
-            raw += _ramps(program, timeline, event, tick, latencies, shift)
-        elif event.kind == FIELD:
-            raw += _field_sets(program, event, tick, latencies, shift)
-        else:
-            raw += _port_events(program, event, tick, latencies, shift)
-    ports: dict[str, list[PortEvent]] = defaultdict(list)
-    merged = _merge_gates(raw)
+    merged = _merge_gates(_entries(program, timeline, tick, latencies, shift))
     holds = _holds(merged, 2 ** program.rig.counter_bits - 1)
-    for entry in merged + holds:
-        ports[entry.port].append(entry)
-    ordered = {p: tuple(sorted(es, key=lambda e: (e.tick, e.kind, e.event))) for p, es in sorted(ports.items())}
+    ports: dict[str, list[PortEvent]] = defaultdict(list)
+    for entries in (merged, holds):
+        for entry in entries:
+            ports[entry.port].append(entry)
+    ordered = {p: tuple(sorted(es, key=_PORT_ORDER)) for p, es in sorted(ports.items())}
     shifted = _shift_timeline(timeline, shift * tick)
     return HardwarePlan(tick, shift, ordered, shifted, report, latencies, len(holds),
                         latency_remainder_s=latency_remainders(program))
+
+
+def _entries(program: Program, timeline: Timeline, tick: float, latencies: dict[str, int],
+             shift: int) -> list[PortEvent]:
+    """The entries of every event in timeline order (gate windows not merged yet)."""
+    out: list[PortEvent] = []
+    source = _SourceLines()
+    for event in timeline.events:
+        if event.kind == MOVE:
+            out += _ramps(program, timeline, event, tick, latencies, shift, source)
+        elif event.kind == FIELD:
+            out += _field_sets(program, event, tick, latencies, shift, source)
+        else:
+            _port_events(program, event, tick, latencies, shift, source, out)
+    return out
 
 
 def _ticks(seconds: float, tick: float) -> int:
@@ -161,27 +176,40 @@ def latency_warnings(program: Program) -> list[Diagnostic]:
     return out
 
 
-def _source(event: Event) -> str:
-    return f"{event.span.file}:{event.span.line}"
+class _SourceLines(dict):
+    """The "file:line" of each span, made once: a statement inside a repeat has one span
+    for all its events, so its entries share one string (time and memory)."""
+
+    def __missing__(self, span: Span) -> str:
+        self[span] = where = f"{span.file}:{span.line}"
+        return where
 
 
-def _earliest_issue(program: Program, event: Event, tick: float, latency: dict[str, int]) -> int:
-    """The earliest issue tick this event needs, before any shift."""
-    start = _ticks(event.start_s, tick)
+def _issue_lead(program: Program, event: Event, tick: float, latency: dict[str, int]) -> int:
+    """How many ticks before its start an event is issued."""
     if event.kind == PULSE:
         drive = program.rig.drives[event.drive]
         gate = _ticks(drive.gate_lead_s, tick) + latency[drive.gate] if drive.gate else 0
-        return start - max(latency[drive.port], gate)
+        return max(latency[drive.port], gate)
     if event.kind == MOVE:  # issued on the deflectors, each early by its own latency
         deflectors = [p.channel for p in program.rig.ports.values() if p.kind == "deflector"]
-        return start - max((latency.get(c, 0) for c in deflectors), default=0)
-    return start - latency.get(event.port, 0)
+        return max((latency.get(c, 0) for c in deflectors), default=0)
+    return latency.get(event.port, 0)
 
 
 def _shift_needed(program: Program, timeline: Timeline, tick: float, latency: dict[str, int]) -> int:
     """Ticks by which everything must move later so that no output is issued before tick 0."""
-    earliest = min((_earliest_issue(program, e, tick, latency) for e in timeline.events), default=0)
-    return max(0, -earliest)
+    leads: dict[tuple, int] = {}  # per kind and drive or port: a handful, however many events
+    earliest = 0
+    for event in timeline.events:
+        key = (event.kind, event.drive, event.port)
+        lead = leads.get(key)
+        if lead is None:
+            lead = leads[key] = _issue_lead(program, event, tick, latency)
+        issue = round(event.start_s / tick) - lead
+        if issue < earliest:
+            earliest = issue
+    return -earliest
 
 
 def played_detuning(drive, detuning_hz: float) -> float:
@@ -191,30 +219,31 @@ def played_detuning(drive, detuning_hz: float) -> float:
     return detuning_hz + offset if offset else detuning_hz
 
 
-def _port_events(program: Program, event: Event, tick: float, latency: dict[str, int],
-                 shift: int) -> list[PortEvent]:
-    start, length = _ticks(event.start_s, tick) + shift, _ticks(event.duration_s, tick)
+def _port_events(program: Program, event: Event, tick: float, latency: dict[str, int], shift: int,
+                 source: _SourceLines, out: list[PortEvent]) -> None:
+    """Append the entries of a pulse (and its gate window), an imaging or a port action."""
+    start, length = round(event.start_s / tick) + shift, round(event.duration_s / tick)
+    where = source[event.span]
     if event.kind == PULSE:
         drive = program.rig.drives[event.drive]
         amplitude = event.rabi_hz / drive.max_rabi_hz
-        out = [PortEvent(drive.port, start - latency[drive.port], length, PULSE, event.index, _source(event),
-                         drive.name, event.rabi_hz, amplitude, played_detuning(drive, event.detuning_hz),
-                         event.phase_rad,
-                         event.shape.kind, event.targets)]
+        out.append(PortEvent(drive.port, start - latency[drive.port], length, PULSE, event.index, where,
+                             drive.name, event.rabi_hz, amplitude, played_detuning(drive, event.detuning_hz),
+                             event.phase_rad, event.shape.kind, event.targets))
         if drive.gate is not None:
             lead, lag = _ticks(drive.gate_lead_s, tick), _ticks(drive.gate_lag_s, tick)
             out.append(PortEvent(drive.gate, start - lead - latency[drive.gate], length + lead + lag, GATE,
-                                 event.index, _source(event), drive.name))
-        return out
-    if event.kind == IMAGE:
-        return [PortEvent(event.port, start - latency[event.port], length, IMAGE, event.index, _source(event),
-                          targets=event.targets)]
-    return [PortEvent(event.port, start - latency.get(event.port, 0), length, event.kind, event.index,
-                      _source(event), value=event.value)]
+                                 event.index, where, drive.name))
+    elif event.kind == IMAGE:
+        out.append(PortEvent(event.port, start - latency[event.port], length, IMAGE, event.index, where,
+                             targets=event.targets))
+    else:
+        out.append(PortEvent(event.port, start - latency.get(event.port, 0), length, event.kind, event.index,
+                             where, value=event.value))
 
 
 def _ramps(program: Program, timeline: Timeline, event: Event, tick: float, latency: dict[str, int],
-           shift: int) -> list[PortEvent]:
+           shift: int, source: _SourceLines) -> list[PortEvent]:
     """One frequency ramp per moved site and axis, on the deflector of that axis."""
     start, length = _ticks(event.start_s, tick) + shift, _ticks(event.duration_s, tick)
     out = []
@@ -228,23 +257,26 @@ def _ramps(program: Program, timeline: Timeline, event: Event, tick: float, late
             f0 = port.extra["center"] + port.extra["scale"] * x0
             f1 = port.extra["center"] + port.extra["scale"] * (x0 + event.displacement_m[k])
             out.append(PortEvent(port.channel, start - latency.get(port.channel, 0), length, "ramp", event.index,
-                                 _source(event), targets=(site,), value=f1, ramp=(f0, f1, event.profile)))
+                                 source[event.span], targets=(site,), value=f1, ramp=(f0, f1, event.profile)))
     return out
 
 
-def _field_sets(program: Program, event: Event, tick: float, latency: dict[str, int], shift: int) -> list[PortEvent]:
+def _field_sets(program: Program, event: Event, tick: float, latency: dict[str, int], shift: int,
+                source: _SourceLines) -> list[PortEvent]:
     """The electrode set to the field's voltage at the start and back to 0 V at the end."""
     port = next(p for p in program.rig.ports.values() if p.channel == event.port)
     volts = event.value / port.extra["field_per_volt"]
     start, end = _ticks(event.start_s, tick) + shift, _ticks(event.end_s, tick) + shift
     lag = latency.get(event.port, 0)
-    return [PortEvent(event.port, start - lag, 0, SET, event.index, _source(event), value=volts),
-            PortEvent(event.port, end - lag, 0, SET, event.index, _source(event), value=0.0)]
+    return [PortEvent(event.port, start - lag, 0, SET, event.index, source[event.span], value=volts),
+            PortEvent(event.port, end - lag, 0, SET, event.index, source[event.span], value=0.0)]
 
 
 def _merge_gates(entries: list[PortEvent]) -> list[PortEvent]:
     """Overlapping or touching gate windows on one line become one window."""
-    gates = sorted((e for e in entries if e.kind == GATE), key=lambda e: (e.port, e.tick))
+    gates = sorted((e for e in entries if e.kind == GATE), key=attrgetter("port", "tick"))
+    if not gates:
+        return entries
     merged: list[PortEvent] = []
     for gate in gates:
         last = merged[-1] if merged else None
@@ -261,9 +293,11 @@ def _holds(entries: list[PortEvent], limit: int) -> list[PortEvent]:
 
     A hold carries the source line of the row it leads to.
     """
+    if max((e.tick for e in entries), default=0) <= limit:
+        return []  # the usual case: the whole sequence fits the counter, no sort needed
     out: list[PortEvent] = []
     previous = 0
-    for entry in sorted(entries, key=lambda e: (e.tick, e.port, e.kind, e.event)):
+    for entry in sorted(entries, key=_ISSUE_ORDER):
         tick = previous + limit
         while tick < entry.tick:
             out.append(PortEvent(SEQUENCER, tick, min(limit, entry.tick - tick), HOLD, entry.event, entry.source))
@@ -272,8 +306,11 @@ def _holds(entries: list[PortEvent], limit: int) -> list[PortEvent]:
     return out
 
 
+_shifted = copier(Event, "start_s")  # kept: one copy per event
+
+
 def _shift_timeline(timeline: Timeline, shift_s: float) -> Timeline:
     if shift_s == 0:
         return timeline
-    events = tuple(evolve(e, start_s=e.start_s + shift_s) for e in timeline.events)
+    events = tuple([_shifted(e, e.start_s + shift_s) for e in timeline.events])
     return evolve(timeline, events=events, duration_s=timeline.duration_s + shift_s, shift_s=shift_s)

@@ -20,7 +20,7 @@ from ..program.model import Drive, Program
 from . import envelopes
 from .decisions import largest_area, quantize_variants
 from .lower import MAX_TICKS  # exact integer tick arithmetic up to 2**53
-from .timeline import PULSE, Event, Timeline, evolve
+from .timeline import PULSE, Event, Timeline, copier
 
 
 @dataclass(frozen=True)
@@ -36,6 +36,9 @@ class QuantizeReport:
     max_detuning_change_hz: float = 0.0
 
 
+# The copies quantize makes, kept as functions: one per event of the timeline.
+_placed = copier(Event, "start_s", "duration_s")
+_played = copier(Event, "start_s", "duration_s", "rabi_hz", "area_rad", "detuning_hz")
 
 
 def quantize(program: Program, timeline: Timeline) -> tuple[Timeline, QuantizeReport, list[Diagnostic]]:
@@ -44,32 +47,38 @@ def quantize(program: Program, timeline: Timeline) -> tuple[Timeline, QuantizeRe
     too_long = _beyond_tick_range(timeline, tick)
     if too_long:
         return Timeline((), 0.0, tick, quantized=True), QuantizeReport((), 0.0, 0.0, 0), too_long
-    rounded = [(round(e.start_s / tick), round(e.end_s / tick)) for e in timeline.events]
-    grows = [_needs_stretch(program, e, start, end, tick) for e, (start, end) in zip(timeline.events, rounded)]
+    drives = program.rig.drives
+    rounded = [(round(e.start_s / tick), round((e.start_s + e.duration_s) / tick)) for e in timeline.events]
+    grows = [e.kind == PULSE and _needs_stretch(drives[e.drive], e, start, end, tick)
+             for e, (start, end) in zip(timeline.events, rounded)]
     # A pulse lengthened by one tick pushes everything that starts at or after its end one
     # tick later, so that it never runs into the next pulse on its drive.
     stretch_ends = sorted(end for (_, end), grow in zip(rounded, grows) if grow)
     events, errors, detunings, diags, worst_time = [], [], [], [], 0.0
     for event, (start, end), grow in zip(timeline.events, rounded, grows):
         # Rounding and the deliberate stretch shifts are reported apart: they have different causes.
-        worst_time = max(worst_time, abs(start * tick - event.start_s), abs(end * tick - event.end_s))
-        start = start + bisect.bisect_right(stretch_ends, start)
-        end = end + bisect.bisect_left(stretch_ends, end) + grow
-        if not _representable(event, end - start, limit, tick, diags):
+        worst_time = max(worst_time, abs(start * tick - event.start_s),
+                         abs(end * tick - (event.start_s + event.duration_s)))
+        if stretch_ends:  # usually none: no search per event then
+            start = start + bisect.bisect_right(stretch_ends, start)
+            end = end + bisect.bisect_left(stretch_ends, end) + grow
+        if (end == start and event.duration_s > 0) or end - start > limit:
+            diags.append(_unrepresentable(event, end - start, limit, tick))
             continue
         if event.kind == PULSE:
-            written = event
-            event, error_rad = _pulse(program.rig.drives[event.drive], event, start, end, tick)
+            drive = drives[event.drive]
+            played, error_rad = _pulse(drive, event, start, end, tick)
             errors.append((event.index, error_rad))
-            if event.detuning_hz != written.detuning_hz:
-                detunings.append((event.index, event.detuning_hz - written.detuning_hz))
-                diags += _detuning_in_range(program.rig.drives[event.drive], written, event)
-        else:
-            event = evolve(event, start_s=start * tick, duration_s=(end - start) * tick)
+            if played.detuning_hz != event.detuning_hz:
+                detunings.append((event.index, played.detuning_hz - event.detuning_hz))
+                diags += _detuning_in_range(drive, event, played)
+            event = played
+        elif start * tick != event.start_s or (end - start) * tick != event.duration_s:
+            event = _placed(event, start * tick, (end - start) * tick)
         events.append(event)
     # The end of the sequence is rounded like every event end, so a last pulse ending on it ends the total.
     total = (round(timeline.duration_s / tick) + len(stretch_ends)) * tick
-    total = max([total] + [e.end_s for e in events])
+    total = max(total, max((e.start_s + e.duration_s for e in events), default=total))
     report = QuantizeReport(tuple(errors), max((abs(e) for _, e in errors), default=0.0), worst_time,
                             len(stretch_ends), len(stretch_ends) * tick, tuple(detunings),
                             max((abs(d) for _, d in detunings), default=0.0))
@@ -79,31 +88,27 @@ def quantize(program: Program, timeline: Timeline) -> tuple[Timeline, QuantizeRe
 def _beyond_tick_range(timeline: Timeline, tick: float) -> list[Diagnostic]:
     """Events that end beyond 2**53 ticks, where tick numbers stop being exact integers."""
     for event in timeline.events:
-        if not event.end_s / tick < MAX_TICKS:
+        if not (event.start_s + event.duration_s) / tick < MAX_TICKS:
             return [error(f"this {event.kind} ends at {units.format_quantity(event.end_s, units.DURATION)}, "
                           f"beyond 2^53 ticks ({units.format_quantity(MAX_TICKS * tick, units.DURATION)}), "
                           "where tick arithmetic stops being exact", event.span)]
     return []
 
 
-def _representable(event: Event, ticks: int, limit: int, tick: float, diags: list[Diagnostic]) -> bool:
+def _unrepresentable(event: Event, ticks: int, limit: int, tick: float) -> Diagnostic:
+    """Why an event cannot be played: shorter than a tick, or longer than the duration counter."""
     if event.duration_s > 0 and ticks == 0:
-        diags.append(error(f"a {units.format_quantity(event.duration_s, units.DURATION)} {event.kind} is "
-                           f"shorter than one tick ({units.format_quantity(tick, units.DURATION)}); "
-                           "the sequencer cannot represent it", event.span))
-        return False
-    if ticks > limit:
-        diags.append(error(f"{ticks:,} ticks do not fit the sequencer's duration counter (at most {limit:,})",
-                           event.span, "split it into shorter pieces"))
-        return False
-    return True
+        return error(f"a {units.format_quantity(event.duration_s, units.DURATION)} {event.kind} is "
+                     f"shorter than one tick ({units.format_quantity(tick, units.DURATION)}); "
+                     "the sequencer cannot represent it", event.span)
+    return error(f"{ticks:,} ticks do not fit the sequencer's duration counter (at most {limit:,})",
+                 event.span, "split it into shorter pieces")
 
 
-def _needs_stretch(program: Program, event: Event, start: int, end: int, tick: float) -> bool:
-    """True when keeping the area over the rounded duration needs more than the drive's maximum."""
-    if event.kind != PULSE or end <= start:
+def _needs_stretch(drive: Drive, event: Event, start: int, end: int, tick: float) -> bool:
+    """True when keeping the area of a pulse over its rounded duration needs more than the drive's maximum."""
+    if end <= start:
         return False
-    drive = program.rig.drives[event.drive]
     return _rabi_for_area(largest_area(event), event.shape, (end - start) * tick) > drive.max_rabi_hz * (1 + 1e-12)
 
 
@@ -115,8 +120,7 @@ def _pulse(drive: Drive, event: Event, start: int, end: int, tick: float) -> tup
     area = envelopes.pulse_area(event.shape, duration, played)
     # Ω·T and Δ·T both set a detuned pulse's rotation: Δ follows Ω's scale factor (not its DAC rounding).
     detuning = event.detuning_hz * (wanted / event.rabi_hz) if event.rabi_hz > 0 else event.detuning_hz
-    quantized = evolve(event, start_s=start * tick, duration_s=duration, rabi_hz=played, area_rad=area,
-                       detuning_hz=detuning)
+    quantized = _played(event, start * tick, duration, played, area, detuning)
     return quantize_variants(drive, quantized, _amplitude_rounded), area - event.area_rad
 
 

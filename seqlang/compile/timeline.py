@@ -16,6 +16,35 @@ PULSE, IMAGE, SWITCH, SET, TRIGGER = "pulse", "image", "switch", "set", "trigger
 FIELD, MOVE = "field", "move"  # an electric-field stretch (value in V/m); sites moving (displacement_m)
 
 
+def direct_init(cls):
+    """Give a frozen slotted dataclass an ``__init__`` that stores each slot directly.
+
+    Same parameters and defaults as the generated one, about twice as fast: that one
+    stores every field through ``object.__setattr__`` (to get past the frozen guard),
+    which costs more than the slot store itself; lowering and the hardware plan build
+    one object per event. Only for plain fields (no factories, no ``__post_init__``).
+    """
+    fields = dataclasses.fields(cls)
+    if hasattr(cls, "__post_init__") or any(f.default_factory is not dataclasses.MISSING or f.kw_only
+                                             for f in fields):
+        raise TypeError(f"{cls.__name__}: direct_init takes plain positional fields only")
+    namespace, params, lines = {}, [], []
+    for f in fields:
+        if f.default is dataclasses.MISSING:
+            params.append(f.name)
+        else:
+            namespace[f"default_{f.name}"] = f.default
+            params.append(f"{f.name}=default_{f.name}")
+        namespace[f"set_{f.name}"] = cls.__dict__[f.name].__set__
+        lines.append(f"    set_{f.name}(self, {f.name})")
+    exec(f"def __init__(self, {', '.join(params)}):\n" + "\n".join(lines), namespace)  # noqa: S102
+    init = namespace["__init__"]
+    init.__qualname__, init.__doc__ = f"{cls.__qualname__}.__init__", cls.__init__.__doc__
+    cls.__init__ = init
+    return cls
+
+
+@direct_init
 @dataclass(frozen=True, slots=True)
 class Event:
     """One drive-level event: a pulse, an imaging, or a plain port action."""
@@ -69,19 +98,34 @@ def evolve(obj, **changes):
     Same result as :func:`dataclasses.replace` for these plain dataclasses (no
     ``__post_init__``, no init-only fields), several times faster, which matters
     for programs of 10⁵ events. Slotted classes (``Event``: a third of the memory
-    of one with a ``__dict__``) are copied slot by slot through the slot descriptors.
+    of one with a ``__dict__``) go through :func:`copier`.
     """
     cls = type(obj)
-    new = object.__new__(cls)
     if not hasattr(cls, "__slots__"):
+        new = object.__new__(cls)
         object.__setattr__(new, "__dict__", {**obj.__dict__, **changes})  # one copy of the fields
         return new
-    for name, slot in _slot_descriptors(cls):
-        slot.__set__(new, changes[name] if name in changes else slot.__get__(obj))
-    return new
+    return copier(cls, *changes)(obj, *changes.values())
 
 
 @functools.lru_cache(maxsize=None)
-def _slot_descriptors(cls) -> tuple:
-    """(name, member descriptor) of each slot of a dataclass; the descriptors set frozen fields."""
-    return tuple((f.name, cls.__dict__[f.name]) for f in dataclasses.fields(cls))
+def copier(cls, *changed: str):
+    """A function ``(obj, *new values of changed) -> copy`` for a slotted frozen dataclass.
+
+    Generated once per class and set of fields: straight-line code with one slot store
+    per field, about three times faster than a loop over the fields, and faster still
+    than the frozen ``__init__`` (each of its stores goes through ``object.__setattr__``).
+    Hot loops keep the function (``copier(Event, "start_s")``) to skip the keyword call.
+    """
+    names = [f.name for f in dataclasses.fields(cls)]
+    unknown = [name for name in changed if name not in names]
+    if unknown:
+        raise TypeError(f"{cls.__name__} has no field {unknown[0]!r}")
+    namespace = {"new_object": object.__new__, "cls": cls}
+    lines = [f"def copy(old, {''.join(f'new_{name}, ' for name in changed)}):", "    new = new_object(cls)"]
+    for name in names:
+        namespace[f"set_{name}"] = cls.__dict__[name].__set__  # the slot's own store: frozen or not
+        lines.append(f"    set_{name}(new, {'new_' + name if name in changed else 'old.' + name})")
+    lines.append("    return new")
+    exec("\n".join(lines), namespace)  # noqa: S102 - code built from field names only
+    return namespace["copy"]

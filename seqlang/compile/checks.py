@@ -4,9 +4,11 @@
 """
 from __future__ import annotations
 
-from collections import defaultdict
-
+import bisect
 import math
+from collections import defaultdict
+import operator
+from operator import attrgetter
 
 from ..lang import units
 from ..lang.diagnostics import Diagnostic, error, warning
@@ -21,8 +23,16 @@ TOUCH_S = 1e-15
 
 def check_timeline(program: Program, timeline: Timeline) -> list[Diagnostic]:
     """Every timing conflict of the timeline, in source order."""
-    return (_overlaps(timeline) + _pulses_during_imaging(timeline)
-            + _rydberg_pulses_in_trap_light(program, timeline) + _one_transition_two_drives(program, timeline))
+    # Sorted once for the checks that walk in time. The timeline is in start order, but
+    # rounding can leave events of one start tick out of index order (sorting mostly
+    # ordered events is nearly linear).
+    ordered = sorted(timeline.events, key=_START_ORDER)
+    in_order = all(map(operator.is_, ordered, timeline.events))
+    return (_overlaps(timeline.events, in_order) + _pulses_during_imaging(timeline)
+            + _rydberg_pulses_in_trap_light(program, timeline) + _one_transition_two_drives(program, ordered))
+
+
+_START_ORDER = attrgetter("start_s", "index")  # C-level key: cheaper than a lambda per event
 
 
 def _transition(program: Program, pulse: Event) -> tuple[str, str]:
@@ -31,12 +41,15 @@ def _transition(program: Program, pulse: Event) -> tuple[str, str]:
     return pulse.species, "rydberg" if kind == "rydberg" else "qubit"
 
 
-def _one_transition_two_drives(program: Program, timeline: Timeline) -> list[Diagnostic]:
+def _one_transition_two_drives(program: Program, ordered: list[Event]) -> list[Diagnostic]:
     """Two drives on one transition of one atom at once: the lab plays both, but the simulator
     follows one drive frame per transition and would add their detunings."""
     out, playing = [], []
-    for pulse in sorted(timeline.pulses(), key=lambda e: (e.start_s, e.index)):
-        playing = [p for p in playing if p.end_s > pulse.start_s + TOUCH_S]
+    for pulse in ordered:
+        if pulse.kind != PULSE:
+            continue
+        if playing:  # most pulses follow one another: nothing is playing, no list to rebuild
+            playing = [p for p in playing if p.start_s + p.duration_s > pulse.start_s + TOUCH_S]
         for other in playing:
             if other.drive == pulse.drive or _transition(program, other) != _transition(program, pulse) \
                     or exclusive(pulse, other):
@@ -76,51 +89,79 @@ def _rydberg_pulses_in_trap_light(program: Program, timeline: Timeline) -> list[
     return out
 
 
-def _lane_key(event: Event) -> tuple[str, str]:
-    return ("drive", event.drive) if event.kind == PULSE else ("port", event.port)
+def _overlaps(events: tuple[Event, ...], in_order: bool) -> list[Diagnostic]:
+    """Overlaps on each drive and port; lanes in the order they first appear in the timeline.
 
-
-def _overlaps(timeline: Timeline) -> list[Diagnostic]:
+    `in_order`: the events are sorted by (start, index), and so is each lane.
+    """
     lanes: dict[tuple[str, str], list[Event]] = defaultdict(list)
-    for event in timeline.events:
-        lanes[_lane_key(event)].append(event)
+    for event in events:
         if event.kind == PULSE:
-            lanes[("port", event.port)].append(event)
+            lanes[("drive", event.drive)].append(event)
+        lanes[("port", event.port)].append(event)
     found: list[Diagnostic] = []
-    for (what, name), events in lanes.items():
-        found += _overlaps_in_lane(what, name, events)
+    for (what, name), lane in lanes.items():
+        if not in_order:
+            lane.sort(key=_START_ORDER)
+        found += _overlaps_in_lane(what, name, lane)
     return _first_per_statement(found)
 
 
 def _overlaps_in_lane(what: str, name: str, events: list[Event]) -> list[Diagnostic]:
-    events = sorted(events, key=lambda e: (e.start_s, e.index))
-    out, last = [], None
+    """Each event against the one that ends last among those before it (events in start order)."""
+    out, last, last_end = [], None, -math.inf
     for event in events:
-        if last is not None and event.start_s < last.end_s - TOUCH_S and event.index != last.index \
-                and not exclusive(event, last):
+        start = event.start_s
+        if start < last_end - TOUCH_S and event.index != last.index and not exclusive(event, last):
             out.append(error(
                 f"this overlaps the {last.kind} from line {last.span.line} on {what} `{name}` "
-                f"(by {units.format_quantity(last.end_s - event.start_s, units.DURATION)})", event.span,
+                f"(by {units.format_quantity(last_end - start, units.DURATION)})", event.span,
                 "put them one after the other, or use different drives"))
-        if last is None or event.end_s > last.end_s:
-            last = event
+        end = start + event.duration_s  # once per event: the property would be read three times
+        if end > last_end:
+            last, last_end = event, end
     return out
 
 
 def _pulses_during_imaging(timeline: Timeline) -> list[Diagnostic]:
-    images = [e for e in timeline.events if e.kind == IMAGE]
+    """Pulses on a species while it is imaged, each reported with the first such imaging."""
+    images: dict[str, list[Event]] = defaultdict(list)
+    for event in timeline.events:
+        if event.kind == IMAGE:
+            images[event.species].append(event)
     if not images:
         return []
+    found = {species: _ImagingTimes(of_species) for species, of_species in images.items()}
     out = []
     for pulse in timeline.pulses():
-        for image in images:
-            if image.species == pulse.species and pulse.start_s < image.end_s - TOUCH_S \
-                    and image.start_s < pulse.end_s - TOUCH_S:
-                out.append(error(f"pulse on `{pulse.species}` while `{pulse.species}` is being imaged "
-                                 f"(imaging from line {image.span.line})", pulse.span,
-                                 "imaging destroys the qubit state: pulse before or after it"))
-                break
+        times = found.get(pulse.species)
+        image = times.first_during(pulse) if times is not None else None
+        if image is not None:
+            out.append(error(f"pulse on `{pulse.species}` while `{pulse.species}` is being imaged "
+                             f"(imaging from line {image.span.line})", pulse.span,
+                             "imaging destroys the qubit state: pulse before or after it"))
     return _first_per_statement(out)
+
+
+class _ImagingTimes:
+    """The imagings of one species (in start order) searchable by time: two binary searches
+    per pulse instead of a scan of every imaging."""
+
+    def __init__(self, images: list[Event]):
+        self.images = images
+        self.starts = [image.start_s for image in images]
+        # Running maximum of the ends: the first imaging whose running maximum passes a time
+        # is the first imaging that ends after it.
+        self.latest_ends, latest = [], -math.inf
+        for image in images:
+            latest = max(latest, image.end_s - TOUCH_S)
+            self.latest_ends.append(latest)
+
+    def first_during(self, pulse: Event) -> Event | None:
+        """The first imaging (in start order) that overlaps the pulse by more than TOUCH_S."""
+        first_ending_after = bisect.bisect_right(self.latest_ends, pulse.start_s)
+        starting_before = bisect.bisect_left(self.starts, pulse.end_s - TOUCH_S)
+        return self.images[first_ending_after] if first_ending_after < starting_before else None
 
 
 def _first_per_statement(diags: list[Diagnostic]) -> list[Diagnostic]:

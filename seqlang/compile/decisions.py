@@ -11,7 +11,9 @@ table and the simulator share.
 """
 from __future__ import annotations
 
+import bisect
 import math
+from collections import defaultdict
 
 from ..lang import units
 from ..lang.diagnostics import Diagnostic, error
@@ -31,10 +33,28 @@ def exclusive(a: Event, b: Event) -> bool:
 
 def writer_of(timeline: Timeline, event: Event) -> Event | None:
     """The imaging that writes the record a conditioned event depends on."""
-    record = event.decision.selection.record
-    images = [e for e in timeline.events if e.kind == IMAGE and e.record == record]
-    before = [e for e in images if e.start_s <= event.start_s + TOUCH_S]
-    return (before or images or [None])[-1]
+    return RecordWriters(timeline).of(event)
+
+
+class RecordWriters:
+    """The imagings of each record, found by time: for many conditioned events, one pass
+    over the timeline instead of one per event."""
+
+    def __init__(self, timeline: Timeline):
+        self._images: dict[str, list[Event]] = defaultdict(list)
+        for event in timeline.events:  # in start order
+            if event.kind == IMAGE:
+                self._images[event.record].append(event)
+        self._starts = {record: [e.start_s for e in images] for record, images in self._images.items()}
+
+    def of(self, event: Event) -> Event | None:
+        """The last imaging of the event's record that starts by the event (else the last one)."""
+        record = event.decision.selection.record
+        images = self._images.get(record)
+        if not images:
+            return None
+        before = bisect.bisect_right(self._starts[record], event.start_s + TOUCH_S)
+        return images[before - 1] if before else images[-1]
 
 
 def issue_time(program: Program, event: Event) -> float:
@@ -60,9 +80,9 @@ def ready_time(program: Program, image: Event) -> float:
 
 def check_decisions(program: Program, timeline: Timeline) -> list[Diagnostic]:
     """Every conditioned event issued before its record is ready, once per statement."""
-    out, seen = [], set()
+    out, seen, writers = [], set(), RecordWriters(timeline)
     for event in timeline.conditioned():
-        image = writer_of(timeline, event)
+        image = writers.of(event)
         if image is None or event.span in seen:
             continue
         early = ready_time(program, image) - issue_time(program, event)

@@ -61,9 +61,15 @@ def _ramped(ramp: float, duration: float, t: np.ndarray) -> np.ndarray:
     return np.sin(np.pi / 2 * np.minimum(up, down)) ** 2
 
 
-@functools.lru_cache(maxsize=4096)
 def area_factor(shape: Shape, duration_s: float) -> float:
     """∫₀ᵀ f(t) dt in seconds for the envelope of peak 1."""
+    if shape.kind == "square":
+        return duration_s  # most pulses: answered before the cache hashes and compares the shape
+    return _cached_area_factor(shape, duration_s)
+
+
+@functools.lru_cache(maxsize=4096)
+def _cached_area_factor(shape: Shape, duration_s: float) -> float:
     closed = _closed_form_area(shape, duration_s)
     return closed if closed is not None else _numeric_area(shape, duration_s)
 

@@ -199,17 +199,14 @@ def _issue_lead(program: Program, event: Event, tick: float, latency: dict[str, 
 
 def _shift_needed(program: Program, timeline: Timeline, tick: float, latency: dict[str, int]) -> int:
     """Ticks by which everything must move later so that no output is issued before tick 0."""
-    leads: dict[tuple, int] = {}  # per kind and drive or port: a handful, however many events
-    earliest = 0
+    # Events of one kind on one output share their lead, so in a timeline in start order the
+    # first of each is issued earliest: a handful of events to look at, however many there are.
+    first: dict[tuple, Event] = {}
     for event in timeline.events:
-        key = (event.kind, event.drive, event.port)
-        lead = leads.get(key)
-        if lead is None:
-            lead = leads[key] = _issue_lead(program, event, tick, latency)
-        issue = round(event.start_s / tick) - lead
-        if issue < earliest:
-            earliest = issue
-    return -earliest
+        first.setdefault((event.kind, event.drive, event.port), event)
+    earliest = min((_ticks(e.start_s, tick) - _issue_lead(program, e, tick, latency) for e in first.values()),
+                   default=0)
+    return max(0, -earliest)
 
 
 def played_detuning(drive, detuning_hz: float) -> float:

@@ -4,6 +4,8 @@
 """
 from __future__ import annotations
 
+from operator import attrgetter
+
 from ..lang import units
 from ..lang.diagnostics import SeqlangError, error
 from ..program.model import (BranchOp, Decision, FieldOp, ImageOp, MoveOp, PortOp, Program, PulseOp, RepeatOp,
@@ -27,7 +29,7 @@ def lower(program: Program) -> Timeline:
             "where tick arithmetic stops being exact", culprit.span)])
     placer.place(program.body, 0.0)
     total = placer.duration(program.body)
-    events.sort(key=lambda e: (e.start_s, e.index))
+    events.sort(key=attrgetter("start_s", "index"))
     return Timeline(tuple(events), total, program.rig.tick_s)
 
 
@@ -81,24 +83,17 @@ class _Placer:
         return self._counts[key]
 
     def place(self, op, start: float) -> None:
-        if isinstance(op, SerialOp):
-            for child in op.body:
-                self.place(child, start)
-                start += self.duration(child)
-        elif isinstance(op, TogetherOp):
-            self._together(op, start)
-        elif isinstance(op, RepeatOp):
-            self._repeat(op, start)
-        elif isinstance(op, BranchOp):
-            self._branch(op, start)
-        elif isinstance(op, FieldOp):
-            self.placed += 1
-            self._field(op, start)
-        elif isinstance(op, WaitOp):
-            self.placed += 1
-        else:
-            self.placed += 1
-            self._emit(op, start)
+        # One dictionary look-up instead of a chain of isinstance tests: placing runs once
+        # per operation of every repetition.
+        _PLACERS.get(type(op), _Placer._port_action)(self, op, start)
+
+    def _serial(self, op: SerialOp, start: float) -> None:
+        for child in op.body:
+            self.place(child, start)
+            start += self.duration(child)
+
+    def _wait(self, op: WaitOp, start: float) -> None:
+        self.placed += 1
 
     def _together(self, op: TogetherOp, start: float) -> None:
         longest = self.duration(op)
@@ -108,8 +103,9 @@ class _Placer:
             self.place(child, start + offset)
 
     def _field(self, op: FieldOp, start: float) -> None:
+        self.placed += 1
         port = self.program.rig.ports[op.port]
-        self.events.append(Event(len(self.events), FIELD, start, duration_of(op.body), port.channel, op.span,
+        self.events.append(Event(len(self.events), FIELD, start, self.duration(op.body), port.channel, op.span,
                                  value=op.field_v_m))
         self.place(op.body, start)
 
@@ -135,26 +131,38 @@ class _Placer:
             self.place(body, start)
         self.decision = outer
 
-    def _emit(self, op, start: float) -> None:
-        index = len(self.events)
-        rig = self.program.rig
-        if isinstance(op, PulseOp):
-            drive = rig.drives[op.drive]
-            self.events.append(Event(index, PULSE, start, op.duration_s, drive.port, op.span, drive.name,
-                                     op.targets, drive.species, op.rabi_hz, op.detuning_hz, op.phase_rad,
-                                     op.area_rad, op.shape, decision=_combine(self.decision, op.decision)))
-        elif isinstance(op, ImageOp):
-            imaging = rig.imaging[op.species]
-            targets = self.program.sites_of(op.species)
-            self.events.append(Event(index, IMAGE, start, op.duration_s, imaging.port, op.span,
-                                     targets=targets, species=op.species, record=op.record))
-        elif isinstance(op, MoveOp):
-            self.events.append(Event(index, MOVE, start, op.duration_s, "move " + ",".join(op.sites), op.span,
-                                     targets=op.sites, displacement_m=op.displacement_m, profile=op.profile))
-        else:
-            port = rig.ports[op.port]
-            self.events.append(Event(index, op.action, start, op.duration_s, port.channel, op.span,
-                                     value=op.value, decision=self.decision))
+    def _pulse(self, op: PulseOp, start: float) -> None:
+        self.placed += 1
+        drive = self.program.rig.drives[op.drive]
+        decision = op.decision if self.decision is None else _combine(self.decision, op.decision)
+        self.events.append(Event(len(self.events), PULSE, start, op.duration_s, drive.port, op.span, drive.name,
+                                 op.targets, drive.species, op.rabi_hz, op.detuning_hz, op.phase_rad,
+                                 op.area_rad, op.shape, decision=decision))
+
+    def _image(self, op: ImageOp, start: float) -> None:
+        self.placed += 1
+        imaging = self.program.rig.imaging[op.species]
+        targets = self.program.sites_of(op.species)
+        self.events.append(Event(len(self.events), IMAGE, start, op.duration_s, imaging.port, op.span,
+                                 targets=targets, species=op.species, record=op.record))
+
+    def _move(self, op: MoveOp, start: float) -> None:
+        self.placed += 1
+        self.events.append(Event(len(self.events), MOVE, start, op.duration_s, "move " + ",".join(op.sites),
+                                 op.span, targets=op.sites, displacement_m=op.displacement_m, profile=op.profile))
+
+    def _port_action(self, op: PortOp, start: float) -> None:
+        self.placed += 1
+        port = self.program.rig.ports[op.port]
+        self.events.append(Event(len(self.events), op.action, start, op.duration_s, port.channel, op.span,
+                                 value=op.value, decision=self.decision))
+
+
+# Plain functions, not bound methods kept on the placer: those would make a reference
+# cycle, and lowering runs with the cyclic collector paused.
+_PLACERS = {SerialOp: _Placer._serial, TogetherOp: _Placer._together, RepeatOp: _Placer._repeat,
+            BranchOp: _Placer._branch, FieldOp: _Placer._field, WaitOp: _Placer._wait, PulseOp: _Placer._pulse,
+            ImageOp: _Placer._image, MoveOp: _Placer._move, PortOp: _Placer._port_action}
 
 
 def _combine(outer: Decision | None, inner: Decision | None) -> Decision | None:

@@ -53,7 +53,8 @@ def check_program(program: Program, diags: list[Diagnostic]) -> Checked:
     if not any(d.severity == ERROR for d in diags):
         diags += check_geometry(program, timeline)
     quantized, report, quant_diags = quantize(program, timeline)
-    diags += quant_diags + [d for d in check_timeline(program, quantized) if d.span not in {x.span for x in diags}]
+    reported = {d.span for d in diags}  # the quantized timeline repeats what the written one showed
+    diags += quant_diags + [d for d in check_timeline(program, quantized) if d.span not in reported]
     if not any(d.severity == ERROR for d in diags):
         diags += check_waveforms(program, quantized)
     if any(d.severity == ERROR for d in diags):

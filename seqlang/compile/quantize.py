@@ -57,8 +57,9 @@ def quantize(program: Program, timeline: Timeline) -> tuple[Timeline, QuantizeRe
     events, errors, detunings, diags, worst_time = [], [], [], [], 0.0
     for event, (start, end), grow in zip(timeline.events, rounded, grows):
         # Rounding and the deliberate stretch shifts are reported apart: they have different causes.
-        worst_time = max(worst_time, abs(start * tick - event.start_s),
-                         abs(end * tick - (event.start_s + event.duration_s)))
+        moved = max(abs(start * tick - event.start_s), abs(end * tick - (event.start_s + event.duration_s)))
+        if moved > worst_time:
+            worst_time = moved
         if stretch_ends:  # usually none: no search per event then
             start = start + bisect.bisect_right(stretch_ends, start)
             end = end + bisect.bisect_left(stretch_ends, end) + grow
@@ -115,13 +116,18 @@ def _needs_stretch(drive: Drive, event: Event, start: int, end: int, tick: float
 def _pulse(drive: Drive, event: Event, start: int, end: int, tick: float) -> tuple[Event, float]:
     """Rescale amplitude and detuning so that the pulse keeps its rotation over its played ticks."""
     duration = (end - start) * tick
-    wanted = _rabi_for_area(event.area_rad, event.shape, duration)
+    factor = envelopes.area_factor(event.shape, duration)
+    wanted = event.area_rad / (2 * math.pi * factor)  # _rabi_for_area, with the factor at hand
     played = _amplitude_rounded(wanted, drive)
-    area = envelopes.pulse_area(event.shape, duration, played)
+    area = 2 * math.pi * played * factor  # envelopes.pulse_area, likewise
     # Ω·T and Δ·T both set a detuned pulse's rotation: Δ follows Ω's scale factor (not its DAC rounding).
-    detuning = event.detuning_hz * (wanted / event.rabi_hz) if event.rabi_hz > 0 else event.detuning_hz
+    # A zero detuning stays the same zero (no new float per pulse).
+    detuning = event.detuning_hz * (wanted / event.rabi_hz) if event.rabi_hz > 0 and event.detuning_hz \
+        else event.detuning_hz
     quantized = _played(event, start * tick, duration, played, area, detuning)
-    return quantize_variants(drive, quantized, _amplitude_rounded), area - event.area_rad
+    if event.decision is not None:
+        quantized = quantize_variants(drive, quantized, _amplitude_rounded)
+    return quantized, area - event.area_rad
 
 
 def _detuning_in_range(drive: Drive, written: Event, played: Event) -> list[Diagnostic]:

@@ -27,8 +27,9 @@ def check_timeline(program: Program, timeline: Timeline) -> list[Diagnostic]:
     # rounding can leave events of one start tick out of index order (sorting mostly
     # ordered events is nearly linear).
     ordered = sorted(timeline.events, key=_START_ORDER)
-    in_order = all(map(operator.is_, ordered, timeline.events))
-    return (_overlaps(timeline.events, in_order) + _pulses_during_imaging(timeline)
+    if all(map(operator.is_, ordered, timeline.events)):
+        ordered = timeline.events
+    return (_overlaps(timeline.events, ordered) + _pulses_during_imaging(timeline)
             + _rydberg_pulses_in_trap_light(program, timeline) + _one_transition_two_drives(program, ordered))
 
 
@@ -44,13 +45,14 @@ def _transition(program: Program, pulse: Event) -> tuple[str, str]:
 def _one_transition_two_drives(program: Program, ordered: list[Event]) -> list[Diagnostic]:
     """Two drives on one transition of one atom at once: the lab plays both, but the simulator
     follows one drive frame per transition and would add their detunings."""
-    out, playing = [], []
+    out, playing = [], []  # (end, pulse) of the pulses still playing: usually the one before
     for pulse in ordered:
         if pulse.kind != PULSE:
             continue
-        if playing:  # most pulses follow one another: nothing is playing, no list to rebuild
-            playing = [p for p in playing if p.start_s + p.duration_s > pulse.start_s + TOUCH_S]
-        for other in playing:
+        start = pulse.start_s
+        if playing:
+            playing = [(end, p) for end, p in playing if end > start + TOUCH_S]
+        for _, other in playing:
             if other.drive == pulse.drive or _transition(program, other) != _transition(program, pulse) \
                     or exclusive(pulse, other):
                 continue
@@ -63,7 +65,7 @@ def _one_transition_two_drives(program: Program, ordered: list[Event]) -> list[D
                     "its numbers for this stretch are not to be trusted (the tables are)", pulse.span,
                     "play them one after the other"))
                 break
-        playing.append(pulse)
+        playing.append((start + pulse.duration_s, pulse))
     return _first_per_statement(out)
 
 
@@ -89,38 +91,63 @@ def _rydberg_pulses_in_trap_light(program: Program, timeline: Timeline) -> list[
     return out
 
 
-def _overlaps(events: tuple[Event, ...], in_order: bool) -> list[Diagnostic]:
-    """Overlaps on each drive and port; lanes in the order they first appear in the timeline.
+def _overlaps(events: tuple[Event, ...], ordered) -> list[Diagnostic]:
+    """Overlaps on each drive and port; `ordered` holds the events sorted by (start, index).
 
-    `in_order`: the events are sorted by (start, index), and so is each lane.
+    One walk feeds every lane (each event is read once: at 10⁵ events, reading them is
+    what costs). The messages come lane by lane, in the order the lanes first appear in
+    the timeline.
     """
-    lanes: dict[tuple[str, str], list[Event]] = defaultdict(list)
-    for event in events:
-        if event.kind == PULSE:
-            lanes[("drive", event.drive)].append(event)
-        lanes[("port", event.port)].append(event)
-    found: list[Diagnostic] = []
-    for (what, name), lane in lanes.items():
-        if not in_order:
-            lane.sort(key=_START_ORDER)
-        found += _overlaps_in_lane(what, name, lane)
+    lanes: dict[tuple[str, str], _Lane] = {}
+    of_output: dict[tuple, tuple[_Lane, ...]] = {}  # (drive or None, port) -> its lanes: a handful
+    if ordered is not events:
+        for event in events:  # the lanes' order, before the walk in time adds to them
+            _lanes_of(lanes, event)
+    for event in ordered:
+        key = (event.drive if event.kind == PULSE else None, event.port)
+        played_on = of_output.get(key) or of_output.setdefault(key, _lanes_of(lanes, event))
+        start = event.start_s
+        end = start + event.duration_s  # once per event: the property would be read three times
+        for lane in played_on:
+            if start < lane.last_end - TOUCH_S:
+                lane.overlap(event, start)
+            if end > lane.last_end:
+                lane.last, lane.last_end = event, end
+    found = [d for lane in lanes.values() for d in lane.found]
     return _first_per_statement(found)
 
 
-def _overlaps_in_lane(what: str, name: str, events: list[Event]) -> list[Diagnostic]:
-    """Each event against the one that ends last among those before it (events in start order)."""
-    out, last, last_end = [], None, -math.inf
-    for event in events:
-        start = event.start_s
-        if start < last_end - TOUCH_S and event.index != last.index and not exclusive(event, last):
-            out.append(error(
-                f"this overlaps the {last.kind} from line {last.span.line} on {what} `{name}` "
-                f"(by {units.format_quantity(last_end - start, units.DURATION)})", event.span,
+def _lanes_of(lanes: dict[tuple[str, str], _Lane], event: Event) -> tuple[_Lane, ...]:
+    """The lanes an event plays on (a pulse: its drive, then its port), made when first seen."""
+    if event.kind == PULSE:
+        drive = lanes.get(("drive", event.drive))
+        if drive is None:
+            drive = lanes[("drive", event.drive)] = _Lane("drive", event.drive)
+    port = lanes.get(("port", event.port))
+    if port is None:
+        port = lanes[("port", event.port)] = _Lane("port", event.port)
+    return (drive, port) if event.kind == PULSE else (port,)
+
+
+class _Lane:
+    """One drive or port walked in start order: each event is checked against the event
+    before it that ends last (`last`; the walk in `_overlaps` updates it)."""
+
+    __slots__ = ("what", "name", "last", "last_end", "found")
+
+    def __init__(self, what: str, name: str):
+        self.what, self.name = what, name
+        self.last, self.last_end = None, -math.inf
+        self.found: list[Diagnostic] = []
+
+    def overlap(self, event: Event, start: float) -> None:
+        """An event starting before `last` ends: an error unless it is `last` or never plays with it."""
+        last = self.last
+        if event.index != last.index and not exclusive(event, last):
+            self.found.append(error(
+                f"this overlaps the {last.kind} from line {last.span.line} on {self.what} `{self.name}` "
+                f"(by {units.format_quantity(self.last_end - start, units.DURATION)})", event.span,
                 "put them one after the other, or use different drives"))
-        end = start + event.duration_s  # once per event: the property would be read three times
-        if end > last_end:
-            last, last_end = event, end
-    return out
 
 
 def _pulses_during_imaging(timeline: Timeline) -> list[Diagnostic]:

@@ -48,14 +48,11 @@ def quantize(program: Program, timeline: Timeline) -> tuple[Timeline, QuantizeRe
     if too_long:
         return Timeline((), 0.0, tick, quantized=True), QuantizeReport((), 0.0, 0.0, 0), too_long
     drives = program.rig.drives
-    rounded = [(round(e.start_s / tick), round((e.start_s + e.duration_s) / tick)) for e in timeline.events]
-    grows = [e.kind == PULSE and _needs_stretch(drives[e.drive], e, start, end, tick)
-             for e, (start, end) in zip(timeline.events, rounded)]
-    # A pulse lengthened by one tick pushes everything that starts at or after its end one
-    # tick later, so that it never runs into the next pulse on its drive.
-    stretch_ends = sorted(end for (_, end), grow in zip(rounded, grows) if grow)
+    rounded, stretch_ends = _rounded(drives, timeline.events, tick)
+    # The end of the sequence is rounded like every event end, so a last pulse ending on it ends the total.
+    total = (round(timeline.duration_s / tick) + len(stretch_ends)) * tick
     events, errors, detunings, diags, worst_time = [], [], [], [], 0.0
-    for event, (start, end), grow in zip(timeline.events, rounded, grows):
+    for event, (start, end, grow) in zip(timeline.events, rounded):
         # Rounding and the deliberate stretch shifts are reported apart: they have different causes.
         moved = max(abs(start * tick - event.start_s), abs(end * tick - (event.start_s + event.duration_s)))
         if moved > worst_time:
@@ -77,13 +74,30 @@ def quantize(program: Program, timeline: Timeline) -> tuple[Timeline, QuantizeRe
         elif start * tick != event.start_s or (end - start) * tick != event.duration_s:
             event = _placed(event, start * tick, (end - start) * tick)
         events.append(event)
-    # The end of the sequence is rounded like every event end, so a last pulse ending on it ends the total.
-    total = (round(timeline.duration_s / tick) + len(stretch_ends)) * tick
-    total = max(total, max((e.start_s + e.duration_s for e in events), default=total))
+        if event.start_s + event.duration_s > total:
+            total = event.start_s + event.duration_s
     report = QuantizeReport(tuple(errors), max((abs(e) for _, e in errors), default=0.0), worst_time,
                             len(stretch_ends), len(stretch_ends) * tick, tuple(detunings),
                             max((abs(d) for _, d in detunings), default=0.0))
     return Timeline(tuple(events), total, tick, quantized=True), report, diags
+
+
+def _rounded(drives: dict[str, Drive], events: tuple[Event, ...], tick: float) -> tuple[list, list[int]]:
+    """Per event (start tick, end tick, whether the pulse must grow by a tick), and the sorted
+    end ticks of the pulses that grow.
+
+    A pulse lengthened by one tick pushes everything that starts at or after its end one
+    tick later, so that it never runs into the next pulse on its drive.
+    """
+    rounded, stretch_ends = [], []
+    for event in events:
+        start, end = round(event.start_s / tick), round((event.start_s + event.duration_s) / tick)
+        grow = event.kind == PULSE and _needs_stretch(drives[event.drive], event, start, end, tick)
+        if grow:
+            stretch_ends.append(end)
+        rounded.append((start, end, grow))
+    stretch_ends.sort()
+    return rounded, stretch_ends
 
 
 def _beyond_tick_range(timeline: Timeline, tick: float) -> list[Diagnostic]:

@@ -158,3 +158,78 @@ def test_show_lists_the_pair_model_and_the_defects_at_the_field():
     assert "E = 10.2 V/m: diagonalised" in run.stdout
     assert "na-cs channel defects: 55P3/2+59P3/2" in run.stdout
     assert "Stark shifts na 57S1/2 -554" in run.stdout
+
+
+MANY_MOVES = """\
+  move a to (5, 0) um duration 200 us
+  together {
+    move a to (9, 1) um duration 300 us
+    repeat 1 {
+      wait 100 us
+      move b to (20, 0) um duration 50 us
+    }
+  }
+  together {
+    move a to (0, 0) um duration 40 us
+    move a to (3, 2) um duration 100 us
+  }
+  wait 7 us
+  move b to (30, 0) um duration 80 us"""
+
+
+def _timeline_with_moves(tmp_path):
+    """A written timeline whose site `a` starts at −0 and has two moves under way at once
+    (lowered without the checks, which would reject them)."""
+    from seqlang.compile.lower import lower
+    from seqlang.program.resolve import resolve
+    resolved, _ = resolve(program(tmp_path, MANY_MOVES, "site a = rb at (-0, 0) um\nsite b = rb at (30, 0) um\n"))
+    return resolved, lower(resolved)
+
+
+def _probe_times(timeline) -> list[float]:
+    edges = [t for m in motion.moves(timeline) for t in (m.start_s, m.end_s, (m.start_s + m.end_s) / 2)]
+    near = [math.nextafter(t, d) for t in edges for d in (-math.inf, math.inf)]
+    return sorted(set(edges + near + [0.0, -1.0, timeline.duration_s + 1.0]))
+
+
+def test_site_paths_give_the_positions_of_the_scan_over_every_move_bit_for_bit(tmp_path):
+    resolved, timeline = _timeline_with_moves(tmp_path)
+    assert math.copysign(1.0, resolved.sites["a"].position_m[0]) < 0  # the −0 case is exercised
+    paths = motion.SitePaths(resolved, timeline)
+    for t in _probe_times(timeline):
+        for site in ("a", "b"):
+            expected = motion.position_at(resolved, timeline, site, t)
+            assert [x.hex() for x in paths.position(site, t)] == [x.hex() for x in expected], (site, t)
+
+
+def test_moving_sites_match_the_scan_over_every_move(tmp_path):
+    _, timeline = _timeline_with_moves(tmp_path)
+    times = _probe_times(timeline)
+    moving = motion.MovingSites(timeline)
+    for start, end in zip(times, times[3:] + times[-1:] * 3):  # starts in order, as the walk asks
+        assert moving.during(start, end) == motion.moving_at(timeline, start, end), (start, end)
+
+
+@pytest.mark.parametrize("first, close", [("together", False), ("repeat 1", True)])
+def test_moves_under_way_at_once_are_checked_for_spacing_with_each_other(tmp_path, first, close):
+    """a moves to 0.5 µm from where b starts. Played at once, b is on its way out (no error);
+    one after the other, b is still there (errors). Then a follows b to 50 µm while a longer
+    move of b, begun before a's, takes b on to 80 µm (no error either way)."""
+    body = f"""  {first} {{
+    move a to (29.5, 0) um duration 500 us
+    move b to (50, 0) um duration 500 us
+  }}
+  together {{
+    move b to (80, 0) um duration 800 us
+    repeat 1 {{
+      wait 300 us
+      move a to (50, 0) um duration 500 us
+    }}
+  }}"""
+    errors = []
+    try:
+        seqlang.load(program(tmp_path, body))
+    except seqlang.SeqlangError as failure:
+        errors = [d.message for d in failure.diagnostics]
+    assert [m for m in errors if "closer than the minimum spacing" not in m] == []
+    assert len(errors) == (2 if close else 0), errors  # one after the other: both moves come close

@@ -127,9 +127,11 @@ def _rydberg_pulses(program: Program, timeline: Timeline) -> list[Event]:
 
 
 def _pulses_while_moving(program: Program, timeline: Timeline) -> list[Diagnostic]:
-    out = []
-    for pulse in _rydberg_pulses(program, timeline):
-        moving = motion.moving_at(timeline, pulse.start_s, pulse.end_s)
+    out, moving_sites = [], motion.MovingSites(timeline)
+    if not moving_sites:
+        return out
+    for pulse in _rydberg_pulses(program, timeline):  # in start order, as MovingSites asks
+        moving = moving_sites.during(pulse.start_s, pulse.end_s)
         if moving:
             out.append(warning(f"Rydberg pulse while {', '.join(sorted(moving))} "
                                f"{'is' if len(moving) == 1 else 'are'} moving: the pair distances change during "
@@ -163,25 +165,42 @@ def rydberg_pairs(program: Program, timeline: Timeline) -> list[tuple[str, str]]
 
 def field_at(timeline: Timeline, t: float) -> float:
     """The electric field (V/m) at time t: the innermost field stretch running then."""
+    return _field_at(timeline.events, t)
+
+
+def _field_at(events, t: float) -> float:
     value = 0.0
-    for e in timeline.events:
+    for e in events:
         if e.kind == FIELD and e.start_s <= t < e.end_s:
             value = e.value
     return value
 
 
-def _geometry(program: Program, timeline: Timeline, t: float, a: str, b: str):
+class _Scene:
+    """Positions and fields of one timeline, indexed once: the pair checks ask for them at
+    every Rydberg pulse and every change of geometry, of every pair."""
+
+    def __init__(self, program: Program, timeline: Timeline):
+        self.program, self.timeline = program, timeline
+        self.paths = motion.SitePaths(program, timeline)
+        self.fields = [e for e in timeline.events if e.kind == FIELD]
+
+    def field(self, t: float) -> float:
+        return _field_at(self.fields, t)
+
+
+def _geometry(scene: _Scene, t: float, a: str, b: str):
     """(R, θ, E) of the pair at time t, rounded so that equal geometries compare equal (R to 12
     significant digits: mid-move distances keep V to ~1e-11)."""
     from ..atoms.pairs import angle_to_axis
-    ra, rb = (motion.position_at(program, timeline, s, t) for s in (a, b))
-    theta = angle_to_axis(ra, rb, program.rig.quantization_axis)
-    return float(f"{math.dist(ra, rb):.12g}"), round(theta, 12), round(field_at(timeline, t), 12)
+    ra, rb = (scene.paths.position(s, t) for s in (a, b))
+    theta = angle_to_axis(ra, rb, scene.program.rig.quantization_axis)
+    return float(f"{math.dist(ra, rb):.12g}"), round(theta, 12), round(scene.field(t), 12)
 
 
-def _separation(program: Program, timeline: Timeline, t: float, a: str, b: str) -> tuple[float, ...]:
+def _separation(scene: _Scene, t: float, a: str, b: str) -> tuple[float, ...]:
     """r_b − r_a (m) at time t."""
-    ra, rb = (motion.position_at(program, timeline, s, t) for s in (a, b))
+    ra, rb = (scene.paths.position(s, t) for s in (a, b))
     return tuple(y - x for x, y in zip(ra, rb))
 
 
@@ -198,14 +217,16 @@ def _pair_geometries(program: Program, timeline: Timeline, pairs=None) -> dict[t
     reaching it, with the pulse."""
     out: dict[tuple[str, str], list] = {}
     pulses = _rydberg_pulses(program, timeline)
+    scene = _Scene(program, timeline)
     for a, b in rydberg_pairs(program, timeline):
         if pairs is not None and (a, b) not in pairs:
             continue
-        seen = out.setdefault((a, b), [])
+        found, seen = out.setdefault((a, b), []), set()
         for pulse in (p for p in pulses if a in p.targets or b in p.targets):
-            geometry = _geometry(program, timeline, pulse.start_s, a, b)
-            if geometry not in (g for g, _ in seen):
-                seen.append((geometry, pulse))
+            geometry = _geometry(scene, pulse.start_s, a, b)
+            if geometry not in seen:
+                seen.add(geometry)
+                found.append((geometry, pulse))
     return out
 
 
@@ -237,39 +258,41 @@ def pair_shift_track(program: Program, timeline: Timeline, pairs=None) -> dict[t
     out: dict[tuple[str, str], tuple] = {}
     pulses = _rydberg_pulses(program, timeline)
     shifts: dict[tuple, object] = {}
+    scene = _Scene(program, timeline)
     for a, b in rydberg_pairs(program, timeline):
         if pairs is not None and (a, b) not in pairs:
             continue
         first = next((p.start_s for p in pulses if a in p.targets or b in p.targets), None)
         if first is not None:
-            out[(a, b)] = _track(program, timeline, a, b, first, shifts)
+            out[(a, b)] = _track(scene, a, b, first, shifts)
     return out
 
 
-def _track(program: Program, timeline: Timeline, a: str, b: str, first: float, shifts: dict) -> tuple:
+def _track(scene: _Scene, a: str, b: str, first: float, shifts: dict) -> tuple:
     """The entries of one pair's track (see `pair_shift_track`); `shifts` caches PairShifts by geometry."""
-    times = _change_times(timeline, a, b, first)
+    times = _change_times(scene, a, b, first)
     track, last = [], None
-    for t0, t1 in zip(times, times[1:] + [max(timeline.duration_s, times[-1])]):
-        nodes = tuple(_geometry(program, timeline, t0 + x * (t1 - t0), a, b) for x, _ in GAUSS_NODES)
+    for t0, t1 in zip(times, times[1:] + [max(scene.timeline.duration_s, times[-1])]):
+        nodes = tuple(_geometry(scene, t0 + x * (t1 - t0), a, b) for x, _ in GAUSS_NODES)
         if nodes == last:
             continue
         last = nodes
-        track.append((t0, _mean_shift(program, a, b, nodes, shifts),
-                      _separation(program, timeline, (t0 + t1) / 2, a, b)))
+        track.append((t0, _mean_shift(scene.program, a, b, nodes, shifts),
+                      _separation(scene, (t0 + t1) / 2, a, b)))
     return tuple(track)
 
 
-def _change_times(timeline: Timeline, a: str, b: str, first: float) -> list[float]:
+def _change_times(scene: _Scene, a: str, b: str, first: float) -> list[float]:
     """The pair's first Rydberg pulse and every later time its geometry may change: the steps
     and end of each move of either site, and the edges of every field stretch."""
+    timeline = scene.timeline
     tick, times = timeline.tick_s, [first]
-    for move in motion.moves(timeline):
-        if a in move.targets or b in move.targets:
-            steps = range(MOVE_STEPS)
-            times += [move.start_s + round(k * move.duration_s / MOVE_STEPS / tick) * tick for k in steps]
-            times.append(move.end_s)
-    times += [t for e in timeline.events if e.kind == FIELD for t in (e.start_s, e.end_s)]
+    either = {id(m): m for name in (a, b) for m in scene.paths.moves_of(name)}  # a move of both: once
+    for move in either.values():
+        steps = range(MOVE_STEPS)
+        times += [move.start_s + round(k * move.duration_s / MOVE_STEPS / tick) * tick for k in steps]
+        times.append(move.end_s)
+    times += [t for e in scene.fields for t in (e.start_s, e.end_s)]
     out: list[float] = []
     for t in sorted(t for t in times if first <= t < timeline.duration_s):
         if not out or t - out[-1] > 1e-3 * tick:  # one entry per sub-tick instant

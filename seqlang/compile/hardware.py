@@ -109,10 +109,11 @@ def _entries(program: Program, timeline: Timeline, tick: float, latencies: dict[
              shift: int) -> list[PortEvent]:
     """The entries of every event in timeline order (gate windows not merged yet)."""
     out: list[PortEvent] = []
-    source = _SourceLines()
+    source, paths = _SourceLines(), None
     for event in timeline.events:
         if event.kind == MOVE:
-            out += _ramps(program, timeline, event, tick, latencies, shift, source)
+            paths = paths or motion.SitePaths(program, timeline)  # made at the first move
+            out += _ramps(program, paths, event, tick, latencies, shift, source)
         elif event.kind == FIELD:
             out += _field_sets(program, event, tick, latencies, shift, source)
         else:
@@ -239,13 +240,13 @@ def _port_events(program: Program, event: Event, tick: float, latency: dict[str,
                              where, value=event.value))
 
 
-def _ramps(program: Program, timeline: Timeline, event: Event, tick: float, latency: dict[str, int],
+def _ramps(program: Program, paths: motion.SitePaths, event: Event, tick: float, latency: dict[str, int],
            shift: int, source: _SourceLines) -> list[PortEvent]:
     """One frequency ramp per moved site and axis, on the deflector of that axis."""
     start, length = _ticks(event.start_s, tick) + shift, _ticks(event.duration_s, tick)
     out = []
     for site in event.targets:
-        before = {site: motion.position_at(program, timeline, site, event.start_s)}
+        before = {site: paths.position(site, event.start_s)}
         for k, axis in enumerate(motion.AXES):
             port = motion.deflector(program, program.sites[site].species, axis)
             if port is None or event.displacement_m[k] == 0:

@@ -92,6 +92,7 @@ def parse(text: str, tables: Tables, reducers: list):
     end_state = tables.end
     stack = [tables.start]
     values: list = []
+    chains: dict = {}
     pos, length, line, line_start = 0, len(text), 1, 0
     while True:
         match, keywords, ignored, newlines = lexers[stack[-1]]
@@ -132,8 +133,15 @@ def parse(text: str, tables: Tables, reducers: list):
             size, origin, number = action
             reduce = reducers[number]
             if reduce is None:
-                # `?rule: other` passes its child on: only the state changes.
-                stack[-1] = actions[stack[-2]][origin]
+                # `?rule: other` passes its child on: only the state changes. Such reductions come
+                # in chains (a number becomes a product, a sum, an expression): the state the
+                # chain ends in depends only on the two top states and the lookahead, so it is
+                # followed once and remembered.
+                key = (stack[-2], stack[-1], kind)
+                state = chains.get(key)
+                if state is None:
+                    state = chains[key] = _follow_chain(actions, reducers, stack[-2], origin, kind)
+                stack[-1] = state
             else:
                 if size:
                     children = values[-size:]
@@ -145,3 +153,14 @@ def parse(text: str, tables: Tables, reducers: list):
                 stack.append(actions[stack[-1]][origin])
             if kind == "$END" and stack[-1] == end_state:
                 return values[-1]
+
+
+def _follow_chain(actions, reducers, below: int, origin: str, kind: str) -> int:
+    """The state after a pass-on reduction to `origin` over state `below`, and the pass-on
+    reductions that follow it on lookahead `kind` (each keeps one symbol, so `below` stays)."""
+    while True:
+        state = actions[below][origin]
+        action = actions[state].get(kind)
+        if action is None or action.__class__ is int or reducers[action[2]] is not None:
+            return state
+        origin = action[1]

@@ -371,7 +371,7 @@ class _Builder(Transformer):
     @v_args(meta=True)
     def with_unit(self, meta, children):
         operand, unit = children
-        return ast.WithUnit(operand, sys.intern(str(unit)), self._span(meta), _token_span(unit, self.path))
+        return ast.WithUnit(operand, sys.intern(str(unit)), self._span(meta))
 
     def _binop(op):
         @v_args(meta=True)
@@ -426,7 +426,7 @@ class _Builder(Transformer):
 
     @v_args(meta=True)
     def prop(self, meta, children):
-        return ast.Prop(self._ident(children[0]), children[1], self._span(meta))
+        return ast.Prop(sys.intern(str(children[0])), children[1], self._span(meta))
 
     setting = prop
 

@@ -28,7 +28,7 @@ from lark.visitors import _vargs_meta
 
 from . import syntax as ast
 from . import lalr, source_text
-from .diagnostics import SOURCES, SeqlangError, Span, error
+from .diagnostics import SOURCES, SeqlangError, Span, error, span_packer
 from .grammar_cache import cached_lark
 from .syntax_errors import syntax_error, token_span as _token_span
 
@@ -327,11 +327,6 @@ def _builder_method(builder: "_Builder", name: str):
     return lambda meta, children: bound(children)
 
 
-# Span is a named tuple: its generated __new__ is one more Python call per span, and a
-# generated program makes a dozen spans per line.
-_new_span = tuple.__new__
-
-
 # ---- the Transformer: builds nodes, checks nothing --------------------------
 class _Builder(Transformer):
     """Builds :mod:`syntax` nodes, one method per grammar rule (named after the rule or
@@ -342,18 +337,18 @@ class _Builder(Transformer):
     def __init__(self, path: str):
         super().__init__()
         self.path = path
+        self._pack = span_packer(path)  # a dozen spans per line of a generated program
 
     def _span(self, meta: _Reduced) -> Span:
         first, last = meta.first, meta.last
         if first is None:
             return Span(self.path, 1, 1, 1, 1)
-        return _new_span(Span, (self.path, first.line, first.column, last.end_line, last.end_column,
-                                first.start_pos, last.end_pos))
+        return self._pack(first.line, first.column, last.end_line, last.end_column, first.start_pos, last.end_pos)
 
     def _ident(self, token: Token) -> ast.Ident:
         # Interned: a long program repeats a few names many times, each copy ~50 bytes.
-        return ast.Ident(sys.intern(str(token)), _new_span(Span, (
-            self.path, token.line, token.column, token.end_line, token.end_column, token.start_pos, token.end_pos)))
+        return ast.Ident(sys.intern(str(token)), self._pack(
+            token.line, token.column, token.end_line, token.end_column, token.start_pos, token.end_pos))
 
     # expressions
     @v_args(meta=True)

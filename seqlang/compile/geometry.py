@@ -195,17 +195,24 @@ def _shift(program: Program, a: str, b: str, geometry):
 
 def _pair_geometries(program: Program, timeline: Timeline, pairs=None) -> dict[tuple[str, str], list]:
     """Per Rydberg pair (of `pairs`, if given), the distinct (R, θ, E) of the Rydberg pulses
-    reaching it, with the pulse."""
+    reaching it, with the pulse; and those at the end of each move of either site between
+    its first and last Rydberg pulse (an atom may wait in |r⟩ there), with the move."""
     out: dict[tuple[str, str], list] = {}
     pulses = _rydberg_pulses(program, timeline)
     for a, b in rydberg_pairs(program, timeline):
         if pairs is not None and (a, b) not in pairs:
             continue
         seen = out.setdefault((a, b), [])
-        for pulse in (p for p in pulses if a in p.targets or b in p.targets):
-            geometry = _geometry(program, timeline, pulse.start_s, a, b)
+        reaching = [p for p in pulses if a in p.targets or b in p.targets]
+        if not reaching:
+            continue
+        first, last = reaching[0].start_s, max(p.end_s for p in reaching)
+        between = [m for m in motion.moves(timeline)
+                   if (a in m.targets or b in m.targets) and first < m.end_s < last]
+        for event, t in [(p, p.start_s) for p in reaching] + [(m, m.end_s) for m in between]:
+            geometry = _geometry(program, timeline, t, a, b)
             if geometry not in (g for g, _ in seen):
-                seen.append((geometry, pulse))
+                seen.append((geometry, event))
     return out
 
 

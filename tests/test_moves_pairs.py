@@ -175,6 +175,18 @@ def test_a_pair_left_in_rydberg_through_a_move_and_a_wait_follows_the_distance(t
     assert np.max(np.abs(simulated - at_next_pulse)) > 1e-2
 
 
+def test_a_pair_brought_inside_the_crossover_radius_between_pulses_warns_at_the_move(tmp_path):
+    """Both atoms in |r⟩, c brought to 4 µm and back before the de-excitation: no pulse sees the
+    near geometry, the check of the move's end does (inside twice the crossover radius, 3.47 µm
+    for this pair from arc's channel (atoms.pairs); the warning points at the move)."""
+    there_and_back = LEFT_IN_RYDBERG.replace(f"({END_UM}, 0) um", "(4, 0) um").replace(
+        "wait 2 us", f"wait 2 us\nmove c to ({START_UM}, 0) um duration 10 us")
+    path = _write(tmp_path, there_and_back)
+    move_line = 5 + there_and_back.splitlines().index("move c to (4, 0) um duration 10 us")  # after 4 header lines
+    warnings = [w for w in seqlang.load(path).warnings if "crossover radius" in w.message]
+    assert [(w.span.line, w.message.split(" is inside")[0]) for w in warnings] == [(move_line, "`t`-`c` at 4 um")]
+
+
 def test_the_track_steps_through_the_move_and_its_phase_is_the_integral(tmp_path):
     """The track of LEFT_IN_RYDBERG: an entry at the first Rydberg pulse, at the 8 steps of the move
     (on the tick) and at its end (7 µm); Σ V·Δt over the steps is ∫V(R(t)) dt to 1e-6 (scipy's

@@ -183,6 +183,7 @@ class _Scene:
     def __init__(self, program: Program, timeline: Timeline):
         self.program, self.timeline = program, timeline
         self.paths = motion.SitePaths(program, timeline)
+        self.moves = motion.moves(timeline)
         self.fields = [e for e in timeline.events if e.kind == FIELD]
 
     def field(self, t: float) -> float:
@@ -214,7 +215,8 @@ def _shift(program: Program, a: str, b: str, geometry):
 
 def _pair_geometries(program: Program, timeline: Timeline, pairs=None) -> dict[tuple[str, str], list]:
     """Per Rydberg pair (of `pairs`, if given), the distinct (R, θ, E) of the Rydberg pulses
-    reaching it, with the pulse."""
+    reaching it, with the pulse; and those at the end of each move of either site between
+    its first and last Rydberg pulse (an atom may wait in |r⟩ there), with the move."""
     out: dict[tuple[str, str], list] = {}
     pulses = _rydberg_pulses(program, timeline)
     scene = _Scene(program, timeline)
@@ -222,11 +224,16 @@ def _pair_geometries(program: Program, timeline: Timeline, pairs=None) -> dict[t
         if pairs is not None and (a, b) not in pairs:
             continue
         found, seen = out.setdefault((a, b), []), set()
-        for pulse in (p for p in pulses if a in p.targets or b in p.targets):
-            geometry = _geometry(scene, pulse.start_s, a, b)
+        reaching = [p for p in pulses if a in p.targets or b in p.targets]
+        if not reaching:
+            continue
+        first, last = reaching[0].start_s, max(p.end_s for p in reaching)
+        between = [m for m in scene.moves if (a in m.targets or b in m.targets) and first < m.end_s < last]
+        for event, t in [(p, p.start_s) for p in reaching] + [(m, m.end_s) for m in between]:
+            geometry = _geometry(scene, t, a, b)
             if geometry not in seen:
                 seen.add(geometry)
-                found.append((geometry, pulse))
+                found.append((geometry, event))
     return out
 
 

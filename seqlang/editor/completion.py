@@ -120,22 +120,22 @@ def rig_block_keys(word: str, kind: str = "") -> dict:
 def key_kind(key) -> tuple[tuple[int, ...] | None, tuple[str, ...]]:
     """(the one unit kind the key's reader accepts or None, the words it accepts)."""
     accepted = [dim for dim, unit in _probe_units().items()
-                if _accepts(key.reader, ast.WithUnit(ast.Number(3.0, PROBE), unit, PROBE, PROBE))
-                or _accepts(key.reader, ast.WithUnit(ast.Number(16.0, PROBE), unit, PROBE, PROBE))]
+                if _accepts(key.reader, ast.WithUnit(ast.Number(3.0, PROBE), unit, PROBE))
+                or _accepts(key.reader, ast.WithUnit(ast.Number(16.0, PROBE), unit, PROBE))]
     if not accepted and _accepts(key.reader, ast.Number(16.0, PROBE)):
         accepted = [units.DIMENSIONLESS]
     words = tuple(w for w in CONSTANTS if _accepts(key.reader, ast.NameRef(w, PROBE)))
     if len(words) == len(CONSTANTS):
         words = ()  # a reader that takes anything (checked later) says nothing about its words
     dim = accepted[0] if len(accepted) == 1 else None
-    if dim is None and _accepts(key.reader, ast.WithUnit(ast.Number(0.5, PROBE), "%", PROBE, PROBE)) \
+    if dim is None and _accepts(key.reader, ast.WithUnit(ast.Number(0.5, PROBE), "%", PROBE)) \
             and len(accepted) != len(_probe_units()):
         dim = units.DIMENSIONLESS  # a fraction: takes 50 % but not 3 rad
     return dim, words
 
 
 def _range_probe(unit: str) -> ast.RangeExpr:
-    low, high = (ast.WithUnit(ast.Number(v, PROBE), unit, PROBE, PROBE) for v in (-3.0, 3.0))
+    low, high = (ast.WithUnit(ast.Number(v, PROBE), unit, PROBE) for v in (-3.0, 3.0))
     return ast.RangeExpr(low, high, PROBE)
 
 
@@ -159,7 +159,7 @@ def units_for(key) -> tuple[str, ...]:
     if dim is None:
         return ()
     if dim == units.DIMENSIONLESS:
-        return ANGLE_UNITS if _accepts(key.reader, ast.WithUnit(ast.Number(3.0, PROBE), "rad", PROBE, PROBE)) \
+        return ANGLE_UNITS if _accepts(key.reader, ast.WithUnit(ast.Number(3.0, PROBE), "rad", PROBE)) \
             else FRACTION_UNITS
     return tuple(u for u, (_, d) in units.UNITS.items() if d == dim and "µ" not in u)
 

@@ -16,6 +16,7 @@ they cost a second parse and nothing else.
 from __future__ import annotations
 
 import functools
+import re
 
 from lark import Lark, Token
 from lark.lexer import ContextualLexer, PatternStr, UnlessCallback
@@ -69,7 +70,10 @@ def _reduction(rule, rules: list, index: dict) -> tuple:
 
 
 def _state_lexer(basic) -> tuple | None:
-    """(match, keywords, ignored, with newlines) for one state's lexer, as lark built it."""
+    """(match, blanks, keywords, tokens that may hold line ends) for one state's lexer, as lark
+    built it. `match` takes the blanks and comments before a token and the token in one
+    step (lark's alternatives without the ignored ones, behind a run of ignored text);
+    `blanks` matches a run of ignored text alone (for the end of the text)."""
     scanner = basic.scanner
     if len(scanner._mres) != 1 or basic.g_regex_flags or basic.use_bytes or basic.user_callbacks:
         return None
@@ -82,7 +86,27 @@ def _state_lexer(basic) -> tuple | None:
         if any(not isinstance(t.pattern, PatternStr) or t.pattern.flags for t in words):
             return None
         keywords[kind] = {t.pattern.value: t.name for t in words}
-    return scanner._mres[0].match, keywords, basic.ignore_types, basic.newline_types
+    steps = [_one_blank(t.pattern.to_regexp()) for t in scanner.terminals if t.name in basic.ignore_types]
+    if None in steps:
+        return None
+    blanks = f"(?:{'|'.join(steps)})*"
+    tokens = "|".join(f"(?P<{t.name}>{t.pattern.to_regexp()})" for t in scanner.terminals
+                      if t.name not in basic.ignore_types)
+    compile_ = scanner.re_.compile
+    newlines = frozenset(basic.newline_types) - frozenset(basic.ignore_types)
+    return compile_(f"{blanks}(?:{tokens})").match, compile_(blanks).match, keywords, newlines
+
+
+def _one_blank(regex: str) -> str | None:
+    """One step of a run of ignored text, such that the run splits into steps one way only
+    (else a failed match would backtrack over every split, exponentially in its length):
+    a character class `[...]+` becomes one character of it, a line comment `#[^\n]*` must
+    reach the line end. None for another shape (the fast path is then not used)."""
+    if re.fullmatch(r"\[[^\]]*\]\+", regex):
+        return regex[:-1]
+    if re.fullmatch(r"[^\\\[\](){}.*+?|^$]\[\^\n\]\*", regex):
+        return regex + r"(?![^\n])"
+    return None
 
 
 def parse(text: str, tables: Tables, reducers: list):
@@ -92,32 +116,31 @@ def parse(text: str, tables: Tables, reducers: list):
     end_state = tables.end
     stack = [tables.start]
     values: list = []
+    chains: dict = {}
     pos, length, line, line_start = 0, len(text), 1, 0
     while True:
-        match, keywords, ignored, newlines = lexers[stack[-1]]
+        match, blanks, keywords, newlines = lexers[stack[-1]]
         found = match(text, pos)
-        while found is not None and found.lastgroup in ignored:  # blanks and comments
-            end = found.end()
-            if found.lastgroup in newlines:
-                count = text.count("\n", pos, end)
+        if found is not None:
+            kind = found.lastgroup
+            start, end = found.span(kind)
+            if start != pos:  # blanks and comments first
+                count = text.count("\n", pos, start)
                 if count:
                     line += count
-                    line_start = text.rfind("\n", pos, end) + 1
-            pos = end
-            found = match(text, pos)
-        if found is not None:
-            kind, value, end = found.lastgroup, found.group(), found.end()
+                    line_start = text.rfind("\n", pos, start) + 1
+            value = text[start:end]
             if kind in keywords:
                 kind = keywords[kind].get(value, kind)
             token = _new_str(Token, value)
-            token.type, token.value, token.start_pos, token.end_pos = kind, value, pos, end
-            token.line, token.column = line, pos - line_start + 1
+            token.type, token.value, token.start_pos, token.end_pos = kind, value, start, end
+            token.line, token.column = line, start - line_start + 1
             if kind in newlines and "\n" in value:
                 line += value.count("\n")
-                line_start = text.rfind("\n", pos, end) + 1
+                line_start = text.rfind("\n", start, end) + 1
             token.end_line, token.end_column = line, end - line_start + 1
             pos = end
-        elif pos == length:
+        elif blanks(text, pos).end() == length:
             kind = "$END"
         else:
             raise Unsupported
@@ -132,8 +155,15 @@ def parse(text: str, tables: Tables, reducers: list):
             size, origin, number = action
             reduce = reducers[number]
             if reduce is None:
-                # `?rule: other` passes its child on: only the state changes.
-                stack[-1] = actions[stack[-2]][origin]
+                # `?rule: other` passes its child on: only the state changes. Such reductions come
+                # in chains (a number becomes a product, a sum, an expression): the state the
+                # chain ends in depends only on the two top states and the lookahead, so it is
+                # followed once and remembered.
+                key = (stack[-2], stack[-1], kind)
+                state = chains.get(key)
+                if state is None:
+                    state = chains[key] = _follow_chain(actions, reducers, stack[-2], origin, kind)
+                stack[-1] = state
             else:
                 if size:
                     children = values[-size:]
@@ -145,3 +175,14 @@ def parse(text: str, tables: Tables, reducers: list):
                 stack.append(actions[stack[-1]][origin])
             if kind == "$END" and stack[-1] == end_state:
                 return values[-1]
+
+
+def _follow_chain(actions, reducers, below: int, origin: str, kind: str) -> int:
+    """The state after a pass-on reduction to `origin` over state `below`, and the pass-on
+    reductions that follow it on lookahead `kind` (each keeps one symbol, so `below` stays)."""
+    while True:
+        state = actions[below][origin]
+        action = actions[state].get(kind)
+        if action is None or action.__class__ is int or reducers[action[2]] is not None:
+            return state
+        origin = action[1]

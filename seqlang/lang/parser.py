@@ -28,7 +28,7 @@ from lark.visitors import _vargs_meta
 
 from . import syntax as ast
 from . import lalr, source_text
-from .diagnostics import SOURCES, SeqlangError, Span, error
+from .diagnostics import SOURCES, SeqlangError, Span, error, span_packer
 from .grammar_cache import cached_lark
 from .syntax_errors import syntax_error, token_span as _token_span
 
@@ -76,7 +76,7 @@ def parse_text(text: str, path: str) -> ast.SourceFile:
 
 
 def _source_file(path: str, text: str, result: "_Reduced") -> ast.SourceFile:
-    return ast.SourceFile(path, text, tuple(result.value.children))
+    return ast.SourceFile(path, text, tuple(result[VALUE].children))
 
 
 @contextlib.contextmanager
@@ -102,20 +102,13 @@ def parse_file(path: str) -> ast.SourceFile:
 
 
 # ---- reduce callbacks: positions, child filtering, nesting --------------------
-class _Reduced:
-    """What a reduction leaves on lark's value stack: the value and the first and last
-    token of the text it covers (None for empty rules), and its nesting depth.
-
-    It also serves as the ``meta`` of ``@v_args(meta=True)`` builder methods."""
-
-    __slots__ = ("value", "first", "last", "depth")
-
-    def __init__(self, value, first, last, depth):
-        self.value, self.first, self.last, self.depth = value, first, last, depth
-
-    @property
-    def empty(self) -> bool:
-        return self.first is None
+# What a reduction leaves on the value stack: [value, first token, last token, depth] —
+# the value, the first and last token of the text it covers (None for empty rules) and
+# its nesting depth. A plain list rather than an object: a generated program makes a
+# dozen per line, and a list display is several times cheaper than calling a class.
+# It also serves as the ``meta`` of ``@v_args(meta=True)`` builder methods.
+_Reduced = list
+VALUE, FIRST, LAST, DEPTH = 0, 1, 2, 3
 
 
 _DROP, _KEEP, _SPLICE = 0, 1, 2
@@ -247,23 +240,23 @@ def _reducer(plan, builder: "_Builder"):
                     values.append(child)
                     continue
                 if not splice:
-                    values.append(child.value)
+                    values.append(child[VALUE])
                 elif values:
-                    values.extend(child.value)
+                    values.extend(child[VALUE])
                 else:  # a left-recursive list (`x*`): grow the child's own list, as lark does
-                    values = child.value
-                if child.depth > depth:
-                    depth = child.depth
+                    values = child[VALUE]
+                if child[DEPTH] > depth:
+                    depth = child[DEPTH]
         if kind == "splice":
-            return _Reduced(values, first, last, depth)
+            return [values, first, last, depth]
         if kind == "expand1" and len(values) == 1:
-            return _Reduced(values[0], first, last, depth)
-        out = _Reduced(None, first, last, depth + deepens)
-        if deepens and out.depth > MAX_NESTING:
+            return [values[0], first, last, depth]
+        out = [None, first, last, depth + deepens]
+        if deepens and out[DEPTH] > MAX_NESTING:
             raise SeqlangError([error(f"this nests more than {MAX_NESTING} levels deep (blocks and "
                                       "operators inside each other)", builder._span(out),
                                       "split it with `let` constants or `block`s")])
-        out.value = method(out, values) if method is not None else Tree(name, values)
+        out[VALUE] = method(out, values) if method is not None else Tree(name, values)
         return out
 
     return reduce
@@ -273,17 +266,17 @@ def _ends(children) -> tuple:
     """The first and last token of the text the children cover (None, None if none)."""
     if children:
         head, tail = children[0], children[-1]
-        first = head if head.__class__ is Token else head.first
-        last = tail if tail.__class__ is Token else tail.last
+        first = head if head.__class__ is Token else head[FIRST]
+        last = tail if tail.__class__ is Token else tail[LAST]
         if first is not None and last is not None:
             return first, last
     first = last = None  # some children are empty rules
     for child in children:
-        first = child if child.__class__ is Token else child.first
+        first = child if child.__class__ is Token else child[FIRST]
         if first is not None:
             break
     for child in reversed(children):
-        last = child if child.__class__ is Token else child.last
+        last = child if child.__class__ is Token else child[LAST]
         if last is not None:
             break
     return first, last
@@ -302,11 +295,11 @@ def _values_with_placeholders(children, steps, nones) -> tuple[list, int]:
             values.append(child)
             continue
         if mode is _SPLICE:
-            values.extend(child.value)
+            values.extend(child[VALUE])
         else:
-            values.append(child.value)
-        if child.depth > depth:
-            depth = child.depth
+            values.append(child[VALUE])
+        if child[DEPTH] > depth:
+            depth = child[DEPTH]
     if nones[-1]:
         values.extend([None] * nones[-1])
     return values, depth
@@ -327,11 +320,6 @@ def _builder_method(builder: "_Builder", name: str):
     return lambda meta, children: bound(children)
 
 
-# Span is a named tuple: its generated __new__ is one more Python call per span, and a
-# generated program makes a dozen spans per line.
-_new_span = tuple.__new__
-
-
 # ---- the Transformer: builds nodes, checks nothing --------------------------
 class _Builder(Transformer):
     """Builds :mod:`syntax` nodes, one method per grammar rule (named after the rule or
@@ -342,18 +330,18 @@ class _Builder(Transformer):
     def __init__(self, path: str):
         super().__init__()
         self.path = path
+        self._pack = span_packer(path)  # a dozen spans per line of a generated program
 
     def _span(self, meta: _Reduced) -> Span:
-        first, last = meta.first, meta.last
+        first, last = meta[FIRST], meta[LAST]
         if first is None:
             return Span(self.path, 1, 1, 1, 1)
-        return _new_span(Span, (self.path, first.line, first.column, last.end_line, last.end_column,
-                                first.start_pos, last.end_pos))
+        return self._pack(first.line, first.column, last.end_line, last.end_column, first.start_pos, last.end_pos)
 
     def _ident(self, token: Token) -> ast.Ident:
         # Interned: a long program repeats a few names many times, each copy ~50 bytes.
-        return ast.Ident(sys.intern(str(token)), _new_span(Span, (
-            self.path, token.line, token.column, token.end_line, token.end_column, token.start_pos, token.end_pos)))
+        return ast.Ident(sys.intern(str(token)), self._pack(
+            token.line, token.column, token.end_line, token.end_column, token.start_pos, token.end_pos))
 
     # expressions
     @v_args(meta=True)
@@ -371,7 +359,7 @@ class _Builder(Transformer):
     @v_args(meta=True)
     def with_unit(self, meta, children):
         operand, unit = children
-        return ast.WithUnit(operand, sys.intern(str(unit)), self._span(meta), _token_span(unit, self.path))
+        return ast.WithUnit(operand, sys.intern(str(unit)), self._span(meta))
 
     def _binop(op):
         @v_args(meta=True)
@@ -426,7 +414,7 @@ class _Builder(Transformer):
 
     @v_args(meta=True)
     def prop(self, meta, children):
-        return ast.Prop(self._ident(children[0]), children[1], self._span(meta))
+        return ast.Prop(sys.intern(str(children[0])), children[1], self._span(meta))
 
     setting = prop
 

@@ -15,6 +15,11 @@ from .diagnostics import Span
 node = dataclass(frozen=True, slots=True)
 
 
+def _leading(span: Span, width: int) -> Span:
+    """The first `width` characters of `span` (a token on its first line)."""
+    return Span(span.file, span.line, span.column, span.line, span.column + width, span.start, span.start + width)
+
+
 @node
 class Ident:
     """A name as written, with where it was written."""
@@ -55,7 +60,12 @@ class WithUnit:
     operand: "Expr"
     unit: str
     span: Span
-    unit_span: Span
+
+    @property
+    def unit_span(self) -> Span:
+        """Where the unit is written: the last token, on the span's last line (derived, not stored)."""
+        s, width = self.span, len(self.unit)
+        return Span(s.file, s.end_line, s.end_column - width, s.end_line, s.end_column, s.end - width, s.end)
 
 
 @node
@@ -151,11 +161,20 @@ Expr = Union[Number, UnitRef, NameRef, WithUnit, BinOp, Neg, Call, TupleExpr,
 
 @node
 class Prop:
-    """``key value`` inside braces or after a statement."""
+    """``key value`` inside braces or after a statement.
 
-    key: Ident
+    The key's own span is not stored: the key is the property's first token, a name on
+    one line, so its span is the start of the property's (a generated program has a
+    few properties per line, and two spans per property was a fifth of its tree)."""
+
+    key_name: str
     value: Expr
     span: Span
+
+    @property
+    def key(self) -> Ident:
+        """The key as written, with its span."""
+        return Ident(self.key_name, _leading(self.span, len(self.key_name)))
 
 
 # ---- the rig --------------------------------------------------------------

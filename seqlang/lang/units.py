@@ -76,7 +76,7 @@ def kind_name(dim: tuple[int, ...]) -> str:
     return "a quantity in " + " ".join(parts)
 
 
-@dataclass(frozen=True)
+@dataclass(frozen=True, slots=True)
 class Quantity:
     """A value in SI units with its dimension (exponents over :data:`BASES`)."""
 

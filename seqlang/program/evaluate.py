@@ -244,6 +244,11 @@ def _name(expr: ast.NameRef, scope: Scope) -> object:
 
 def _with_unit(expr: ast.WithUnit, scope: Scope) -> object:
     factor, dim = units.UNITS[expr.unit]
+    number = expr.operand
+    if number.__class__ is ast.Number:  # `12 deg`, most values written: the same product, directly
+        value = number.value * factor
+        if math.isfinite(number.value) and math.isfinite(value):
+            return Quantity(value, dim)
     operand = evaluate_any(expr.operand, scope)
     if isinstance(operand, tuple):
         return tuple(_in_range(q * Quantity(factor, dim), f"this value in {expr.unit}", expr.span)

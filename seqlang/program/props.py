@@ -8,7 +8,7 @@ from __future__ import annotations
 
 import math
 from dataclasses import dataclass
-from typing import Callable
+from typing import Callable, Mapping
 
 from ..lang import syntax as ast
 from ..lang import units
@@ -32,9 +32,9 @@ def read_props(props: tuple[ast.Prop, ...], schema: dict[str, Key], scope: Scope
                owner: str, owner_span: Span, diags: list[Diagnostic]) -> dict[str, object]:
     """Values for every schema key (defaults filled in); problems go to `diags`."""
     values: dict[str, object] = {}
-    seen: dict[str, Span] = {}
+    seen: dict[str, ast.Prop] = {}
     for prop in props:
-        key = prop.key.name
+        key = prop.key_name
         if key not in schema:
             diags.append(error(f"unknown property `{key}` for {owner}", prop.key.span,
                                did_you_mean(key, schema) or f"allowed: {', '.join(sorted(schema))}"))
@@ -42,7 +42,7 @@ def read_props(props: tuple[ast.Prop, ...], schema: dict[str, Key], scope: Scope
         if key in seen:
             diags.append(error(f"`{key}` is given twice", prop.key.span))
             continue
-        seen[key] = prop.key.span
+        seen[key] = prop
         try:
             values[key] = schema[key].reader(prop.value, scope)
         except EvalError as exc:
@@ -55,8 +55,26 @@ def read_props(props: tuple[ast.Prop, ...], schema: dict[str, Key], scope: Scope
                 diags.append(error(f"{owner} needs `{key}`", owner_span,
                                    f"add `{key} ...` ({spec.doc})" if spec.doc else None))
             values[key] = spec.default
-    values["__spans__"] = seen
+    values["__spans__"] = KeySpans(seen)
     return values
+
+
+class KeySpans(Mapping):
+    """Key → the span where it is written, built only when a message asks for it."""
+
+    __slots__ = ("_props",)
+
+    def __init__(self, props: dict[str, ast.Prop]):
+        self._props = props
+
+    def __getitem__(self, key: str) -> Span:
+        return self._props[key].key.span
+
+    def __iter__(self):
+        return iter(self._props)
+
+    def __len__(self) -> int:
+        return len(self._props)
 
 
 def _naming_key(diagnostic: Diagnostic, key: str) -> Diagnostic:

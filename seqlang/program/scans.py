@@ -251,7 +251,7 @@ def override_rig(rig: ast.RigDef, space: ScanSpace | None, diags: list[Diagnosti
 def _with_prop(decl, key: str, axis: ScanAxis):
     value = ast.NameRef(axis.name, axis.span)
     props = [p for p in decl.props if p.key.name != key]
-    props.append(ast.Prop(ast.Ident(key, axis.span), value, axis.span))
+    props.append(ast.Prop(key, value, axis.span))
     return replace(decl, props=tuple(props))
 
 

@@ -391,11 +391,13 @@ class SequenceResolver(FeedForwardMixin):
     def _check_limits(self, drive: Drive, rabi: float, v: dict, duration: float, shape: Shape,
                       stmt: ast.PulseStmt) -> None:
         spans = v["__spans__"]
-        where = spans.get("rabi") or spans.get("area") or spans.get("duration") or stmt.span
+
+        def where() -> Span:  # spans are built only for a message
+            return spans.get("rabi") or spans.get("area") or spans.get("duration") or stmt.span
         if rabi > drive.max_rabi_hz * (1 + REL_TOL):
             self.diags.append(error(
                 f"Rabi frequency {units.format_quantity(rabi, units.FREQUENCY)} is above the maximum "
-                f"{units.format_quantity(drive.max_rabi_hz, units.FREQUENCY)} of drive `{drive.name}`", where,
+                f"{units.format_quantity(drive.max_rabi_hz, units.FREQUENCY)} of drive `{drive.name}`", where(),
                 "lower `rabi` or lengthen the pulse"))
         low, high = drive.detuning_range_hz
         if not low <= v["detuning"] <= high:
@@ -407,7 +409,7 @@ class SequenceResolver(FeedForwardMixin):
             self.diags.append(error(
                 f"a {units.format_quantity(duration, units.DURATION)} pulse is shorter than the rise time "
                 f"{units.format_quantity(drive.rise_s, units.DURATION)} of drive `{drive.name}`",
-                spans.get("duration", where)))
+                spans.get("duration") or where()))
         elif duration < envelopes.minimum_duration(shape):
             self.diags.append(error(f"a {units.format_quantity(duration, units.DURATION)} pulse is too short "
                                     "for its two ramps", spans.get("shape", stmt.span)))

@@ -80,8 +80,11 @@ def ready_time(program: Program, image: Event) -> float:
 
 def check_decisions(program: Program, timeline: Timeline) -> list[Diagnostic]:
     """Every conditioned event issued before its record is ready, once per statement."""
+    conditioned = timeline.conditioned()
+    if not conditioned:
+        return []
     out, seen, writers = [], set(), RecordWriters(timeline)
-    for event in timeline.conditioned():
+    for event in conditioned:
         image = writers.of(event)
         if image is None or event.span in seen:
             continue

@@ -33,6 +33,9 @@ def lower(program: Program) -> Timeline:
     return Timeline(tuple(events), total, program.rig.tick_s)
 
 
+_TIMED = frozenset((PulseOp, WaitOp, ImageOp, PortOp, MoveOp))  # the operations that state their duration
+
+
 def duration_of(op) -> float:
     """How long an operation lasts (a together lasts as long as its longest part)."""
     if isinstance(op, (PulseOp, WaitOp, ImageOp, PortOp, MoveOp)):
@@ -61,6 +64,8 @@ class _Placer:
         self._counts: dict[int, tuple[int, bool]] = {}
 
     def duration(self, op) -> float:
+        if type(op) in _TIMED:
+            return op.duration_s  # carried by the operation: nothing to remember
         key = id(op)
         if key not in self._durations:
             self._durations[key] = self._duration(op)

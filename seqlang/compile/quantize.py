@@ -124,7 +124,8 @@ def _needs_stretch(drive: Drive, event: Event, start: int, end: int, tick: float
     """True when keeping the area of a pulse over its rounded duration needs more than the drive's maximum."""
     if end <= start:
         return False
-    return _rabi_for_area(largest_area(event), event.shape, (end - start) * tick) > drive.max_rabi_hz * (1 + 1e-12)
+    area = event.area_rad if event.decision is None else largest_area(event)  # most pulses: no call
+    return _rabi_for_area(area, event.shape, (end - start) * tick) > drive.max_rabi_hz * (1 + 1e-12)
 
 
 def _pulse(drive: Drive, event: Event, start: int, end: int, tick: float) -> tuple[Event, float]:

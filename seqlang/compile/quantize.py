@@ -51,7 +51,7 @@ def quantize(program: Program, timeline: Timeline) -> tuple[Timeline, QuantizeRe
     rounded, stretch_ends = _rounded(drives, timeline.events, tick)
     # The end of the sequence is rounded like every event end, so a last pulse ending on it ends the total.
     total = (round(timeline.duration_s / tick) + len(stretch_ends)) * tick
-    events, errors, detunings, diags, worst_time = [], [], [], [], 0.0
+    events, errors, detunings, diags, worst_time, rescaled = [], [], [], [], 0.0, {}
     for event, (start, end, grow) in zip(timeline.events, rounded):
         # Rounding and the deliberate stretch shifts are reported apart: they have different causes.
         moved = max(abs(start * tick - event.start_s), abs(end * tick - (event.start_s + event.duration_s)))
@@ -65,7 +65,7 @@ def quantize(program: Program, timeline: Timeline) -> tuple[Timeline, QuantizeRe
             continue
         if event.kind == PULSE:
             drive = drives[event.drive]
-            played, error_rad = _pulse(drive, event, start, end, tick)
+            played, error_rad = _pulse(drive, event, start, end, tick, rescaled)
             errors.append((event.index, error_rad))
             if played.detuning_hz != event.detuning_hz:
                 detunings.append((event.index, played.detuning_hz - event.detuning_hz))
@@ -128,13 +128,19 @@ def _needs_stretch(drive: Drive, event: Event, start: int, end: int, tick: float
     return _rabi_for_area(area, event.shape, (end - start) * tick) > drive.max_rabi_hz * (1 + 1e-12)
 
 
-def _pulse(drive: Drive, event: Event, start: int, end: int, tick: float) -> tuple[Event, float]:
-    """Rescale amplitude and detuning so that the pulse keeps its rotation over its played ticks."""
-    duration = (end - start) * tick
-    factor = envelopes.area_factor(event.shape, duration)
-    wanted = event.area_rad / (2 * math.pi * factor)  # _rabi_for_area, with the factor at hand
-    played = _amplitude_rounded(wanted, drive)
-    area = 2 * math.pi * played * factor  # envelopes.pulse_area, likewise
+def _pulse(drive: Drive, event: Event, start: int, end: int, tick: float, rescaled: dict) -> tuple[Event, float]:
+    """Rescale amplitude and detuning so that the pulse keeps its rotation over its played ticks.
+
+    `rescaled` remembers the played numbers per drive, shape, area and length in ticks: a
+    statement repeated, or written again, shares them (one float each, not one per pulse).
+    """
+    key = (drive.name, event.shape, event.area_rad, end - start)
+    numbers = rescaled.get(key) if event.area_rad else None  # a zero area keeps its sign: not shared
+    if numbers is None:
+        numbers = _rescaled(drive, event, (end - start) * tick)
+        if event.area_rad:
+            rescaled[key] = numbers
+    duration, wanted, played, area, error_rad = numbers
     # Ω·T and Δ·T both set a detuned pulse's rotation: Δ follows Ω's scale factor (not its DAC rounding).
     # A zero detuning stays the same zero (no new float per pulse).
     detuning = event.detuning_hz * (wanted / event.rabi_hz) if event.rabi_hz > 0 and event.detuning_hz \
@@ -142,7 +148,17 @@ def _pulse(drive: Drive, event: Event, start: int, end: int, tick: float) -> tup
     quantized = _played(event, start * tick, duration, played, area, detuning)
     if event.decision is not None:
         quantized = quantize_variants(drive, quantized, _amplitude_rounded)
-    return quantized, area - event.area_rad
+    return quantized, error_rad
+
+
+def _rescaled(drive: Drive, event: Event, duration: float) -> tuple[float, ...]:
+    """(duration, Rabi frequency for the area, the one the DAC plays, the area it plays, and
+    that area's error)."""
+    factor = envelopes.area_factor(event.shape, duration)
+    wanted = event.area_rad / (2 * math.pi * factor)  # _rabi_for_area, with the factor at hand
+    played = _amplitude_rounded(wanted, drive)
+    area = 2 * math.pi * played * factor  # envelopes.pulse_area, likewise
+    return duration, wanted, played, area, area - event.area_rad
 
 
 def _detuning_in_range(drive: Drive, written: Event, played: Event) -> list[Diagnostic]:

@@ -6,9 +6,8 @@ from __future__ import annotations
 
 import bisect
 import math
-from collections import defaultdict
 import operator
-from operator import attrgetter
+from collections import defaultdict
 
 from ..lang import units
 from ..lang.diagnostics import Diagnostic, error, warning
@@ -33,7 +32,7 @@ def check_timeline(program: Program, timeline: Timeline) -> list[Diagnostic]:
             + _rydberg_pulses_in_trap_light(program, timeline) + _one_transition_two_drives(program, ordered))
 
 
-_START_ORDER = attrgetter("start_s", "index")  # C-level key: cheaper than a lambda per event
+_START_ORDER = operator.attrgetter("start_s", "index")  # C-level key: cheaper than a lambda per event
 
 
 def _transition(program: Program, pulse: Event) -> tuple[str, str]:
@@ -91,7 +90,7 @@ def _rydberg_pulses_in_trap_light(program: Program, timeline: Timeline) -> list[
     return out
 
 
-def _overlaps(events: tuple[Event, ...], ordered) -> list[Diagnostic]:
+def _overlaps(events: tuple[Event, ...], ordered: tuple[Event, ...] | list[Event]) -> list[Diagnostic]:
     """Overlaps on each drive and port; `ordered` holds the events sorted by (start, index).
 
     One walk feeds every lane (each event is read once: at 10⁵ events, reading them is

@@ -220,7 +220,7 @@ def played_detuning(drive, detuning_hz: float) -> float:
 def _port_events(program: Program, event: Event, tick: float, latency: dict[str, int], shift: int,
                  source: _SourceLines, out: list[PortEvent]) -> None:
     """Append the entries of a pulse (and its gate window), an imaging or a port action."""
-    start, length = round(event.start_s / tick) + shift, round(event.duration_s / tick)
+    start, length = round(event.start_s / tick) + shift, round(event.duration_s / tick)  # _ticks, inlined
     where = source[event.span]
     if event.kind == PULSE:
         drive = program.rig.drives[event.drive]

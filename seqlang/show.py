@@ -157,11 +157,11 @@ def pair_table(program: Program) -> str:
 
 def decision_summary(checked: Checked) -> str:
     """The decision points: per conditioned event its record, keys, and when the key is needed."""
-    from .compile.decisions import issue_time, ready_time, variant_of, writer_of
+    from .compile.decisions import RecordWriters, issue_time, ready_time, variant_of
     timeline, program = checked.quantized, checked.program
-    lines = []
+    lines, writers = [], RecordWriters(timeline)
     for e in timeline.conditioned():
-        sel, image = e.decision.selection, writer_of(timeline, e)
+        sel, image = e.decision.selection, writers.of(e)
         plays = [k for k in sel.keys if variant_of(e, k) is not None]
         slack = issue_time(program, e) - ready_time(program, image) if image is not None else 0.0
         lines.append(f"  #{e.index} {e.kind} {e.drive or e.port} (line {e.span.line}) looked up by "

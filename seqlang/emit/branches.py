@@ -12,7 +12,7 @@ import csv
 import io
 
 from .. import __version__
-from ..compile.decisions import ready_time, variant_of, writer_of
+from ..compile.decisions import RecordWriters, ready_time, variant_of
 from ..compile.hardware import played_detuning
 from ..compile.pipeline import Checked
 from ..compile.timeline import PULSE
@@ -28,10 +28,10 @@ def branch_rows(checked: Checked) -> list[dict]:
     issue: dict[int, int] = {}
     for entry in plan.rows():
         issue[entry.event] = min(issue.get(entry.event, entry.tick), entry.tick)
-    rows = []
+    rows, writers = [], RecordWriters(plan.timeline)  # one index of the imagings, not a scan per event
     for event in plan.timeline.conditioned():
         selection = event.decision.selection
-        image = writer_of(plan.timeline, event)
+        image = writers.of(event)
         ready = round(ready_time(program, image) / plan.tick_s) if image is not None else 0
         for key in selection.keys:
             variant = variant_of(event, key)

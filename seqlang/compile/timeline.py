@@ -26,7 +26,7 @@ def direct_init(cls):
     """
     fields = dataclasses.fields(cls)
     if hasattr(cls, "__post_init__") or any(f.default_factory is not dataclasses.MISSING or f.kw_only
-                                             for f in fields):
+                                             or not f.init for f in fields):
         raise TypeError(f"{cls.__name__}: direct_init takes plain positional fields only")
     namespace, params, lines = {}, [], []
     for f in fields:

@@ -8,6 +8,7 @@ from __future__ import annotations
 import difflib
 import re
 import struct
+import threading
 from dataclasses import dataclass, field
 from typing import Iterable
 
@@ -75,14 +76,19 @@ _LARGEST = 2**32 - 1
 _new_bytes = bytes.__new__
 _FILES: list[str] = []
 _FILE_INDEX: dict[str, int] = {}
+_FILES_LOCK = threading.Lock()
 
 
 def file_index(file: str) -> int:
-    """The index of a file name in this process's list (added on first use)."""
+    """The index of a file name in this process's list (added on first use; under a lock, so
+    that two threads of the editor server never give one file two indices)."""
     index = _FILE_INDEX.get(file)
     if index is None:
-        index = _FILE_INDEX[file] = len(_FILES)
-        _FILES.append(file)
+        with _FILES_LOCK:
+            index = _FILE_INDEX.get(file)
+            if index is None:
+                _FILES.append(file)
+                index = _FILE_INDEX[file] = len(_FILES) - 1
     return index
 
 

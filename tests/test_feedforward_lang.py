@@ -70,6 +70,18 @@ def test_record_value_sets_one_variant_per_key(tmp_path):
     assert event.decision.enabled == (True, True, True)
 
 
+def test_a_record_constant_may_redefine_a_name_and_reads_its_earlier_value(tmp_path):
+    """`let est = 0.25` then `let est = est + asin(...)`: the second reads the first (names bound
+    before a `let`, as everywhere), once per key; it once looped for ever."""
+    seq = _load(tmp_path, """  image k -> mid
+  wait 60 us
+  let est = 0.25
+  let est = est + asin(2 * fraction(mid[h1, h2]) - 1)
+  pulse mw_rb area pi/2 phase 90 deg - est""")
+    phases = [v.phase_rad for v in seq.played.conditioned()[0].decision.variants]
+    assert phases == pytest.approx([math.pi / 2 - 0.25 - math.asin(2 * k / 2 - 1) for k in range(3)], abs=1e-12)
+
+
 def test_area_from_a_count_shares_one_duration_and_disables_key_zero(tmp_path):
     seq = _load(tmp_path, """  image k -> mid
   wait 60 us

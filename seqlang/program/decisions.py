@@ -62,6 +62,7 @@ def record_calls(expr, scope: Scope) -> list[tuple[ast.Call, Scope]]:
     program passes here, and most of its nodes are numbers."""
     out: list[tuple[ast.Call, Scope]] = []
     stack = [(expr, scope)]
+    followed: set[int] = set()  # each `let` once: one may read a name it is itself bound to
     while stack:
         expr, scope = stack.pop()
         kind = expr.__class__
@@ -80,7 +81,8 @@ def record_calls(expr, scope: Scope) -> list[tuple[ast.Call, Scope]]:
             stack += ((item, scope) for item in reversed(expr.items))
         elif kind is ast.NameRef:
             value = scope.lookup(expr.name)
-            if isinstance(value, Deferred):
+            if isinstance(value, Deferred) and id(value) not in followed:
+                followed.add(id(value))
                 stack.append((value.expr, value.scope))
     return out
 
@@ -222,7 +224,10 @@ class FeedForwardMixin:
     def _deferred_let(self, stmt: ast.LetStmt, scope: Scope) -> bool:
         if not record_calls(stmt.value, scope):
             return False
-        scope.values[stmt.name.name] = Deferred(stmt.value, scope)
+        # The value reads the names bound before it (`let x = x + fraction(...)` reads the earlier
+        # `x`), so it keeps a copy of this scope's bindings as they are now, not the scope itself.
+        before = Scope(dict(scope.values), scope.parent, scope.pinned)
+        scope.values[stmt.name.name] = Deferred(stmt.value, before)
         return True
 
     # ---- when ---------------------------------------------------------------------

@@ -155,3 +155,17 @@ def test_scanned_name_in_wait_repeat_and_block_bodies(tmp_path):
     pulse = one.timeline.events[0].duration_s
     assert one.timeline.duration_s == pytest.approx(pulse + 2e-6)
     assert three.timeline.duration_s == pytest.approx(3 * (pulse + 2e-6))
+
+
+def test_a_scanned_rig_value_points_at_its_key():
+    """The property a scan puts in place of `mw_cs.rabi` has its key span on `rabi` of the scan line."""
+    from seqlang.lang import syntax as ast
+    from seqlang.lang.parser import parse_text
+    from seqlang.program.scans import ScanAxis, _with_prop
+    text = "scan mw_cs.rabi = [10 kHz, 20 kHz]\n"
+    decl = parse_text(text, "s.seq").items[0]
+    axis = ScanAxis("mw_cs.rabi", (1e4, 2e4), (0, 0, -1, 0, 0), "kHz", decl.span, "listed", decl.target.span)
+    owner = ast.DriveDecl(ast.Ident("mw_cs", decl.span), ast.Ident("microwave", decl.span),
+                          ast.Ident("cs", decl.span), (), decl.span)
+    (prop,) = _with_prop(owner, "rabi", axis).props
+    assert text[prop.key.span.start:prop.key.span.end] == "rabi" and prop.key.span.column == 12

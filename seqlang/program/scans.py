@@ -36,6 +36,7 @@ class ScanAxis:
     unit: str
     span: Span
     spacing: str = "listed"  # "linear" or "log" for ranges
+    target_span: Span | None = None  # where the scanned name (or `owner.key`) is written
 
     @property
     def factor(self) -> float:
@@ -131,7 +132,7 @@ def _axis(decl: ast.ScanDecl, diags: list[Diagnostic]) -> ScanAxis | None:
     spacing = "listed" if isinstance(decl.values, ast.ScanList) else \
         (decl.values.spacing.name if decl.values.spacing else "linear")
     return ScanAxis(decl.target.name, tuple(float(q.value) for q in quantities), dim,
-                    _display_unit(first, dim), decl.span, spacing)
+                    _display_unit(first, dim), decl.span, spacing, decl.target.span)
 
 
 def _items(values) -> list[ast.Expr]:
@@ -250,9 +251,18 @@ def override_rig(rig: ast.RigDef, space: ScanSpace | None, diags: list[Diagnosti
 
 def _with_prop(decl, key: str, axis: ScanAxis):
     value = ast.NameRef(axis.name, axis.span)
-    props = [p for p in decl.props if p.key.name != key]
-    props.append(ast.Prop(key, value, axis.span))
+    props = [p for p in decl.props if p.key_name != key]
+    props.append(ast.Prop(key, value, _key_part(axis.target_span or axis.span, key)))
     return replace(decl, props=tuple(props))
+
+
+def _key_part(span: Span, key: str) -> Span:
+    """The span of `key` at the end of a scanned `owner.key` (a property's key span is the start
+    of the property's own)."""
+    if span.end_line != span.line or span.end - span.start < len(key):
+        return span
+    shift = span.end - span.start - len(key)
+    return span._replace(column=span.column + shift, start=span.start + shift)
 
 
 # ---- free parameters (for the optimiser) ----------------------------------------

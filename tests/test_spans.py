@@ -20,6 +20,14 @@ def test_fields_read_back_and_compare_by_value():
     assert span.label() == "a.seq:12:3" and repr(span).startswith("Span(file='a.seq', line=12")
 
 
+def test_spans_order_by_position_not_by_their_bytes():
+    """Line 256 after line 1 (the packed bytes are little-endian: 256 would come first)."""
+    assert sorted([Span("a.seq", 256, 1, 256, 2), Span("a.seq", 1, 9, 1, 10)])[0].line == 1
+    late = Span("zz-order.seq", 1, 1, 1, 1)  # its file registered first: the smaller index
+    early = Span("aa-order.seq", 1, 1, 1, 1)
+    assert early < late and not late < early
+
+
 def test_numbers_beyond_32_bits_are_clamped_not_raised():
     span = Span("a.seq", -1, 2**40, 1, 1)
     assert (span.line, span.column, span.start, span.end) == (0, 2**32 - 1, 0, 0)

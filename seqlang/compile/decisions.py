@@ -31,11 +31,6 @@ def exclusive(a: Event, b: Event) -> bool:
     return not any(x and y for x, y in zip(a.decision.enabled, b.decision.enabled))
 
 
-def writer_of(timeline: Timeline, event: Event) -> Event | None:
-    """The imaging that writes the record a conditioned event depends on."""
-    return RecordWriters(timeline).of(event)
-
-
 class RecordWriters:
     """The imagings of each record, found by time: for many conditioned events, one pass
     over the timeline instead of one per event."""

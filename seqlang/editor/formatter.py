@@ -240,7 +240,7 @@ def _kwtuple(items, text: str) -> str:
 
 
 def _prop(prop: ast.Prop, text: str) -> str:
-    return f"{prop.key.name} {expression(prop.value, text)}"
+    return f"{prop.key_name} {expression(prop.value, text)}"
 
 
 def _names(idents, text: str = "") -> str:

@@ -164,7 +164,7 @@ def _replace(text: str, path: str, kind: str, owner: str, key: str, value: str) 
     if owner not in decls:
         raise ValueError(f"no {kind} `{owner}` in {path}")
     decl = decls[owner]
-    prop = next((p for p in decl.props if p.key.name == key), None)
+    prop = next((p for p in decl.props if p.key_name == key), None)
     if prop is None:
         return _insert(text, decl, f"{key} {value}"), None
     start, end = prop.value.span.start, prop.value.span.end

@@ -26,8 +26,9 @@ class Span(bytes):
     by those attribute names. Stored packed, seven unsigned 32-bit numbers (the file as
     an index into this process's list of file names) in 28 bytes: a generated program
     has millions of spans, and a tuple of seven fields with its own integers took
-    twice the memory. Immutable, hashable, compares by value; it pickles by its fields,
-    so another process maps the file name to its own index."""
+    twice the memory. Immutable and hashable; equal when every field is; ordered by
+    (file, line, column, ...) as a tuple of its fields would be. It pickles by its
+    fields, so another process maps the file name to its own index."""
 
     __slots__ = ()
 
@@ -65,6 +66,19 @@ class Span(bytes):
 
     __str__ = __repr__
 
+    # Ordered by the fields, not by the packed bytes (whose order would follow file indices).
+    def __lt__(self, other: "Span") -> bool:
+        return self.fields() < other.fields()
+
+    def __le__(self, other: "Span") -> bool:
+        return self.fields() <= other.fields()
+
+    def __gt__(self, other: "Span") -> bool:
+        return self.fields() > other.fields()
+
+    def __ge__(self, other: "Span") -> bool:
+        return self.fields() >= other.fields()
+
     def __reduce__(self):
         return Span, self.fields()
 
@@ -93,8 +107,9 @@ def file_index(file: str) -> int:
 
 
 def span_packer(file: str):
-    """A fast builder of spans in `file` from the six numbers (for the parser: no checks,
-    the numbers are a source text's lines, columns and offsets)."""
+    """A fast builder of spans in `file` from the six numbers (for the parser: no clamping,
+    the numbers are a source text's lines, columns and offsets, within 32 bits since a
+    source file holds at most 64 MiB)."""
     index, pack = file_index(file), _PACKED.pack
     return lambda line, column, end_line, end_column, start, end: _new_bytes(
         Span, pack(index, line, column, end_line, end_column, start, end))

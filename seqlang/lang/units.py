@@ -7,7 +7,6 @@ numbers in radians, as in SI: ``pi``, ``rad`` and ``deg`` are factors, so that
 from __future__ import annotations
 
 import functools
-
 import math
 from dataclasses import dataclass
 

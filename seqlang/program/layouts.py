@@ -140,7 +140,7 @@ def _species(refs, pattern, decl, rig: Rig, diags: list[Diagnostic]) -> tuple[st
         if ref.name not in rig.species:
             diags.append(error(f"unknown species `{ref.name}`", ref.span, did_you_mean(ref.name, rig.species)))
             return None
-    where = next((q.key.span for q in decl.props if q.key.name == "species"), decl.span)
+    where = next((q.key.span for q in decl.props if q.key_name == "species"), decl.span)
     if len(names) == 2 and pattern in (None, "uniform"):
         diags.append(error("two species need a `pattern` saying how they interleave", where,
                            "add `pattern checkerboard` (or rows, columns, sublattice)"))

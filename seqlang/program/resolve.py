@@ -379,7 +379,7 @@ def _expect_props(stmt: ast.ExpectStmt, state, count: int, scope: Scope, diags) 
     ``correlate (XXX, ZZZ)`` (Pauli strings of I, X, Y, Z, one letter per named site)."""
     phase, strings, ok = 0.0, [], True
     for prop in stmt.props:
-        key = prop.key.name
+        key = prop.key_name
         if key == "phase" and state == "ghz":
             try:
                 phase = expect_kind(evaluate(prop.value, scope), units.ANGLE, prop.value.span)

@@ -181,7 +181,7 @@ def _resonant_pairs(decls: dict, species_map: dict, diags: list[Diagnostic]) -> 
     """Species pairs declared `resonant_with` each other (order-free)."""
     out = set()
     for name, decl in decls.items():
-        for prop in (q for q in decl.props if q.key.name == "resonant_with"):
+        for prop in (q for q in decl.props if q.key_name == "resonant_with"):
             other = prop.value.name if isinstance(prop.value, ast.NameRef) else None
             if other not in species_map:
                 diags.append(error("expected the name of a species of this rig", prop.value.span,

@@ -11,8 +11,13 @@ from dataclasses import dataclass
 from typing import Union
 
 from .diagnostics import Span
+from .records import direct_init
 
-node = dataclass(frozen=True, slots=True)
+
+
+def node(cls):
+    """A syntax node: a frozen slotted dataclass with a direct ``__init__`` (records.direct_init)."""
+    return direct_init(dataclass(frozen=True, slots=True)(cls))
 
 
 def _leading(span: Span, width: int) -> Span:

@@ -125,7 +125,7 @@ def _verdict(results: dict, sizes: tuple[int, int]) -> str:
 
 def main() -> int:
     global REPEAT
-    REPEAT = int(sys.argv[sys.argv.index("--repeat") + 1]) if "--repeat" in sys.argv else 3
+    REPEAT = int(sys.argv[sys.argv.index("--repeat") + 1]) if "--repeat" in sys.argv else REPEAT
     sizes = (1_000, 10_000) if "--quick" in sys.argv else (10_000, 100_000)
     baseline = sys.argv[sys.argv.index("--baseline") + 1] if "--baseline" in sys.argv else None
     workdir = tempfile.mkdtemp(prefix="seqlang-bench-")

@@ -183,11 +183,23 @@ class _Scene:
     def __init__(self, program: Program, timeline: Timeline):
         self.program, self.timeline = program, timeline
         self.paths = motion.SitePaths(program, timeline)
-        self.moves = motion.moves(timeline)
         self.fields = [e for e in timeline.events if e.kind == FIELD]
+        self._pulses: dict[str, list[Event]] = {}
+        for pulse in _rydberg_pulses(program, timeline):  # in start order
+            for name in dict.fromkeys(pulse.targets):
+                self._pulses.setdefault(name, []).append(pulse)
 
     def field(self, t: float) -> float:
         return _field_at(self.fields, t)
+
+    def rydberg_pulses_of(self, a: str, b: str) -> list[Event]:
+        """The Rydberg pulses reaching either site, in start order (one reaching both: once)."""
+        either = {id(p): p for name in (a, b) for p in self._pulses.get(name, ())}
+        return sorted(either.values(), key=lambda p: (p.start_s, p.index))
+
+    def moves_of(self, a: str, b: str) -> list[Event]:
+        """The moves of either site (a move of both: once)."""
+        return list({id(m): m for name in (a, b) for m in self.paths.moves_of(name)}.values())
 
 
 def _geometry(scene: _Scene, t: float, a: str, b: str):
@@ -218,17 +230,16 @@ def _pair_geometries(program: Program, timeline: Timeline, pairs=None) -> dict[t
     reaching it, with the pulse; and those at the end of each move of either site between
     its first and last Rydberg pulse (an atom may wait in |r⟩ there), with the move."""
     out: dict[tuple[str, str], list] = {}
-    pulses = _rydberg_pulses(program, timeline)
     scene = _Scene(program, timeline)
     for a, b in rydberg_pairs(program, timeline):
         if pairs is not None and (a, b) not in pairs:
             continue
         found, seen = out.setdefault((a, b), []), set()
-        reaching = [p for p in pulses if a in p.targets or b in p.targets]
+        reaching = scene.rydberg_pulses_of(a, b)
         if not reaching:
             continue
         first, last = reaching[0].start_s, max(p.end_s for p in reaching)
-        between = [m for m in scene.moves if (a in m.targets or b in m.targets) and first < m.end_s < last]
+        between = [m for m in scene.moves_of(a, b) if first < m.end_s < last]
         for event, t in [(p, p.start_s) for p in reaching] + [(m, m.end_s) for m in between]:
             geometry = _geometry(scene, t, a, b)
             if geometry not in seen:
@@ -263,15 +274,14 @@ def pair_shift_track(program: Program, timeline: Timeline, pairs=None) -> dict[t
     >>> # at the 8 steps of the move, and at its end (V at 4 µm through the wait)
     """
     out: dict[tuple[str, str], tuple] = {}
-    pulses = _rydberg_pulses(program, timeline)
     shifts: dict[tuple, object] = {}
     scene = _Scene(program, timeline)
     for a, b in rydberg_pairs(program, timeline):
         if pairs is not None and (a, b) not in pairs:
             continue
-        first = next((p.start_s for p in pulses if a in p.targets or b in p.targets), None)
-        if first is not None:
-            out[(a, b)] = _track(scene, a, b, first, shifts)
+        reaching = scene.rydberg_pulses_of(a, b)
+        if reaching:
+            out[(a, b)] = _track(scene, a, b, reaching[0].start_s, shifts)
     return out
 
 
@@ -294,8 +304,7 @@ def _change_times(scene: _Scene, a: str, b: str, first: float) -> list[float]:
     and end of each move of either site, and the edges of every field stretch."""
     timeline = scene.timeline
     tick, times = timeline.tick_s, [first]
-    either = {id(m): m for name in (a, b) for m in scene.paths.moves_of(name)}  # a move of both: once
-    for move in either.values():
+    for move in scene.moves_of(a, b):
         steps = range(MOVE_STEPS)
         times += [move.start_s + round(k * move.duration_s / MOVE_STEPS / tick) * tick for k in steps]
         times.append(move.end_s)

@@ -38,7 +38,7 @@ _TIMED = frozenset((PulseOp, WaitOp, ImageOp, PortOp, MoveOp))  # the operations
 
 def duration_of(op) -> float:
     """How long an operation lasts (a together lasts as long as its longest part)."""
-    if isinstance(op, (PulseOp, WaitOp, ImageOp, PortOp, MoveOp)):
+    if type(op) in _TIMED:
         return op.duration_s
     if isinstance(op, FieldOp):
         return duration_of(op.body)

@@ -51,25 +51,10 @@ def positions_at(program: Program, timeline: Timeline, t: float) -> dict[str, tu
     """Every site's position at time t (moves done so far, the one under way partly)."""
     where = {name: site.position_m for name, site in program.sites.items()}
     for move in moves(timeline):
-        done = minimum_jerk((t - move.start_s) / move.duration_s) if move.duration_s else float(t >= move.start_s)
+        done = _done(move, t)
         for name in move.targets:
             where[name] = tuple(x + done * d for x, d in zip(where[name], move.displacement_m))
     return where
-
-
-def position_at(program: Program, timeline: Timeline, name: str, t: float) -> tuple[float, float, float]:
-    """One site's position at time t (as `positions_at`, without building every site's)."""
-    where = program.sites[name].position_m
-    for move in moves(timeline):
-        if name in move.targets:
-            done = minimum_jerk((t - move.start_s) / move.duration_s) if move.duration_s else float(t >= move.start_s)
-            where = tuple(x + done * d for x, d in zip(where, move.displacement_m))
-    return where
-
-
-def moving_at(timeline: Timeline, start: float, end: float) -> set[str]:
-    """Sites that are being moved at some time within [start, end)."""
-    return {s for m in moves(timeline) if m.start_s < end and start < m.end_s for s in m.targets}
 
 
 def _done(move: Event, t: float) -> float:
@@ -95,7 +80,7 @@ class SitePaths:
     """Where sites are over time, from each site's own moves: built once, then positions at
     many times cost a binary search and the moves under way, not a scan of the timeline.
 
-    Same numbers as :func:`position_at`, float for float: the moves done by then are added
+    Same numbers as :func:`positions_at` (a scan of every move), float for float: the moves done by then are added
     in the same order (their sums kept per prefix), the ones under way by the profile, and
     the ones not begun add nothing (exactly: x + 0·d = x, for x other than -0).
     """

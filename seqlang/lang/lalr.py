@@ -22,6 +22,8 @@ from lark import Lark, Token
 from lark.lexer import ContextualLexer, PatternStr, UnlessCallback
 from lark.parsers.lalr_analysis import Reduce
 
+from . import line_traces
+
 # Token attributes are set directly: lark's constructor costs several calls per token.
 _new_str = str.__new__
 
@@ -33,10 +35,11 @@ class Unsupported(Exception):
 class Tables:
     """What the loop reads: per parser state its actions and its lexer."""
 
-    __slots__ = ("actions", "lexers", "start", "end", "rules")
+    __slots__ = ("actions", "lexers", "pieces", "start", "end", "rules")
 
-    def __init__(self, actions, lexers, start, end, rules):
-        self.actions, self.lexers, self.start, self.end, self.rules = actions, lexers, start, end, rules
+    def __init__(self, actions, lexers, pieces, start, end, rules):
+        self.actions, self.lexers, self.pieces = actions, lexers, pieces
+        self.start, self.end, self.rules = start, end, rules
 
 
 @functools.lru_cache(maxsize=4)
@@ -46,19 +49,19 @@ def tables(lark: Lark, table) -> Tables | None:
     lexer = lark.parser.lexer
     if not isinstance(lexer, ContextualLexer):
         return None
-    lexers = {}
+    lexers, pieces = {}, {}
     for state, basic in lexer.lexers.items():
         entry = _state_lexer(basic)
         if entry is None:
             return None
-        lexers[state] = entry
+        lexers[state], pieces[state] = entry
     rules: list = []
     index: dict = {}
     actions = {}
     for state, row in table.states.items():
         actions[state] = {symbol: arg if action is not Reduce else _reduction(arg, rules, index)
                           for symbol, (action, arg) in row.items()}
-    return Tables(actions, lexers, table.start_states["start"], table.end_states["start"], tuple(rules))
+    return Tables(actions, lexers, pieces, table.start_states["start"], table.end_states["start"], tuple(rules))
 
 
 def _reduction(rule, rules: list, index: dict) -> tuple:
@@ -70,10 +73,11 @@ def _reduction(rule, rules: list, index: dict) -> tuple:
 
 
 def _state_lexer(basic) -> tuple | None:
-    """(match, blanks, keywords, tokens that may hold line ends) for one state's lexer, as lark
-    built it. `match` takes the blanks and comments before a token and the token in one
-    step (lark's alternatives without the ignored ones, behind a run of ignored text);
-    `blanks` matches a run of ignored text alone (for the end of the text)."""
+    """((match, blanks, keywords, tokens that may hold line ends), (blanks, alternatives)) for
+    one state's lexer, as lark built it. `match` takes the blanks and comments before a token
+    and the token in one step (lark's alternatives without the ignored ones, behind a run of
+    ignored text); `blanks` matches a run of ignored text alone (for the end of the text).
+    The second pair is the same as regular-expression text, for line traces."""
     scanner = basic.scanner
     if len(scanner._mres) != 1 or basic.g_regex_flags or basic.use_bytes or basic.user_callbacks:
         return None
@@ -90,11 +94,13 @@ def _state_lexer(basic) -> tuple | None:
     if None in steps:
         return None
     blanks = f"(?:{'|'.join(steps)})*"
-    tokens = "|".join(f"(?P<{t.name}>{t.pattern.to_regexp()})" for t in scanner.terminals
-                      if t.name not in basic.ignore_types)
+    alternatives = tuple((t.name, t.pattern.to_regexp()) for t in scanner.terminals
+                         if t.name not in basic.ignore_types)
+    tokens = "|".join(f"(?P<{name}>{regex})" for name, regex in alternatives)
     compile_ = scanner.re_.compile
     newlines = frozenset(basic.newline_types) - frozenset(basic.ignore_types)
-    return compile_(f"{blanks}(?:{tokens})").match, compile_(blanks).match, keywords, newlines
+    return ((compile_(f"{blanks}(?:{tokens})").match, compile_(blanks).match, keywords, newlines),
+            (blanks, alternatives))
 
 
 def _one_blank(regex: str) -> str | None:
@@ -111,24 +117,40 @@ def _one_blank(regex: str) -> str | None:
 
 def parse(text: str, tables: Tables, reducers: list):
     """Run the automaton over `text`; `reducers[i]` builds rule i's value from its children
-    (None: pass the single child on). Returns the start rule's value."""
+    (None: pass the single child on). Returns the start rule's value.
+
+    At the first token of each line a line trace (:mod:`seqlang.lang.line_traces`) is tried
+    first; each line parsed step by step is counted, so that a shape seen twice is traced."""
     actions, lexers, rules = tables.actions, tables.lexers, tables.rules
     end_state = tables.end
     stack = [tables.start]
     values: list = []
     chains: dict = {}
+    traces = line_traces.Traces(tables, reducers)
     pos, length, line, line_start = 0, len(text), 1, 0
+    kinds, line_stack, tried = None, None, -1   # this line's token kinds, its first stack
     while True:
         match, blanks, keywords, newlines = lexers[stack[-1]]
         found = match(text, pos)
         if found is not None:
             kind = found.lastgroup
             start, end = found.span(kind)
-            if start != pos:  # blanks and comments first
-                count = text.count("\n", pos, start)
-                if count:
-                    line += count
-                    line_start = text.rfind("\n", pos, start) + 1
+            count = text.count("\n", pos, start) if start != pos else 0  # blanks and comments first
+            if (count or pos == 0) and tried != pos:  # the first token of a line
+                tried = pos
+                if kinds is not None:
+                    traces.saw(line_stack, kinds)
+                replayed = traces.replay(text, pos, line, line_start, stack, values)
+                if replayed is not None:
+                    while replayed is not None:
+                        pos, line, line_start = replayed
+                        replayed = traces.replay(text, pos, line, line_start, stack, values)
+                    kinds, tried = None, pos
+                    continue  # lex the next token in the state the traces left
+                kinds, line_stack = [], stack[:]
+            if count:
+                line += count
+                line_start = text.rfind("\n", pos, start) + 1
             value = text[start:end]
             if kind in keywords:
                 kind = keywords[kind].get(value, kind)
@@ -138,6 +160,9 @@ def parse(text: str, tables: Tables, reducers: list):
             if kind in newlines and "\n" in value:
                 line += value.count("\n")
                 line_start = text.rfind("\n", start, end) + 1
+                kinds = None   # a trace's tokens lie on one line
+            elif kinds is not None:
+                kinds.append(kind)
             token.end_line, token.end_column = line, end - line_start + 1
             pos = end
         elif blanks(text, pos).end() == length:

@@ -1,0 +1,191 @@
+"""Line traces: lines of the same shape parsed by one regular-expression match and straight code.
+
+Generated programs repeat a few line shapes (``pulse mw_na area 3pi/8 phase 45 deg``) with
+other numbers. The LALR automaton's steps over a line depend only on the states on top of the
+stack and on the kinds of the line's tokens, and the contextual lexer's choice of each token
+depends only on the state it is lexed in. So once a line shape has been seen twice from the
+same stack, :func:`build` runs the automaton over its kinds alone (no text) and records
+
+* ``match``: one regular expression for the whole line: per token, that state's lexer
+  alternatives behind its blanks, matched atomically (a lookahead taken whole, as a single
+  token match takes its first alternative) and required to have taken the recorded kind;
+* ``run``: generated Python that builds the tokens, calls the rules' reduce callbacks in the
+  recorded order on the recorded children and leaves the value stack as the automaton would.
+
+:meth:`Traces.replay` tries the traces recorded for the top state; a trace applies when the
+states it reads below the top are the same and its expression matches (keywords are checked
+by value, as lark renames a name that spells one). Any line a trace does not take goes
+through the automaton step by step, so a trace changes the speed and nothing else.
+"""
+from __future__ import annotations
+
+import re
+
+from lark import Token
+
+# Bounds: traces per top state, tokens per traced line, line shapes counted per parse.
+MAX_PER_STATE = 8
+MAX_TOKENS = 48
+MAX_SHAPES = 4096
+
+_new_str = str.__new__
+
+
+class Trace:
+    """One recorded line shape (see the module doc)."""
+
+    __slots__ = ("size", "prefix", "depth", "tail", "match", "run", "first")
+
+    def __init__(self, prefix, tail, match, run, first):
+        self.size, self.prefix, self.depth = len(prefix), prefix, len(prefix) - 1
+        self.tail, self.match, self.run, self.first = tail, match, run, first
+
+
+class Traces:
+    """The traces of one parse, and the line shapes seen so far."""
+
+    __slots__ = ("tables", "reducers", "by_state", "seen", "built")
+
+    def __init__(self, tables, reducers):
+        self.tables, self.reducers = tables, reducers
+        self.by_state: dict = {}
+        self.seen: dict = {}
+        self.built: set = set()
+
+    def saw(self, stack: list, kinds: list) -> None:
+        """A line of tokens `kinds` was parsed from `stack`; trace it the second time."""
+        if not kinds or len(kinds) > MAX_TOKENS:
+            return
+        key = (tuple(stack), tuple(kinds))
+        count = self.seen.get(key, 0)
+        if count == 0 and len(self.seen) >= MAX_SHAPES:
+            return
+        self.seen[key] = count + 1
+        if count != 1:
+            return
+        trace = build(self.tables, self.reducers, stack, kinds)
+        if trace is None or (tuple(trace.prefix), key[1]) in self.built:
+            return
+        self.built.add((tuple(trace.prefix), key[1]))
+        entries = self.by_state.setdefault(stack[-1], [])
+        if len(entries) < MAX_PER_STATE:
+            entries.append(trace)
+
+    def replay(self, text: str, pos: int, line: int, line_start: int, stack: list, values: list):
+        """Parse the line at `pos` by a trace: (new position, line, line start), or None."""
+        for trace in self.by_state.get(stack[-1], ()):
+            if stack[-trace.size:] != trace.prefix:
+                continue
+            found = trace.match(text, pos)
+            if found is None:
+                continue
+            first, end = found.regs[trace.first][0], found.end()
+            if text.find("\n", first, end) != -1:
+                continue  # the tokens of a trace lie on one line
+            count = text.count("\n", pos, first)
+            if count:
+                line += count
+                line_start = text.rfind("\n", pos, first) + 1
+            if not trace.run(found, text, values, line, line_start):
+                continue  # a name spelled a keyword, or the other way round
+            stack[len(stack) - trace.depth:] = trace.tail
+            return end, line, line_start
+        return None
+
+
+def build(tables, reducers, stack: list, kinds: list) -> Trace | None:
+    """The trace of tokens `kinds` parsed from `stack`; None if the automaton does not take them
+    (or a kind is not one of its state's lexer alternatives)."""
+    actions = tables.actions
+    states = list(stack)
+    low = len(states)
+    lexed, steps = [], []   # per token its lexer state; ("shift", i) / ("reduce", rule, size)
+    for index, kind in enumerate(kinds):
+        lexed.append(states[-1])
+        while True:
+            action = actions[states[-1]].get(kind)
+            if action is None:
+                return None
+            if action.__class__ is int:
+                states.append(action)
+                steps.append(("shift", index, 0))
+                break
+            size, origin, number = action
+            if size:
+                del states[-size:]
+                low = min(low, len(states))
+            if low < 1:
+                return None
+            states.append(actions[states[-1]][origin])
+            steps.append(("reduce", number, size))
+    below = len(stack) - low
+    pattern, groups, checks = _pattern(tables, lexed, kinds)
+    if pattern is None:
+        return None
+    try:
+        match = re.compile(pattern).match
+    except re.error:   # a lexer pattern that does not combine; the line is parsed step by step
+        return None
+    run = _generate(steps, kinds, groups, checks, below, reducers, match.__self__.groupindex)
+    return Trace(list(stack[low - 1:]), states[low:], match, run, match.__self__.groupindex["t0"])
+
+
+def _pattern(tables, lexed: list, kinds: list):
+    """The expression for the line, the group of each token, and the keyword checks
+    (token index, that state's keyword map, base kind) of tokens whose base kind has keywords."""
+    pieces, checks, groups = [], [], []
+    for index, (state, kind) in enumerate(zip(lexed, kinds)):
+        blanks, alternatives = tables.pieces[state]
+        keywords = tables.lexers[state][2]
+        base = next((b for b, words in keywords.items() if kind in words.values()), kind)
+        if base not in dict(alternatives):
+            return None, None, None
+        if base in keywords:
+            checks.append((index, keywords[base], base))
+        options = "|".join(f"(?P<t{index}>{regex})" if name == base else f"(?:{regex})"
+                           for name, regex in alternatives)
+        # (?=(?P<a>X))(?P=a): X taken whole at its first success, as one lexer match takes it.
+        pieces.append(f"(?=(?P<a{index}>{blanks}(?:{options})))(?P=a{index})(?(t{index})|(?!))")
+        groups.append(f"t{index}")
+    return "".join(pieces), groups, checks
+
+
+def _generate(steps, kinds, groups, checks, below: int, reducers, groupindex):
+    """Python source for the line's run, compiled (see the module doc)."""
+    names: dict = {"Token": Token, "new": _new_str}
+    code = ["def run(m, text, values, line, line_start):", "    regs = m.regs"]
+    for index in range(len(kinds)):
+        code.append(f"    s{index}, e{index} = regs[{groupindex[groups[index]]}]")
+        code.append(f"    x{index} = text[s{index}:e{index}]")
+    for index, words, base in checks:
+        names[f"kw{index}"] = words
+        code.append(f"    if kw{index}.get(x{index}, {base!r}) != {kinds[index]!r}: return False")
+    for index, kind in enumerate(kinds):
+        code.append(f"    t{index} = new(Token, x{index}); t{index}.type = {kind!r}; t{index}.value = x{index}; "
+                    f"t{index}.start_pos = s{index}; t{index}.end_pos = e{index}; "
+                    f"t{index}.line = t{index}.end_line = line; t{index}.column = s{index} - line_start + 1; "
+                    f"t{index}.end_column = e{index} - line_start + 1")
+    symbols = [f"b{i}" for i in range(below)]
+    if below:
+        code.append(f"    {', '.join(symbols)}, = values[-{below}:]")
+        code.append(f"    del values[-{below}:]")
+    made = 0
+    for step, arg, size in steps:
+        if step == "shift":
+            symbols.append(f"t{arg}")
+            continue
+        children = symbols[len(symbols) - size:] if size else []
+        del symbols[len(symbols) - size:]
+        reduce = reducers[arg]
+        if reduce is None:      # passes its one child on
+            symbols.extend(children)
+            continue
+        names[f"r{arg}"] = reduce
+        code.append(f"    v{made} = r{arg}([{', '.join(children)}])")
+        symbols.append(f"v{made}")
+        made += 1
+    if symbols:
+        code.append(f"    values.extend(({', '.join(symbols)},))")
+    code.append("    return True")
+    exec("\n".join(code), names)
+    return names["run"]

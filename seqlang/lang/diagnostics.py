@@ -84,7 +84,7 @@ class Span(bytes):
 
 
 SPAN_FIELDS = ("file", "line", "column", "end_line", "end_column", "start", "end")
-_PACKED = struct.Struct("<7I")
+_PACKED = PACKED_SPAN = struct.Struct("<7I")   # (file index, line, column, end_line, end_column, start, end)
 _FIELD = struct.Struct("<I")
 _LARGEST = 2**32 - 1
 _new_bytes = bytes.__new__

@@ -28,7 +28,7 @@ from lark.visitors import _vargs_meta
 
 from . import syntax as ast
 from . import lalr, source_text
-from .diagnostics import SOURCES, SeqlangError, Span, error, span_packer
+from .diagnostics import PACKED_SPAN, SOURCES, SeqlangError, Span, error, file_index, span_packer
 from .grammar_cache import cached_lark
 from .syntax_errors import syntax_error, token_span as _token_span
 
@@ -164,10 +164,12 @@ def _fast_table(lark: Lark) -> tuple[_Table, dict]:
 
 @functools.lru_cache(maxsize=1)
 def _plans(lark: Lark) -> tuple:
-    """Per rule: its name, what to do with each symbol, placeholders, and how to build it."""
+    """Per rule: its name, what to do with each symbol, placeholders, how to build it, and
+    what each child can be (see _child_kinds)."""
     plans = []
     table_rules = _fast_table(lark)[1]
     transparent = _transparent_rules(lark)
+    children = _child_kinds(lark, transparent)
     for rule in lark.rules:
         if rule not in table_rules:
             continue  # a rule the parser never reduces
@@ -177,12 +179,13 @@ def _plans(lark: Lark) -> tuple:
                  else _KEEP
                  for sym in rule.expansion]
         if name in transparent:
-            plans.append((table_rules[rule], (name, (_KEEP,), (), "expand1", False)))
+            plans.append((table_rules[rule], (name, (_KEEP,), (), "expand1", False, ())))
             continue
         nones = _placeholders(rule)
         kind = "splice" if name.startswith("_") else \
             "expand1" if rule.options.expand1 and not rule.alias else "node"
-        plans.append((table_rules[rule], (name, tuple(modes), nones, kind, name in _NESTING_RULES)))
+        plans.append((table_rules[rule], (name, tuple(modes), nones, kind, name in _NESTING_RULES,
+                                          tuple(children(sym) for sym in rule.expansion))))
     return tuple(plans)
 
 
@@ -211,6 +214,45 @@ def _passes_on(symbol, transparent: set) -> bool:
     return not symbol.name.startswith("_") or symbol.name in transparent
 
 
+_TOKEN, _REDUCED, _EITHER, _MAYBE_EMPTY = "token", "reduced", "either", "maybe empty"
+
+
+def _child_kinds(lark: Lark, transparent: frozenset):
+    """What a rule's child for `symbol` is on the value stack: always a token (a terminal), a
+    reduction (a list), either (a rule that may pass a token on), or a reduction that may
+    cover no text (its first and last token None)."""
+    by_origin: dict = {}
+    for rule in lark.rules:
+        by_origin.setdefault(rule.origin.name, []).append(rule)
+
+    def passes_token(rule, seen) -> bool:  # reduces with _pass_through, handing on a token
+        if len(rule.expansion) != 1 or rule.alias or rule.options.empty_indices:
+            return False
+        if rule.origin.name not in transparent and not rule.options.expand1:
+            return False
+        symbol = rule.expansion[0]
+        return (not symbol.filter_out) if symbol.is_term else may_token(symbol.name, seen)
+
+    def may_token(name, seen=frozenset()) -> bool:
+        return name not in seen and any(passes_token(r, seen | {name}) for r in by_origin.get(name, ()))
+
+    nullable: set = set()
+    while True:
+        more = {name for name, rules in by_origin.items() if name not in nullable and any(
+            all(not s.is_term and s.name in nullable for s in r.expansion) for r in rules)}
+        if not more:
+            break
+        nullable |= more
+
+    def kind(symbol) -> str:
+        if symbol.is_term:
+            return _TOKEN
+        if symbol.name in nullable:
+            return _MAYBE_EMPTY
+        return _EITHER if may_token(symbol.name) else _REDUCED
+    return kind
+
+
 def _placeholders(rule) -> tuple[int, ...]:
     """How many `None`s stand before each kept symbol (and at the end) for missing `[optional]`s."""
     empty = rule.options.empty_indices
@@ -221,56 +263,92 @@ def _placeholders(rule) -> tuple[int, ...]:
 
 
 def _reducer(plan, builder: "_Builder"):
-    name, modes, nones, kind, deepens = plan
+    name, modes, nones, kind, deepens, children = plan
     method = _builder_method(builder, name) if kind != "splice" else None
     if kind == "expand1" and modes == (_KEEP,) and not nones:
         return _pass_through          # `?rule: other`, the commonest reduction: nothing to do
-    steps = tuple(enumerate(modes))
-    kept = tuple((index, mode is _SPLICE) for index, mode in steps if mode is not _DROP)
+    return _reducer_factory(plan)(method, builder, name)
 
-    def reduce(children):
-        first, last = _ends(children)
-        if nones:
-            values, depth = _values_with_placeholders(children, steps, nones)
+
+@functools.lru_cache(maxsize=None)
+def _reducer_factory(plan):
+    """Python source for one rule's reduce callback, written out for its symbols (which are
+    tokens, which are spliced, where placeholders go), compiled once per rule. The callback
+    returns [value, first token, last token, depth] (see _Reduced)."""
+    name, modes, nones, kind, deepens, children = plan
+    size = len(modes)
+    code = ["def make(method, builder, name):", "  def reduce(children):"]
+    code.append(f"    {''.join(f'c{i}, ' for i in range(size))}= children" if size else "    pass")
+    if not size or any(children[i] == _MAYBE_EMPTY for i in range(size)):
+        code.append("    first, last = _ends(children)")
+    else:
+        code.append(f"    first = {_first_token(0, children[0])}")
+        code.append(f"    last = {_last_token(size - 1, children[-1])}")
+    items, depths, fresh = [], [], True
+    for index, mode in enumerate(modes):
+        if nones and nones[index]:
+            items.append("None, " * nones[index])
+        if mode is _DROP:
+            continue
+        child = f"c{index}"
+        if children[index] == _TOKEN:
+            items.append(f"{child}, ")
+            continue
+        token_check = children[index] != _REDUCED
+        value = f"({child} if {child}.__class__ is Token else {child}[0])" if token_check else f"{child}[0]"
+        depths.append(f"(0 if {child}.__class__ is Token else {child}[3])" if token_check else f"{child}[3]")
+        if mode is _SPLICE:
+            if not items and not nones and fresh:   # a left-recursive list (`x*`): grow the child's own list
+                code.append(f"    values = {child}[0]")
+                fresh = False
+            else:
+                items.append(f"*{child}[0], ")
         else:
-            values, depth = [], 0
-            for index, splice in kept:
-                child = children[index]
-                if child.__class__ is Token:
-                    values.append(child)
-                    continue
-                if not splice:
-                    values.append(child[VALUE])
-                elif values:
-                    values.extend(child[VALUE])
-                else:  # a left-recursive list (`x*`): grow the child's own list, as lark does
-                    values = child[VALUE]
-                if child[DEPTH] > depth:
-                    depth = child[DEPTH]
-        if kind == "splice":
-            return [values, first, last, depth]
-        if kind == "expand1" and len(values) == 1:
-            return [values[0], first, last, depth]
-        out = [None, first, last, depth + deepens]
-        if deepens and out[DEPTH] > MAX_NESTING:
-            raise SeqlangError([error(f"this nests more than {MAX_NESTING} levels deep (blocks and "
-                                      "operators inside each other)", builder._span(out),
-                                      "split it with `let` constants or `block`s")])
-        out[VALUE] = method(out, values) if method is not None else Tree(name, values)
-        return out
+            items.append(f"{value}, ")
+    if nones and nones[-1]:
+        items.append("None, " * nones[-1])
+    if fresh:
+        code.append(f"    values = [{''.join(items)}]")
+    elif items:
+        code.append(f"    values.extend(({''.join(items)}))")
+    code.append(f"    depth = {'max(' + ', '.join(depths) + ', 0)' if len(depths) > 1 else depths[0] if depths else '0'}")
+    if kind == "splice":
+        code.append("    return [values, first, last, depth]")
+    else:
+        if kind == "expand1":
+            code.append("    if len(values) == 1:")
+            code.append("      return [values[0], first, last, depth]")
+        code.append(f"    out = [None, first, last, depth + {int(deepens)}]")
+        if deepens:
+            code.append("    if out[3] > MAX_NESTING:")
+            code.append("      _too_deep(builder, out)")
+        code.append("    out[0] = method(out, values) if method is not None else Tree(name, values)")
+        code.append("    return out")
+    code.append("  return reduce")
+    names = {"Token": Token, "Tree": Tree, "_ends": _ends, "MAX_NESTING": MAX_NESTING, "_too_deep": _too_deep}
+    exec("\n".join(code), names)
+    return names["make"]
 
-    return reduce
+
+def _first_token(index: int, child: str) -> str:
+    return f"c{index}" if child == _TOKEN else f"c{index}[1]" if child == _REDUCED else \
+        f"(c{index} if c{index}.__class__ is Token else c{index}[1])"
+
+
+def _last_token(index: int, child: str) -> str:
+    return f"c{index}" if child == _TOKEN else f"c{index}[2]" if child == _REDUCED else \
+        f"(c{index} if c{index}.__class__ is Token else c{index}[2])"
+
+
+def _too_deep(builder: "_Builder", out: _Reduced):
+    raise SeqlangError([error(f"this nests more than {MAX_NESTING} levels deep (blocks and "
+                              "operators inside each other)", builder._span(out),
+                              "split it with `let` constants or `block`s")])
 
 
 def _ends(children) -> tuple:
     """The first and last token of the text the children cover (None, None if none)."""
-    if children:
-        head, tail = children[0], children[-1]
-        first = head if head.__class__ is Token else head[FIRST]
-        last = tail if tail.__class__ is Token else tail[LAST]
-        if first is not None and last is not None:
-            return first, last
-    first = last = None  # some children are empty rules
+    first = last = None
     for child in children:
         first = child if child.__class__ is Token else child[FIRST]
         if first is not None:
@@ -280,29 +358,6 @@ def _ends(children) -> tuple:
         if last is not None:
             break
     return first, last
-
-
-def _values_with_placeholders(children, steps, nones) -> tuple[list, int]:
-    """The kept values of a rule with `[optional]`s, a `None` standing for each one missing."""
-    values, depth = [], 0
-    for index, mode in steps:
-        if nones[index]:
-            values.extend([None] * nones[index])
-        if mode is _DROP:
-            continue
-        child = children[index]
-        if child.__class__ is Token:
-            values.append(child)
-            continue
-        if mode is _SPLICE:
-            values.extend(child[VALUE])
-        else:
-            values.append(child[VALUE])
-        if child[DEPTH] > depth:
-            depth = child[DEPTH]
-    if nones[-1]:
-        values.extend([None] * nones[-1])
-    return values, depth
 
 
 def _pass_through(children):
@@ -320,6 +375,21 @@ def _builder_method(builder: "_Builder", name: str):
     return lambda meta, children: bound(children)
 
 
+def _extent_packer(path: str):
+    """``span(meta)``: the span of a reduction's extent, from its first and last token, in one
+    call (no method binding, no second call to pack: a generated program makes a million)."""
+    index, pack, new = file_index(path), PACKED_SPAN.pack, bytes.__new__
+    empty = Span(path, 1, 1, 1, 1)
+
+    def span(meta: _Reduced) -> Span:
+        first, last = meta[FIRST], meta[LAST]
+        if first is None:
+            return empty
+        return new(Span, pack(index, first.line, first.column, last.end_line, last.end_column,
+                              first.start_pos, last.end_pos))
+    return span
+
+
 # ---- the Transformer: builds nodes, checks nothing --------------------------
 class _Builder(Transformer):
     """Builds :mod:`syntax` nodes, one method per grammar rule (named after the rule or
@@ -331,12 +401,7 @@ class _Builder(Transformer):
         super().__init__()
         self.path = path
         self._pack = span_packer(path)  # a dozen spans per line of a generated program
-
-    def _span(self, meta: _Reduced) -> Span:
-        first, last = meta[FIRST], meta[LAST]
-        if first is None:
-            return Span(self.path, 1, 1, 1, 1)
-        return self._pack(first.line, first.column, last.end_line, last.end_column, first.start_pos, last.end_pos)
+        self._span = _extent_packer(path)
 
     def _ident(self, token: Token) -> ast.Ident:
         # Interned: a long program repeats a few names many times, each copy ~50 bytes.

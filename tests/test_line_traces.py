@@ -27,17 +27,21 @@ def _reference(text: str, path: str):
 
 @pytest.fixture
 def replays(monkeypatch):
-    """Counts the lines parsed by a trace."""
+    """Counts the lines parsed by a trace (each trace run takes one line)."""
     taken = []
-    replay = line_traces.Traces.replay
+    generate = line_traces._generate
 
-    def counting(self, *args):
-        result = replay(self, *args)
-        if result is not None:
-            taken.append(result[0])
-        return result
+    def counting(*args):
+        run = generate(*args)
 
-    monkeypatch.setattr(line_traces.Traces, "replay", counting)
+        def counted(*run_args):
+            following = run(*run_args)
+            if following is not None:
+                taken.append(following)
+            return following
+        return counted
+
+    monkeypatch.setattr(line_traces, "_generate", counting)
     return taken
 
 
@@ -84,7 +88,7 @@ def test_a_syntax_error_after_traced_lines_is_reported_as_without_traces(odd_lin
         parse_text(text, "t.seq")
     assert replays
     with pytest.MonkeyPatch.context() as patch:
-        patch.setattr(line_traces.Traces, "replay", lambda *args: None)
+        patch.setattr(line_traces.Traces, "replay", lambda *args: None)  # no line is traced
         with pytest.raises(SeqlangError) as untraced:
             parse_text(text, "t.seq")
     assert traced.value.diagnostics == untraced.value.diagnostics

@@ -128,29 +128,21 @@ def parse(text: str, tables: Tables, reducers: list):
     chains: dict = {}
     traces = line_traces.Traces(tables, reducers)
     pos, length, line, line_start = 0, len(text), 1, 0
-    kinds, line_stack, tried = None, None, -1   # this line's token kinds, its first stack
+    kinds, line_stack = None, None   # the kinds of this line's tokens so far, its stack at the first
+    first = False                    # the token is the first of its line
     while True:
         match, blanks, keywords, newlines = lexers[stack[-1]]
         found = match(text, pos)
         if found is not None:
             kind = found.lastgroup
             start, end = found.span(kind)
-            count = text.count("\n", pos, start) if start != pos else 0  # blanks and comments first
-            if (count or pos == 0) and tried != pos:  # the first token of a line
-                tried = pos
-                if kinds is not None:
-                    traces.saw(line_stack, kinds)
-                replayed = traces.replay(text, pos, line, line_start, stack, values)
-                if replayed is not None:
-                    while replayed is not None:
-                        pos, line, line_start = replayed
-                        replayed = traces.replay(text, pos, line, line_start, stack, values)
-                    kinds, tried = None, pos
-                    continue  # lex the next token in the state the traces left
-                kinds, line_stack = [], stack[:]
-            if count:
-                line += count
-                line_start = text.rfind("\n", pos, start) + 1
+            first = pos == 0
+            if start != pos:  # blanks and comments first
+                count = text.count("\n", pos, start)
+                if count:
+                    line += count
+                    line_start = text.rfind("\n", pos, start) + 1
+                    first = True
             value = text[start:end]
             if kind in keywords:
                 kind = keywords[kind].get(value, kind)
@@ -160,13 +152,13 @@ def parse(text: str, tables: Tables, reducers: list):
             if kind in newlines and "\n" in value:
                 line += value.count("\n")
                 line_start = text.rfind("\n", start, end) + 1
-                kinds = None   # a trace's tokens lie on one line
+                kinds = first = None   # a trace's tokens lie on one line
             elif kinds is not None:
                 kinds.append(kind)
             token.end_line, token.end_column = line, end - line_start + 1
             pos = end
         elif blanks(text, pos).end() == length:
-            kind = "$END"
+            kind, first = "$END", False
         else:
             raise Unsupported
         while True:
@@ -174,6 +166,18 @@ def parse(text: str, tables: Tables, reducers: list):
             if action is None:
                 raise Unsupported
             if action.__class__ is int:
+                if first:
+                    # The first token of a line, its lookahead's reductions done (so the stack no
+                    # longer depends on the line before): the rest of the line may follow a trace,
+                    # and the lines after it, up to the next token to shift.
+                    if kinds is not None:
+                        traces.saw(line_stack, kinds)
+                    resumed = traces.replay(text, pos, line, line_start, stack, values, token)
+                    if resumed is not None:
+                        token, pos, line, line_start = resumed
+                        kind = token.type
+                        action = actions[stack[-1]][kind]
+                    kinds, line_stack = [kind], stack[:]
                 stack.append(action)
                 values.append(token)
                 break

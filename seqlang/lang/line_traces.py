@@ -24,7 +24,7 @@ import re
 from lark import Token
 
 # Bounds: traces per top state, tokens per traced line, line shapes counted per parse.
-MAX_PER_STATE = 8
+MAX_PER_STATE = 32
 MAX_TOKENS = 48
 MAX_SHAPES = 4096
 
@@ -34,11 +34,12 @@ _new_str = str.__new__
 class Trace:
     """One recorded line shape (see the module doc)."""
 
-    __slots__ = ("size", "prefix", "depth", "tail", "match", "run", "first")
+    __slots__ = ("size", "prefix", "depth", "tail", "match", "run", "before_next", "next")
 
-    def __init__(self, prefix, tail, match, run, first):
+    def __init__(self, prefix, tail, match, run, before_next, next_group):
         self.size, self.prefix, self.depth = len(prefix), prefix, len(prefix) - 1
-        self.tail, self.match, self.run, self.first = tail, match, run, first
+        self.tail, self.match, self.run = tail, match, run
+        self.before_next, self.next = before_next, next_group   # groups: the line's last token, the next
 
 
 class Traces:
@@ -53,8 +54,9 @@ class Traces:
         self.built: set = set()
 
     def saw(self, stack: list, kinds: list) -> None:
-        """A line of tokens `kinds` was parsed from `stack`; trace it the second time."""
-        if not kinds or len(kinds) > MAX_TOKENS:
+        """A line of tokens `kinds[:-1]` was parsed from `stack` (its first token about to be
+        shifted), then `kinds[-1]` lexed and its lookahead's reductions done; trace it the second time."""
+        if len(kinds) > MAX_TOKENS:
             return
         key = (tuple(stack), tuple(kinds))
         count = self.seen.get(key, 0)
@@ -67,39 +69,50 @@ class Traces:
         if trace is None or (tuple(trace.prefix), key[1]) in self.built:
             return
         self.built.add((tuple(trace.prefix), key[1]))
-        entries = self.by_state.setdefault(stack[-1], [])
+        entries = self.by_state.setdefault((stack[-1], kinds[0]), [])
         if len(entries) < MAX_PER_STATE:
             entries.append(trace)
 
-    def replay(self, text: str, pos: int, line: int, line_start: int, stack: list, values: list):
-        """Parse the line at `pos` by a trace: (new position, line, line start), or None."""
-        for trace in self.by_state.get(stack[-1], ()):
-            if stack[-trace.size:] != trace.prefix:
-                continue
-            found = trace.match(text, pos)
-            if found is None:
-                continue
-            first, end = found.regs[trace.first][0], found.end()
-            if text.find("\n", first, end) != -1:
-                continue  # the tokens of a trace lie on one line
-            count = text.count("\n", pos, first)
-            if count:
-                line += count
-                line_start = text.rfind("\n", pos, first) + 1
-            if not trace.run(found, text, values, line, line_start):
-                continue  # a name spelled a keyword, or the other way round
-            stack[len(stack) - trace.depth:] = trace.tail
-            return end, line, line_start
-        return None
+    def replay(self, text: str, pos: int, line: int, line_start: int, stack: list, values: list, token):
+        """Shift `token`, the first of a line (it ends at `pos`), and parse the rest of its line
+        and the next token's reductions by a trace, line after line while one applies. Returns
+        (the next token to shift, position after it, line, line start), or None (nothing done)."""
+        replayed = False
+        while True:
+            for trace in self.by_state.get((stack[-1], token.type), ()):
+                if stack[-trace.size:] != trace.prefix:
+                    continue
+                found = trace.match(text, pos)
+                if found is None:
+                    continue
+                regs = found.regs
+                before = regs[trace.before_next][1] if trace.before_next else pos
+                if text.find("\n", pos, before) != -1:
+                    continue  # the tokens of a line after its first lie on its line
+                start = regs[trace.next][0]
+                count = text.count("\n", before, start)
+                next_line, next_start = (line + count, text.rfind("\n", before, start) + 1) if count \
+                    else (line, line_start)
+                following = trace.run(found, text, values, line, line_start, token, next_line, next_start)
+                if following is None:
+                    continue  # a name spelled a keyword, or the other way round
+                stack[len(stack) - trace.depth:] = trace.tail
+                pos, line, line_start, token, replayed = found.end(), next_line, next_start, following, True
+                break
+            else:
+                return (token, pos, line, line_start) if replayed else None
 
 
 def build(tables, reducers, stack: list, kinds: list) -> Trace | None:
-    """The trace of tokens `kinds` parsed from `stack`; None if the automaton does not take them
-    (or a kind is not one of its state's lexer alternatives)."""
+    """The trace of a line of tokens `kinds[:-1]` parsed from `stack` (the first of them lexed
+    already and its lookahead's reductions done), then of the lookahead reductions of the
+    token `kinds[-1]` after it; None if the automaton does not take them (or a kind is not one
+    of its state's lexer alternatives, or may hold a line end)."""
     actions = tables.actions
     states = list(stack)
     low = len(states)
     lexed, steps = [], []   # per token its lexer state; ("shift", i) / ("reduce", rule, size)
+    last = len(kinds) - 1
     for index, kind in enumerate(kinds):
         lexed.append(states[-1])
         while True:
@@ -107,8 +120,9 @@ def build(tables, reducers, stack: list, kinds: list) -> Trace | None:
             if action is None:
                 return None
             if action.__class__ is int:
-                states.append(action)
-                steps.append(("shift", index, 0))
+                if index < last:
+                    states.append(action)
+                    steps.append(("shift", index, 0))
                 break
             size, origin, number = action
             if size:
@@ -126,19 +140,23 @@ def build(tables, reducers, stack: list, kinds: list) -> Trace | None:
         match = re.compile(pattern).match
     except re.error:   # a lexer pattern that does not combine; the line is parsed step by step
         return None
-    run = _generate(steps, kinds, groups, checks, below, reducers, match.__self__.groupindex)
-    return Trace(list(stack[low - 1:]), states[low:], match, run, match.__self__.groupindex["t0"])
+    index = match.__self__.groupindex
+    run = _generate(steps, kinds, groups, checks, below, reducers, index)
+    return Trace(list(stack[low - 1:]), states[low:], match, run,
+                 index[groups[-2]] if last > 1 else 0, index[groups[-1]])
 
 
 def _pattern(tables, lexed: list, kinds: list):
-    """The expression for the line, the group of each token, and the keyword checks
+    """The expression for the tokens after the first, the group of each, and the keyword checks
     (token index, that state's keyword map, base kind) of tokens whose base kind has keywords."""
-    pieces, checks, groups = [], [], []
+    pieces, checks, groups = [], [], [None]
     for index, (state, kind) in enumerate(zip(lexed, kinds)):
+        if index == 0:
+            continue
         blanks, alternatives = tables.pieces[state]
-        keywords = tables.lexers[state][2]
+        keywords, newlines = tables.lexers[state][2], tables.lexers[state][3]
         base = next((b for b, words in keywords.items() if kind in words.values()), kind)
-        if base not in dict(alternatives):
+        if base not in dict(alternatives) or base in newlines:
             return None, None, None
         if base in keywords:
             checks.append((index, keywords[base], base))
@@ -151,20 +169,23 @@ def _pattern(tables, lexed: list, kinds: list):
 
 
 def _generate(steps, kinds, groups, checks, below: int, reducers, groupindex):
-    """Python source for the line's run, compiled (see the module doc)."""
+    """Python source for the line's run, compiled (see the module doc): it returns the next
+    line's first token, or None if a keyword check fails (before anything is changed)."""
     names: dict = {"Token": Token, "new": _new_str}
-    code = ["def run(m, text, values, line, line_start):", "    regs = m.regs"]
-    for index in range(len(kinds)):
+    code = ["def run(m, text, values, line, line_start, t0, next_line, next_start):", "    regs = m.regs"]
+    last = len(kinds) - 1
+    for index in range(1, len(kinds)):
         code.append(f"    s{index}, e{index} = regs[{groupindex[groups[index]]}]")
         code.append(f"    x{index} = text[s{index}:e{index}]")
     for index, words, base in checks:
         names[f"kw{index}"] = words
-        code.append(f"    if kw{index}.get(x{index}, {base!r}) != {kinds[index]!r}: return False")
-    for index, kind in enumerate(kinds):
+        code.append(f"    if kw{index}.get(x{index}, {base!r}) != {kinds[index]!r}: return None")
+    for index, kind in enumerate(kinds[1:], 1):
+        at, start = ("next_line", "next_start") if index == last else ("line", "line_start")
         code.append(f"    t{index} = new(Token, x{index}); t{index}.type = {kind!r}; t{index}.value = x{index}; "
                     f"t{index}.start_pos = s{index}; t{index}.end_pos = e{index}; "
-                    f"t{index}.line = t{index}.end_line = line; t{index}.column = s{index} - line_start + 1; "
-                    f"t{index}.end_column = e{index} - line_start + 1")
+                    f"t{index}.line = t{index}.end_line = {at}; t{index}.column = s{index} - {start} + 1; "
+                    f"t{index}.end_column = e{index} - {start} + 1")
     symbols = [f"b{i}" for i in range(below)]
     if below:
         code.append(f"    {', '.join(symbols)}, = values[-{below}:]")
@@ -186,6 +207,6 @@ def _generate(steps, kinds, groups, checks, below: int, reducers, groupindex):
         made += 1
     if symbols:
         code.append(f"    values.extend(({', '.join(symbols)},))")
-    code.append("    return True")
+    code.append(f"    return t{last}")
     exec("\n".join(code), names)
     return names["run"]

@@ -26,6 +26,12 @@ def _reference(text: str, path: str):
 
 
 @pytest.fixture
+def eager(monkeypatch):
+    """A shape is traced at its second sighting, so that short texts have traces."""
+    monkeypatch.setattr(line_traces, "TRACE_AFTER", 2)
+
+
+@pytest.fixture
 def replays(monkeypatch):
     """Counts the lines parsed by a trace (each trace run takes one line)."""
     taken = []
@@ -50,10 +56,21 @@ def _program(lines: list[str]) -> str:
 
 
 def test_repeated_lines_are_traced_and_build_the_same_tree(replays):
-    lines = [f"  pulse mw_na area {1 + i % 7}pi/8 phase {i * 13 % 360} deg" for i in range(40)]
+    lines = [f"  pulse mw_na area {1 + i % 7}pi/8 phase {i * 13 % 360} deg" for i in range(60)]
     text = _program(lines)
     assert parse_text(text, "t.seq") == _reference(text, "t.seq")
-    assert len(replays) >= 35   # a trace for every line after the second of its shape
+    # every line after those that taught the trace, but the last (the next token is `}`)
+    assert len(replays) == 60 - 2 - 16
+
+
+def test_a_few_repeated_lines_build_no_trace(monkeypatch):
+    """A hand-written file's shapes are not worth a trace (each costs a millisecond to build)."""
+    built = []
+    build = line_traces.build
+    monkeypatch.setattr(line_traces, "build", lambda *args: built.append(1) or build(*args))
+    text = _program([f"  pulse mw_na area {i}pi" for i in range(1, line_traces.TRACE_AFTER)])
+    assert parse_text(text, "t.seq") == _reference(text, "t.seq")
+    assert not built
 
 
 @pytest.mark.parametrize("odd_line", [
@@ -68,7 +85,7 @@ def test_repeated_lines_are_traced_and_build_the_same_tree(replays):
     "  pulse mw_na area 3pi/8 phase (45) deg",
     "  pulse wait area 3pi/8 phase 45 deg",    # a keyword's spelling where it lexes as a name
 ])
-def test_a_line_unlike_the_traced_ones_builds_the_same_tree(odd_line, replays):
+def test_a_line_unlike_the_traced_ones_builds_the_same_tree(odd_line, replays, eager):
     lines = [f"  pulse mw_na area {1 + i % 7}pi/8 phase {i} deg" for i in range(6)]
     text = _program(lines + [odd_line] + lines)
     assert parse_text(text, "t.seq") == _reference(text, "t.seq")
@@ -80,7 +97,7 @@ def test_a_line_unlike_the_traced_ones_builds_the_same_tree(odd_line, replays):
     "  pulse mw_na area 3pi/8 phase 45 on",
     "  pulse mw_na area 3pi/8 phase 45 deg }",
 ])
-def test_a_syntax_error_after_traced_lines_is_reported_as_without_traces(odd_line, replays):
+def test_a_syntax_error_after_traced_lines_is_reported_as_without_traces(odd_line, replays, eager):
     lines = [f"  pulse mw_na area {1 + i % 7}pi/8 phase {i} deg" for i in range(6)]
     text = _program(lines + [odd_line] + lines)
     assert _reference(text, "t.seq") is None
@@ -136,10 +153,23 @@ def _program_text(draw):
 
 @settings(max_examples=150, deadline=None, suppress_health_check=[HealthCheck.function_scoped_fixture])
 @given(text=_program_text())
-def test_fuzzed_programs_of_repeated_lines_parse_as_with_larks_driver(text):
+def test_fuzzed_programs_of_repeated_lines_parse_as_with_larks_driver(text, eager):
     reference = _reference(text, "f.seq")
     if reference is None:
         with pytest.raises(SeqlangError):
             parse_text(text, "f.seq")
     else:
         assert parse_text(text, "f.seq") == reference
+
+
+def test_traces_built_per_parse_are_bounded(monkeypatch, eager):
+    """Many line shapes, each seen twice or more: no more traces than the bound (each costs
+    about a millisecond to build), and the tree is still lark's."""
+    built = []
+    build = line_traces.build
+    monkeypatch.setattr(line_traces, "MAX_TRACES", 3)
+    monkeypatch.setattr(line_traces, "build", lambda *args: built.append(1) or build(*args))
+    lines = [f"  pulse mw_na {' '.join(['area 1'] * (1 + k))}" for k in range(8) for _ in range(4)]
+    text = _program(lines)
+    assert parse_text(text, "t.seq") == _reference(text, "t.seq")
+    assert len(built) == 3

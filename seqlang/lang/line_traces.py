@@ -1,21 +1,27 @@
-"""Line traces: lines of the same shape parsed by one regular-expression match and straight code.
+"""Line traces: lines of one shape parsed by one regular-expression match and straight code.
 
 Generated programs repeat a few line shapes (``pulse mw_na area 3pi/8 phase 45 deg``) with
-other numbers. The LALR automaton's steps over a line depend only on the states on top of the
-stack and on the kinds of the line's tokens, and the contextual lexer's choice of each token
-depends only on the state it is lexed in. So once a line shape has been seen twice from the
-same stack, :func:`build` runs the automaton over its kinds alone (no text) and records
+other numbers. The LALR automaton's steps depend only on the states on top of its stack and
+on the kinds of the tokens, and the contextual lexer's choice of a token depends only on the
+state it is lexed in. A trace covers one line: it starts when the line's first token is about
+to be shifted (the reductions its lookahead caused are done, so the stack no longer depends
+on the line before) and ends when the first token of the next line has been lexed and its
+lookahead's reductions done. Once a shape (the kinds of the line's tokens and of the next
+line's first) has been seen ``TRACE_AFTER`` times from the same stack, :func:`build` runs the
+automaton over the kinds alone (no text) and records
 
-* ``match``: one regular expression for the whole line: per token, that state's lexer
-  alternatives behind its blanks, matched atomically (a lookahead taken whole, as a single
-  token match takes its first alternative) and required to have taken the recorded kind;
+* ``match``: one regular expression for the tokens after the first: per token, the lexer
+  alternatives of its state behind its blanks, matched atomically (a lookahead taken whole,
+  as one lexer match takes its first alternative) and required to have taken the recorded kind;
 * ``run``: generated Python that builds the tokens, calls the rules' reduce callbacks in the
-  recorded order on the recorded children and leaves the value stack as the automaton would.
+  recorded order on the recorded children, leaves the value stack as the automaton would
+  and returns the next line's first token.
 
-:meth:`Traces.replay` tries the traces recorded for the top state; a trace applies when the
-states it reads below the top are the same and its expression matches (keywords are checked
-by value, as lark renames a name that spells one). Any line a trace does not take goes
-through the automaton step by step, so a trace changes the speed and nothing else.
+:meth:`Traces.replay` tries the traces recorded for the top state and the first token, line
+after line. A trace applies when the states it reads below the top are the same and its
+expression matches (keywords are checked by value, as lark renames a name that spells one).
+Any line no trace takes goes through the automaton step by step, so a trace changes the
+speed and nothing else.
 """
 from __future__ import annotations
 
@@ -23,9 +29,14 @@ import re
 
 from lark import Token
 
-# Bounds: traces per top state, tokens per traced line, line shapes counted per parse.
+# A shape is traced when seen this often: a trace takes about a millisecond to build and saves
+# a few microseconds per line, so the shapes of a hand-written file are not worth one.
+TRACE_AFTER = 16
+# Bounds per parse: traces in all, traces per state and first token, tokens per traced line,
+# line shapes counted.
+MAX_TRACES = 256
 MAX_PER_STATE = 32
-MAX_TOKENS = 48
+MAX_TOKENS = 32
 MAX_SHAPES = 4096
 
 _new_str = str.__new__
@@ -55,15 +66,16 @@ class Traces:
 
     def saw(self, stack: list, kinds: list) -> None:
         """A line of tokens `kinds[:-1]` was parsed from `stack` (its first token about to be
-        shifted), then `kinds[-1]` lexed and its lookahead's reductions done; trace it the second time."""
-        if len(kinds) > MAX_TOKENS:
+        shifted), then `kinds[-1]` lexed and its lookahead's reductions done; trace it when it
+        has been seen TRACE_AFTER times."""
+        if len(kinds) > MAX_TOKENS or len(self.built) >= MAX_TRACES:
             return
         key = (tuple(stack), tuple(kinds))
         count = self.seen.get(key, 0)
         if count == 0 and len(self.seen) >= MAX_SHAPES:
             return
         self.seen[key] = count + 1
-        if count != 1:
+        if count + 1 != TRACE_AFTER:
             return
         trace = build(self.tables, self.reducers, stack, kinds)
         if trace is None or (tuple(trace.prefix), key[1]) in self.built:

@@ -119,9 +119,10 @@ def parse(text: str, tables: Tables, reducers: list):
     """Run the automaton over `text`; `reducers[i]` builds rule i's value from its children
     (None: pass the single child on). Returns the start rule's value.
 
-    At the first token of each line a line trace (:mod:`seqlang.lang.line_traces`) is tried
-    first; each line parsed step by step is counted, so that a shape seen twice is traced."""
-    actions, lexers, rules = tables.actions, tables.lexers, tables.rules
+    When the first token of a line is to be shifted, line traces (:mod:`seqlang.lang.line_traces`)
+    are tried first; each line parsed step by step is counted, so that a shape seen often
+    enough gets a trace."""
+    actions, lexers = tables.actions, tables.lexers
     end_state = tables.end
     stack = [tables.start]
     values: list = []

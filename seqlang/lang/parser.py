@@ -233,8 +233,9 @@ def _child_kinds(lark: Lark, transparent: frozenset):
     def passes_token(rule, seen) -> bool:  # reduces with _pass_through, handing on a token
         if len(rule.expansion) != 1 or rule.alias or rule.options.empty_indices:
             return False
-        if rule.origin.name not in transparent and not rule.options.expand1:
-            return False
+        name = rule.origin.name
+        if name not in transparent and (not rule.options.expand1 or name.startswith("_")):
+            return False  # it builds a node, or it is spliced (always a list)
         symbol = rule.expansion[0]
         return (not symbol.filter_out) if symbol.is_term else may_token(symbol.name, seen)
 

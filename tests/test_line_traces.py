@@ -173,3 +173,16 @@ def test_traces_built_per_parse_are_bounded(monkeypatch, eager):
     text = _program(lines)
     assert parse_text(text, "t.seq") == _reference(text, "t.seq")
     assert len(built) == 3
+
+
+_PROGRAMS = __import__("pathlib").Path(__file__).parent.parent / "programs"
+
+
+@pytest.mark.parametrize("name", sorted(p.name for p in _PROGRAMS.glob("*.*") if p.suffix in (".seq", ".rig")))
+def test_every_demo_file_written_three_times_over_parses_as_with_larks_driver(name, eager, replays):
+    """Every construct of the demo programs, traced (each file three times over, so that its
+    lines repeat; names given twice are an error of resolution, not of syntax)."""
+    text = source_text.normalise((_PROGRAMS / name).read_text(encoding="utf-8"))
+    text = "\n".join([text] * 3)
+    assert parse_text(text, name) == _reference(text, name)
+    assert replays

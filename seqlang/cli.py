@@ -64,18 +64,26 @@ def _check_one(path: str) -> None:
             raise
         sequence = None  # some point fails: check_points names it
     if sequence is not None and sequence.program.scans is None:
-        counts = (len(sequence.timeline.events), len(sequence.program.sites), len(sequence.warnings))
-        words = ", ".join(f"{n} {w}{'' if n == 1 else 's'}" for n, w in zip(counts, ("event", "site", "warning")))
-        print(f"{path}: ok ({words})")
+        print(f"{path}: ok ({_counts(sequence.timeline, sequence.program, len(sequence.warnings))})")
         return
     from .scan.check import check_points
     scan = check_points(path)  # every point of the scan
     _print_warnings(scan.warnings)
     first = scan.first
-    counts = (len(first.timeline.events), len(first.program.sites), len(scan.warnings))
-    words = ", ".join(f"{n} {w}{'' if n == 1 else 's'}" for n, w in zip(counts, ("event", "site", "warning")))
     points = f"; {scan.count} scan point{'s' if scan.count != 1 else ''} checked" if scan.space else ""
-    print(f"{path}: ok ({words}{points})")
+    print(f"{path}: ok ({_counts(first.timeline, first.program, len(scan.warnings))}{points})")
+
+
+def _counts(timeline, program, warnings: int) -> str:
+    """"31 events, 2 sites, 0 warnings"; for an array whose traps load by chance the sites are
+    the loaded ones, and it says so."""
+    def counted(n: int, word: str) -> str:
+        return f"{n} {word}{'' if n == 1 else 's'}"
+    sites = counted(len(program.sites), "site")
+    if program.arrays is not None:
+        state = program.arrays
+        sites += f" (loaded of {len(state.traps)} traps, {state.occupancy.describe()})"
+    return f"{counted(len(timeline.events), 'event')}, {sites}, {counted(warnings, 'warning')}"
 
 
 def _declares_scans(path: str) -> bool:

@@ -273,6 +273,16 @@ def test_an_index_keeps_the_span_of_what_was_written(tmp_path):
     assert [m.name for m in source.items[0].members[1:]] == ["q"]
 
 
+def test_check_says_that_the_sites_it_counts_are_the_loaded_traps(capsys):
+    from seqlang.cli import main
+    demo = ROOT / "programs" / "array_rearrange.seq"
+    assert main(["check", str(demo)]) == 0
+    program = load(str(demo)).program
+    loaded = len(program.arrays.loaded)
+    assert f"{len(program.sites)} sites (loaded of 225 traps, drawn with load seed 1)" in capsys.readouterr().out
+    assert len(program.sites) == loaded < 225
+
+
 def test_show_and_the_array_figure_draw_the_demo(tmp_path):
     demo = ROOT / "programs" / "array_rearrange.seq"
     shown = subprocess.run([sys.executable, "-m", "seqlang", "show", str(demo), "--no-pairs"],

@@ -249,3 +249,14 @@ def test_moves_under_way_at_once_are_checked_for_spacing_with_each_other(tmp_pat
         errors = [d.message for d in failure.diagnostics]
     assert [m for m in errors if "closer than the minimum spacing" not in m] == []
     assert len(errors) == (2 if close else 0), errors  # one after the other: both moves come close
+
+
+def test_a_move_too_fast_inside_repeat_is_reported_once(tmp_path):
+    """Each iteration plays the same move; the same error at the same span is said once."""
+    with pytest.raises(seqlang.SeqlangError) as failure:
+        seqlang.load(program(tmp_path, "  repeat 4 {\n    move b by (-20, 0) um duration 20 us\n"
+                                       "    move b by (20, 0) um duration 20 us\n  }"))
+    messages = [(d.message, d.span.line) for d in failure.value.diagnostics]
+    velocity = [m for m in messages if m[0].startswith("peak velocity")]
+    assert len(velocity) == 2 and {line for _, line in velocity} == {6, 7}
+    assert len(messages) == len(set(messages))

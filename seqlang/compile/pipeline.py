@@ -57,6 +57,9 @@ def check_program(program: Program, diags: list[Diagnostic]) -> Checked:
     diags += quant_diags + [d for d in check_timeline(program, quantized) if d.span not in reported]
     if not any(d.severity == ERROR for d in diags):
         diags += check_waveforms(program, quantized)
+    # A statement inside `repeat` is checked once per iteration: the same message at the same
+    # place is said once.
+    diags = list(dict.fromkeys(diags))
     if any(d.severity == ERROR for d in diags):
         raise SeqlangError(diags)
     hardware = plan(program, quantized, report)

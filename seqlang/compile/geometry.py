@@ -163,12 +163,9 @@ def rydberg_pairs(program: Program, timeline: Timeline) -> list[tuple[str, str]]
     return list(_candidate_pairs(program, names, INDEPENDENT_BELOW * weakest))
 
 
-def field_at(timeline: Timeline, t: float) -> float:
-    """The electric field (V/m) at time t: the innermost field stretch running then."""
-    return _field_at(timeline.events, t)
-
-
-def _field_at(events, t: float) -> float:
+def field_of_stretches(events, t: float) -> float:
+    """The electric field (V/m) at time t: the innermost of the field stretches among `events`
+    (in timeline order) running then. Pass only the stretches when asking many times."""
     value = 0.0
     for e in events:
         if e.kind == FIELD and e.start_s <= t < e.end_s:
@@ -190,7 +187,7 @@ class _Scene:
                 self._pulses.setdefault(name, []).append(pulse)
 
     def field(self, t: float) -> float:
-        return _field_at(self.fields, t)
+        return field_of_stretches(self.fields, t)
 
     def rydberg_pulses_of(self, a: str, b: str) -> list[Event]:
         """The Rydberg pulses reaching either site, in start order (one reaching both: once)."""
@@ -390,4 +387,5 @@ def stark_shift_hz(program: Program, species: str, field_v_m: float) -> float:
     return stark.stark_shift_hz(sp.data, sp.rydberg, field_v_m)
 
 
-__all__ = ["check_geometry", "pair_shifts", "pair_shift_track", "rydberg_pairs", "field_at", "stark_shift_hz", "MOVE"]
+__all__ = ["check_geometry", "pair_shifts", "pair_shift_track", "rydberg_pairs", "field_of_stretches",
+           "stark_shift_hz", "MOVE"]

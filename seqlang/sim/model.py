@@ -11,6 +11,7 @@ V_ij |rr⟩⟨rr| with V/h = C6/R⁶. Nothing here runs a solver.
 """
 from __future__ import annotations
 
+import bisect
 import itertools
 import math
 from dataclasses import dataclass, replace
@@ -177,21 +178,24 @@ def build_model(program: Program, timeline: Timeline, sites: tuple[str, ...],
 
 
 def _moved_pairs(segments: list[Segment], pairs: dict, tracks: dict, tick: float) -> list[Segment]:
-    """Segments from a later entry of a pair's track on carry every pair's V in force then."""
+    """Segments from a later entry of a pair's track on carry every pair's V in force then
+    (tracks are in time order: each entry is found by bisection, not by a scan per segment)."""
     if not any(len(t) > 1 for t in tracks.values()):
         return segments
+    order = sorted(pairs)
+    times = {pair: [entry[0] for entry in track] for pair, track in tracks.items()}
     out = []
     for seg in segments:
         now = seg.start_s + 1e-3 * tick
         values, changed = [], False
-        for pair in sorted(pairs):
-            entries = [e for e in tracks.get(pair, ()) if e[0] <= now]
-            if len(entries) > 1:
+        for pair in order:
+            track = tracks.get(pair)
+            count = bisect.bisect_right(times[pair], now) if track else 0
+            if count > 1:
                 changed = True
-                values.append((pair, 2 * math.pi * entries[-1][1], tuple(entries[-1][2])))
+                values.append((pair, 2 * math.pi * track[count - 1][1], tuple(track[count - 1][2])))
             else:
-                first = tracks.get(pair)
-                values.append((pair, pairs[pair], tuple(first[0][2]) if first else ()))
+                values.append((pair, pairs[pair], tuple(track[0][2]) if track else ()))
         out.append(replace(seg, interactions=tuple(values)) if changed else seg)
     return out
 
@@ -227,12 +231,13 @@ def trap_switches(program: Program, timeline: Timeline) -> tuple[tuple[float, bo
 def _stark_shifted(program: Program, timeline: Timeline, sites, segments: list[Segment]) -> list[Segment]:
     """Each site's Rydberg level moved by its DC Stark shift where a `field` stretch runs (the segments
     split at the field edges, so the field at a segment's midpoint holds through it)."""
-    from ..compile.geometry import field_at, stark_shift_hz
-    if not any(e.kind == FIELD for e in timeline.events):
+    from ..compile.geometry import field_of_stretches, stark_shift_hz
+    stretches = [e for e in timeline.events if e.kind == FIELD]
+    if not stretches:
         return segments
     out = []
     for seg in segments:
-        field = field_at(timeline, seg.start_s + seg.duration_s / 2)
+        field = field_of_stretches(stretches, seg.start_s + seg.duration_s / 2)
         extra = tuple(LevelShift(i, RYD, 2 * math.pi * stark_shift_hz(program, program.sites[s].species, field))
                       for i, s in enumerate(sites) if field)
         out.append(Segment(seg.start_s, seg.duration_s, seg.couplings, seg.image, seg.shifts + extra)

@@ -64,6 +64,18 @@ FLOAT_MAX = sys.float_info.max
 TOO_LARGE = f"(beyond ±{FLOAT_MAX:.2g}, the largest number a float holds)".replace("e+", "e")
 # Whole powers of a quantity with units stay within this, so dimensions stay readable.
 MAX_UNIT_POWER = 12
+# Every coordinate of a site, a move or a trap lies within this of the origin: an array spans
+# millimetres in a vacuum cell of centimetres (common practice), so farther is a mistake, and
+# the squares of such lengths would overflow the geometry's arithmetic.
+MAX_COORDINATE_M = 1.0
+
+
+def within_reach(coords, span: Span, what: str = "this position") -> tuple:
+    """`coords` (metres) if every one is within MAX_COORDINATE_M of the origin, else an error."""
+    if any(not abs(c) <= MAX_COORDINATE_M for c in coords):
+        raise EvalError(error(f"{what} is more than {MAX_COORDINATE_M:g} m from the origin on an axis; "
+                              "an array spans millimetres", span, "check the unit (`um`, `mm`)"))
+    return tuple(coords)
 
 
 def _unary(fn: Callable[[float], float], angle_in: bool = False):

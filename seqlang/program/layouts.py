@@ -20,7 +20,7 @@ from ..lang import units
 from ..lang.diagnostics import SOURCES, Diagnostic, Span, did_you_mean, error
 from . import includes
 from . import props as p
-from .evaluate import EvalError, Scope, evaluate, evaluate_any, expect_kind
+from .evaluate import EvalError, Scope, evaluate, evaluate_any, expect_kind, within_reach
 from .model import Layout, Rig, Site
 
 CSV_COLUMNS = ("x", "y", "species", "name")
@@ -110,6 +110,16 @@ def resolve_layouts(source: ast.SourceFile, rig: Rig, scope: Scope, taken: set[s
     return layouts, sites
 
 
+def _in_reach(positions, decl, diags: list[Diagnostic]) -> bool:
+    """Every trap within reach of the origin (see evaluate.within_reach); else an error at the lattice."""
+    try:
+        within_reach(positions.ravel().tolist(), decl.span, f"a trap of lattice `{decl.name.name}`")
+    except EvalError as exc:
+        diags.append(exc.diagnostic)
+        return False
+    return True
+
+
 def _generated(decl: ast.LatticeDecl, rig: Rig, scope: Scope, diags: list[Diagnostic]):
     kind = decl.kind.name
     if kind not in lat.KINDS:
@@ -124,6 +134,8 @@ def _generated(decl: ast.LatticeDecl, rig: Rig, scope: Scope, diags: list[Diagno
         return None
     index = lat.indices(kind, v["size"])
     positions = lat.place(lat.local_positions(kind, pitch, index), v["origin"], v["rotation"])
+    if not _in_reach(positions, decl, diags):
+        return None
     which = lat.species_pattern(v["pattern"] or "uniform", index)
     names = [lat.site_name(decl.name.name, k) for k in index.tolist()]
     sites = [Site(n, species[w], (float(x), float(y), float(z)), decl.span)
@@ -193,6 +205,8 @@ def _from_file(decl: ast.LatticeFile, main: str, rig: Rig, scope: Scope, diags: 
         return None
     local = np.array([[r[0], r[1]] for r in rows], dtype=float).reshape(-1, 2)
     positions = lat.place(local, v["origin"], v["rotation"])
+    if not _in_reach(positions, decl, diags):
+        return None
     sites = [Site(r[3], r[2], (float(x), float(y), float(z)), decl.span)
              for r, (x, y, z) in zip(rows, positions.tolist())]
     names = tuple(s.name for s in sites)

@@ -16,7 +16,7 @@ from ..lang import units
 from ..lang.diagnostics import ERROR, SOURCES, Diagnostic, SeqlangError, Span, did_you_mean, error
 from ..lang.parser import parse_text
 from . import includes
-from .evaluate import EvalError, Scope, evaluate, evaluate_any, expect_kind
+from .evaluate import EvalError, Scope, evaluate, evaluate_any, expect_kind, within_reach
 from .model import Expectation, Program, Rig, SerialOp, Site
 from .scans import bind_free, bind_point, override_rig, resolve_free, resolve_scans
 from .layouts import expand_refs, resolve_layouts
@@ -289,10 +289,10 @@ def _position(expr: ast.Expr, scope: Scope, diags: list[Diagnostic]):
         return None
     try:
         coords = [expect_kind(q, units.LENGTH, expr.span) for q in value]
+        return within_reach(coords + [0.0] * (3 - len(coords)), expr.span)
     except EvalError as exc:
         diags.append(exc.diagnostic)
         return None
-    return tuple(coords + [0.0] * (3 - len(coords)))
 
 
 def _check_distinct_positions(sites: dict[str, Site], diags: list[Diagnostic]) -> None:

@@ -14,7 +14,7 @@ from ..lang.diagnostics import Diagnostic, Span, did_you_mean, error, warning
 from ..lang.units import format_quantity
 from . import props as p
 from .decisions import FeedForwardMixin
-from .evaluate import EvalError, Scope, SiteRef, evaluate, evaluate_any, expect_kind
+from .evaluate import EvalError, Scope, SiteRef, evaluate, evaluate_any, expect_kind, within_reach
 from .model import (Drive, FieldOp, FillOp, ImageOp, MoveOp, PortOp, PulseOp, RepeatOp, Rig, SerialOp, Shape, Site,
                     TogetherOp, WaitOp)
 
@@ -262,7 +262,7 @@ class SequenceResolver(FeedForwardMixin):
         for ident in stmt.sites:
             names += [n for n in self._target_names(ident, scope) if n not in names]
         v = p.read_props(stmt.props, MOVE_KEYS, scope, "a move", stmt.span, self.diags)
-        target = self._coordinates(stmt.target, scope)
+        target = self._coordinates(stmt.target, scope, "this displacement" if stmt.relative else "this position")
         if not names or v["duration"] is None:
             return None
         if not stmt.relative and len(names) != 1:
@@ -270,7 +270,8 @@ class SequenceResolver(FeedForwardMixin):
         start = self.positions[names[0]]
         shift = target if stmt.relative else tuple(t - s for t, s in zip(target, start))
         for name in names:
-            self.positions[name] = tuple(a + d for a, d in zip(self.positions[name], shift))
+            self.positions[name] = within_reach([a + d for a, d in zip(self.positions[name], shift)], stmt.span,
+                                                f"this move takes `{name}` to a place that")
         return MoveOp(tuple(names), shift, v["duration"], v["profile"], stmt.span)
 
     def _FillStmt(self, stmt: ast.FillStmt, scope: Scope) -> FillOp | None:
@@ -292,12 +293,12 @@ class SequenceResolver(FeedForwardMixin):
             names += [n for n in self._target_names(ident, scope) if n not in names]
         return tuple(names)
 
-    def _coordinates(self, expr: ast.Expr, scope: Scope) -> tuple[float, float, float]:
+    def _coordinates(self, expr: ast.Expr, scope: Scope, what: str) -> tuple[float, float, float]:
         value = evaluate_any(expr, scope)
         if not isinstance(value, tuple) or len(value) not in (2, 3):
             raise EvalError(error("expected coordinates such as `(3, 0) um`", expr.span))
         coords = [expect_kind(q, units.LENGTH, expr.span) for q in value]
-        return tuple(coords + [0.0] * (3 - len(coords)))
+        return within_reach(coords + [0.0] * (3 - len(coords)), expr.span, what)
 
     # ---- pulses ------------------------------------------------------------
     def _PulseStmt(self, stmt: ast.PulseStmt, scope: Scope) -> PulseOp | None:

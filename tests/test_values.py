@@ -45,6 +45,24 @@ def test_long_wait_is_split_into_counter_sized_hold_rows(tmp_path):
     assert "sequencer" in timing_csv(checked)
 
 
+def test_hold_rows_are_counted_before_they_are_built(tmp_path, monkeypatch):
+    """The count that bounds the hold rows is the number built (ceil(gap / counter) − 1 per gap,
+    worked out here by hand), and one more than the bound is an error at the event after the gap."""
+    from seqlang.compile import hardware
+    checked = check(bench_program(tmp_path, "  pulse mw_cs area pi\n  wait 60 s\n  pulse mw_cs area pi\n"
+                                            "  wait 30 s\n  pulse mw_cs area pi"))
+    ticks = [r.tick for r in checked.plan.rows() if r.kind != "hold"]
+    by_hand = sum(max(0, math.ceil((b - a) / COUNTER) - 1) for a, b in zip([0] + ticks, ticks))
+    assert checked.plan.holds == by_hand == 6 + 3   # 3·10¹⁰ and 1.5·10¹⁰ ticks
+    monkeypatch.setattr(hardware, "MAX_HOLD_ROWS", by_hand - 1)
+    with pytest.raises(SeqlangError) as failure:
+        check(bench_program(tmp_path, "  pulse mw_cs area pi\n  wait 60 s\n  pulse mw_cs area pi\n"
+                                      "  wait 30 s\n  pulse mw_cs area pi"))
+    (diagnostic,) = failure.value.diagnostics
+    assert diagnostic.message.startswith(f"the tables would need {by_hand:,} hold rows")
+    assert diagnostic.span == checked.timeline.pulses()[1].span   # after the longest gap (60 s)
+
+
 def test_short_waits_need_no_hold_rows(tmp_path):
     checked = check(bench_program(tmp_path, "  pulse mw_cs area pi\n  wait 8 s\n  pulse mw_cs area pi"))
     assert checked.plan.holds == 0

@@ -22,7 +22,7 @@ from collections import defaultdict
 from dataclasses import dataclass, field
 from operator import attrgetter
 
-from ..lang.diagnostics import Diagnostic, Span, warning
+from ..lang.diagnostics import Diagnostic, SeqlangError, Span, error, warning
 from ..program.model import Program
 from .quantize import QuantizeReport
 from . import motion
@@ -94,7 +94,7 @@ def plan(program: Program, timeline: Timeline, report: QuantizeReport) -> Hardwa
     latencies = _latencies(program)
     shift = _shift_needed(program, timeline, tick, latencies)
     merged = _merge_gates(_entries(program, timeline, tick, latencies, shift))
-    holds = _holds(merged, 2 ** program.rig.counter_bits - 1)
+    holds = _holds(merged, 2 ** program.rig.counter_bits - 1, program, timeline)
     ports: dict[str, list[PortEvent]] = defaultdict(list)
     for entries in (merged, holds):
         for entry in entries:
@@ -286,22 +286,48 @@ def _merge_gates(entries: list[PortEvent]) -> list[PortEvent]:
     return [e for e in entries if e.kind != GATE] + merged
 
 
-def _holds(entries: list[PortEvent], limit: int) -> list[PortEvent]:
+# At most this many hold rows in one table: more means waits far longer than the counter
+# spans, which a sequencer memory would not hold either (and building them would not end).
+MAX_HOLD_ROWS = 1_000_000
+
+
+def _holds(entries: list[PortEvent], limit: int, program: Program, timeline: Timeline) -> list[PortEvent]:
     """Hold rows so that no two consecutive issue ticks (from tick 0) are more than `limit` apart.
 
-    A hold carries the source line of the row it leads to.
+    A hold carries the source line of the row it leads to. More than MAX_HOLD_ROWS is an
+    error at the event after the longest gap (counted before any row is built).
     """
     if max((e.tick for e in entries), default=0) <= limit:
         return []  # the usual case: the whole sequence fits the counter, no sort needed
+    ordered = sorted(entries, key=_ISSUE_ORDER)
+    _check_hold_count(ordered, limit, program, timeline)
     out: list[PortEvent] = []
     previous = 0
-    for entry in sorted(entries, key=_ISSUE_ORDER):
+    for entry in ordered:
         tick = previous + limit
         while tick < entry.tick:
             out.append(PortEvent(SEQUENCER, tick, min(limit, entry.tick - tick), HOLD, entry.event, entry.source))
             tick += limit
         previous = max(previous, entry.tick)
     return out
+
+
+def _check_hold_count(ordered: list[PortEvent], limit: int, program: Program, timeline: Timeline) -> None:
+    count, previous, longest, after = 0, 0, 0, None
+    for entry in ordered:
+        gap = entry.tick - previous
+        if gap > limit:
+            count += (gap - 1) // limit   # holds at previous + limit, + 2 limit, ... before the entry
+            if gap > longest:
+                longest, after = gap, entry
+        previous = max(previous, entry.tick)
+    if count <= MAX_HOLD_ROWS:
+        return
+    span = timeline.events[after.event].span if 0 <= after.event < len(timeline.events) else program.rig.span
+    raise SeqlangError([error(
+        f"the tables would need {count:,} hold rows: gaps of up to {longest:,} ticks against a duration "
+        f"counter of {program.rig.counter_bits} bits ({limit:,} ticks); at most {MAX_HOLD_ROWS:,} are built",
+        span, "shorten the waits, or widen `counter_bits` in the rig")])
 
 
 _shifted = copier(Event, "start_s")  # kept: one copy per event

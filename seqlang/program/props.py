@@ -117,14 +117,19 @@ def non_negative(reader: Reader, what: str = "value") -> Reader:
     return read
 
 
-def latency(expr: ast.Expr, scope: Scope) -> float:
-    """An output latency: non-negative and at most MAX_LATENCY_S (it shifts the whole table)."""
-    value = non_negative(duration)(expr, scope)  # "`latency` cannot be negative", as other keys
-    if value > MAX_LATENCY_S:
-        raise EvalError(error(f"a latency of {value:g} s is longer than {MAX_LATENCY_S:g} s; the whole table "
-                              "is shifted by the largest latency", expr.span,
-                              "output latencies are nanoseconds to milliseconds (common practice)"))
-    return value
+def early_by(what: str, why: str) -> Reader:
+    """A time an output is shifted or held open by (a latency, a gate's lead or lag):
+    non-negative and at most MAX_LATENCY_S; `why` says what a longer one would do."""
+    def read(expr: ast.Expr, scope: Scope) -> float:
+        value = non_negative(duration)(expr, scope)  # "`latency` cannot be negative", as other keys
+        if value > MAX_LATENCY_S:
+            raise EvalError(error(f"a {what} of {value:g} s is longer than {MAX_LATENCY_S:g} s; {why}", expr.span,
+                                  f"output {what}s are nanoseconds to milliseconds (common practice)"))
+        return value
+    return read
+
+
+latency = early_by("latency", "the whole table is shifted by the largest latency")
 
 
 MAX_LATENCY_S = 1.0

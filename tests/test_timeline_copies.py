@@ -7,8 +7,9 @@ import dataclasses
 import pytest
 
 from seqlang.compile.hardware import PortEvent
-from seqlang.compile.timeline import PULSE, Event, Timeline, copier, direct_init, evolve
+from seqlang.compile.timeline import PULSE, Event, Timeline, copier, evolve
 from seqlang.lang.diagnostics import Span
+from seqlang.lang.records import direct_init
 from seqlang.program.model import Shape
 
 SPAN = Span("t.seq", 4, 3, 4, 20)

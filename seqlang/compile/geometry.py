@@ -163,12 +163,12 @@ def rydberg_pairs(program: Program, timeline: Timeline) -> list[tuple[str, str]]
     return list(_candidate_pairs(program, names, INDEPENDENT_BELOW * weakest))
 
 
-def field_of_stretches(events, t: float) -> float:
-    """The electric field (V/m) at time t: the innermost of the field stretches among `events`
-    (in timeline order) running then. Pass only the stretches when asking many times."""
+def field_of_stretches(stretches, t: float) -> float:
+    """The electric field (V/m) at time t: the innermost of the `field` stretches (FIELD
+    events, in timeline order) running then."""
     value = 0.0
-    for e in events:
-        if e.kind == FIELD and e.start_s <= t < e.end_s:
+    for e in stretches:
+        if e.start_s <= t < e.end_s:
             value = e.value
     return value
 

@@ -23,10 +23,11 @@ from dataclasses import dataclass, field
 from operator import attrgetter
 
 from ..lang.diagnostics import Diagnostic, SeqlangError, Span, error, warning
+from ..lang.records import direct_init
 from ..program.model import Program
 from .quantize import QuantizeReport
 from . import motion
-from .timeline import FIELD, IMAGE, MOVE, PULSE, SET, Event, Timeline, copier, direct_init, evolve
+from .timeline import FIELD, IMAGE, MOVE, PULSE, SET, Event, Timeline, copier, evolve
 
 GATE = "gate"
 HOLD, SEQUENCER = "hold", "sequencer"

@@ -10,7 +10,7 @@ import functools
 from dataclasses import dataclass
 
 from ..lang.diagnostics import Span
-from ..lang.records import direct_init  # noqa: F401  (also imported from here by the hardware plan)
+from ..lang.records import direct_init
 from ..program.model import Decision, Shape
 
 PULSE, IMAGE, SWITCH, SET, TRIGGER = "pulse", "image", "switch", "set", "trigger"

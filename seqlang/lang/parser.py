@@ -288,8 +288,8 @@ def _reducer_factory(plan):
     if not size or any(children[i] == _MAYBE_EMPTY for i in range(size)):
         code.append("    first, last = _ends(children)")
     else:
-        code.append(f"    first = {_first_token(0, children[0])}")
-        code.append(f"    last = {_last_token(size - 1, children[-1])}")
+        code.append(f"    first = {_end_token(0, children[0], FIRST)}")
+        code.append(f"    last = {_end_token(size - 1, children[-1], LAST)}")
     items, depths, fresh = [], [], True
     for index, mode in enumerate(modes):
         if nones and nones[index]:
@@ -301,14 +301,14 @@ def _reducer_factory(plan):
             items.append(f"{child}, ")
             continue
         token_check = children[index] != _REDUCED
-        value = f"({child} if {child}.__class__ is Token else {child}[0])" if token_check else f"{child}[0]"
-        depths.append(f"(0 if {child}.__class__ is Token else {child}[3])" if token_check else f"{child}[3]")
+        value = f"({child} if {child}.__class__ is Token else {child}[{VALUE}])" if token_check else f"{child}[{VALUE}]"
+        depths.append(f"(0 if {child}.__class__ is Token else {child}[{DEPTH}])" if token_check else f"{child}[{DEPTH}]")
         if mode is _SPLICE:
             if not items and not nones and fresh:   # a left-recursive list (`x*`): grow the child's own list
-                code.append(f"    values = {child}[0]")
+                code.append(f"    values = {child}[{VALUE}]")
                 fresh = False
             else:
-                items.append(f"*{child}[0], ")
+                items.append(f"*{child}[{VALUE}], ")
         else:
             items.append(f"{value}, ")
     if nones and nones[-1]:
@@ -326,9 +326,9 @@ def _reducer_factory(plan):
             code.append("      return [values[0], first, last, depth]")
         code.append(f"    out = [None, first, last, depth + {int(deepens)}]")
         if deepens:
-            code.append("    if out[3] > MAX_NESTING:")
+            code.append(f"    if out[{DEPTH}] > MAX_NESTING:")
             code.append("      _too_deep(builder, out)")
-        code.append("    out[0] = method(out, values) if method is not None else Tree(name, values)")
+        code.append(f"    out[{VALUE}] = method(out, values) if method is not None else Tree(name, values)")
         code.append("    return out")
     code.append("  return reduce")
     names = {"Token": Token, "Tree": Tree, "_ends": _ends, "MAX_NESTING": MAX_NESTING, "_too_deep": _too_deep}
@@ -336,14 +336,10 @@ def _reducer_factory(plan):
     return names["make"]
 
 
-def _first_token(index: int, child: str) -> str:
-    return f"c{index}" if child == _TOKEN else f"c{index}[1]" if child == _REDUCED else \
-        f"(c{index} if c{index}.__class__ is Token else c{index}[1])"
-
-
-def _last_token(index: int, child: str) -> str:
-    return f"c{index}" if child == _TOKEN else f"c{index}[2]" if child == _REDUCED else \
-        f"(c{index} if c{index}.__class__ is Token else c{index}[2])"
+def _end_token(index: int, child: str, end: int) -> str:
+    """Source for child `index`'s first or last token (`end` FIRST or LAST)."""
+    return f"c{index}" if child == _TOKEN else f"c{index}[{end}]" if child == _REDUCED else \
+        f"(c{index} if c{index}.__class__ is Token else c{index}[{end}])"
 
 
 def _too_deep(builder: "_Builder", out: _Reduced):

@@ -14,7 +14,6 @@ from .diagnostics import Span
 from .records import direct_init
 
 
-
 def node(cls):
     """A syntax node: a frozen slotted dataclass with a direct ``__init__`` (records.direct_init)."""
     return direct_init(dataclass(frozen=True, slots=True)(cls))
